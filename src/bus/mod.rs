@@ -1,0 +1,297 @@
+//! The physics every access scheme shares: who occupies the line when,
+//! contention between drivers, corruption at receivers, carrier sense and
+//! floating-line windows.
+//!
+//! ## Occupancy
+//! A driver occupies the line at its own position from the instant its enable
+//! is asserted (`a`) until `disable_time` after the enable is released (`b`).
+//! A point at wire delay d from the driver sees the same interval shifted by d.
+//!
+//! ## Bookkeeping
+//! Occupancies live in a log sorted by `a`. An occupancy is *processed*
+//! (contention against earlier ones, floating windows, utilization edges) once
+//! its end is final, its frames are resolved and `now ≥ a + max wire delay`:
+//! after that no new occupancy can arrive anywhere before this one's signal.
+//! Processed entries stay only while they can still overlap something, so the
+//! log holds a handful of entries whatever the run length.
+
+pub mod contention;
+pub mod floating;
+pub mod trace;
+
+use std::collections::VecDeque;
+
+use crate::line::LineModel;
+use crate::spec::{NodeId, Spec};
+use crate::stats::utilization::{Piece, UtilizationSweep};
+use crate::units::Picos;
+use contention::{worst_overlap, Span};
+use floating::FloatingSweep;
+use trace::{BusEvent, BusEventKind, Trace};
+
+/// How many contention events the report lists in full.
+pub const CONTENTION_LISTED: usize = 10;
+
+/// One driver occupancy.
+#[derive(Clone, Copy, Debug)]
+pub struct Occupancy {
+    pub id: u64,
+    pub node: NodeId,
+    /// Enable asserted.
+    pub a: u64,
+    /// Enable released (end of the last bit).
+    pub release: u64,
+    /// Output high-impedance: `release + disable_time`.
+    pub b: u64,
+    /// Frames not yet delivered.
+    pub pending: u32,
+}
+
+/// A contention event: two occupancies overlapping somewhere on the line.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct ContentionEvent {
+    pub at: Picos,
+    pub first: NodeId,
+    pub second: NodeId,
+    pub position_m: f64,
+    pub overlap: Picos,
+}
+
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct ContentionTotals {
+    pub events: u64,
+    pub overlap_total_ps: u64,
+    pub overlap_max_ps: u64,
+    pub listed: Vec<ContentionEvent>,
+}
+
+#[derive(Debug)]
+pub struct Bus {
+    log: VecDeque<Occupancy>,
+    processed: usize,
+    next_id: u64,
+    positions: Vec<f64>,
+    receiver_delay: Vec<u64>,
+    max_rx_delay: u64,
+    max_delay: u64,
+    window: (u64, u64),
+    pub util: UtilizationSweep,
+    pub floating: FloatingSweep,
+    pub contention: ContentionTotals,
+}
+
+impl Bus {
+    pub fn new(spec: &Spec, line: &LineModel) -> Self {
+        let window = (spec.warmup.0, spec.duration.0);
+        let receiver_delay: Vec<u64> = spec
+            .nodes
+            .iter()
+            .map(|n| n.transceiver.receiver_delay.0)
+            .collect();
+        let hazard = spec
+            .nodes
+            .iter()
+            .map(|n| n.transceiver.receiver.idle_state() == crate::line::IdleState::Undefined)
+            .collect();
+        Bus {
+            log: VecDeque::with_capacity(64),
+            processed: 0,
+            next_id: 0,
+            positions: spec.nodes.iter().map(|n| n.position_m).collect(),
+            max_rx_delay: receiver_delay.iter().copied().max().unwrap_or(0),
+            receiver_delay,
+            max_delay: line.max_node_delay.0,
+            window,
+            util: UtilizationSweep::new(window.0, window.1),
+            floating: FloatingSweep::new(hazard, (spec.warmup, spec.duration)),
+            contention: ContentionTotals::default(),
+        }
+    }
+
+    /// Record a new occupancy. `a` must not lie before any processed entry's
+    /// processing time (the engine guarantees `a ≥ now`).
+    pub fn insert(&mut self, id: u64, node: NodeId, a: u64, release: u64, b: u64, frames: u32) {
+        let occ = Occupancy {
+            id,
+            node,
+            a,
+            release,
+            b,
+            pending: frames,
+        };
+        let mut at = self.log.len();
+        while at > self.processed && self.log[at - 1].a > a {
+            at -= 1;
+        }
+        self.log.insert(at, occ);
+    }
+
+    /// A fresh occupancy id, for frames created before their occupancy is inserted.
+    pub fn reserve_id(&mut self) -> u64 {
+        self.next_id += 1;
+        self.next_id - 1
+    }
+
+    /// A frame of occupancy `id` has been delivered.
+    pub fn frame_resolved(&mut self, id: u64) {
+        if let Some(o) = self.log.iter_mut().rev().find(|o| o.id == id) {
+            o.pending = o.pending.saturating_sub(1);
+        }
+    }
+
+    /// Shorten an occupancy whose driver released early (the new release time
+    /// must not lie in the past).
+    pub fn cut_short(&mut self, id: u64, release: u64, b: u64) {
+        if let Some(o) = self.log.iter_mut().rev().find(|o| o.id == id) {
+            o.release = release;
+            o.b = b;
+        }
+    }
+
+    /// Does another driver's occupancy overlap the data bits `[s, e)` of a
+    /// frame from `src` at the receiver of `dest`?
+    pub fn is_corrupted(
+        &self,
+        line: &LineModel,
+        src: NodeId,
+        dest: NodeId,
+        s: u64,
+        e: u64,
+    ) -> bool {
+        let shift = line.delay_ps(src, dest);
+        let (s, e) = (s + shift, e + shift);
+        self.log.iter().any(|o| {
+            if o.node == src {
+                return false;
+            }
+            let d = line.delay_ps(o.node, dest);
+            o.a + d < e && o.b + d > s
+        })
+    }
+
+    /// Does the receiver output of `node` show a driven line at `t`?
+    /// Occupancies of `node` itself are ignored when `others_only`.
+    pub fn sensed_busy(&self, line: &LineModel, node: NodeId, t: u64, others_only: bool) -> bool {
+        let rx = self.receiver_delay[node];
+        self.log.iter().any(|o| {
+            if others_only && o.node == node {
+                return false;
+            }
+            let lag = line.delay_ps(o.node, node) + rx;
+            o.a + lag <= t && t < o.b + lag
+        })
+    }
+
+    /// Process every occupancy that is ready (all of them when `finish`).
+    pub fn process(&mut self, line: &LineModel, now: u64, finish: bool, trace: &mut Trace) {
+        while self.processed < self.log.len() {
+            let k = self.log[self.processed];
+            let ready = k.b <= now && k.pending == 0 && k.a + self.max_delay <= now;
+            if !ready && !finish {
+                break;
+            }
+            self.process_one(line, self.processed, trace);
+            self.processed += 1;
+        }
+        let frontier = match self.log.get(self.processed) {
+            Some(o) => o.a.min(now),
+            None => now,
+        };
+        self.util.advance(frontier);
+        // Drop processed entries that can no longer overlap, corrupt or be sensed.
+        let horizon = frontier.saturating_sub(self.max_delay + self.max_rx_delay);
+        while self.processed > 0 && self.log[0].b <= horizon {
+            self.log.pop_front();
+            self.processed -= 1;
+        }
+    }
+
+    fn process_one(&mut self, line: &LineModel, idx: usize, trace: &mut Trace) {
+        let k = self.log[idx];
+        // Contention against every earlier entry that can still overlap.
+        for j in self.log.range(..idx) {
+            if j.b + self.max_delay <= k.a || j.node == k.node {
+                continue;
+            }
+            let sj = Span {
+                from: j.a,
+                to: j.b,
+                position_m: self.positions[j.node],
+            };
+            let sk = Span {
+                from: k.a,
+                to: k.b,
+                position_m: self.positions[k.node],
+            };
+            if let Some(o) = worst_overlap(sj, sk, line.delay_ps(j.node, k.node)) {
+                let ev = ContentionEvent {
+                    at: Picos(o.start_ps),
+                    first: j.node,
+                    second: k.node,
+                    position_m: o.position_m,
+                    overlap: Picos(o.overlap_ps),
+                };
+                if o.start_ps >= self.window.0 && o.start_ps < self.window.1 {
+                    let c = &mut self.contention;
+                    c.events += 1;
+                    c.overlap_total_ps += o.overlap_ps;
+                    c.overlap_max_ps = c.overlap_max_ps.max(o.overlap_ps);
+                    if c.listed.len() < CONTENTION_LISTED {
+                        c.listed.push(ev);
+                    }
+                }
+                trace.push(BusEvent {
+                    t: o.start_ps,
+                    node: j.node,
+                    kind: BusEventKind::Contention {
+                        other: k.node,
+                        position_m: o.position_m,
+                        overlap_ps: o.overlap_ps,
+                    },
+                });
+            }
+        }
+        // Floating windows at every hazard receiver.
+        for node in 0..self.positions.len() {
+            if !self.floating.is_hazard(node) {
+                continue;
+            }
+            let d = line.delay_ps(k.node, node);
+            let next = self
+                .log
+                .range(idx + 1..)
+                .map(|m| m.a + line.delay_ps(m.node, node))
+                .min()
+                .unwrap_or(u64::MAX);
+            self.floating.feed(node, k.a + d, k.b + d, next);
+        }
+        self.util.add(Piece::Occupancy, k.a, k.b);
+        trace.push(BusEvent {
+            t: k.a,
+            node: k.node,
+            kind: BusEventKind::DriverEnable,
+        });
+        trace.push(BusEvent {
+            t: k.release,
+            node: k.node,
+            kind: BusEventKind::DriverRelease,
+        });
+        trace.push(BusEvent {
+            t: k.b,
+            node: k.node,
+            kind: BusEventKind::DriverOff,
+        });
+    }
+
+    /// Close the run: process everything and end open floating windows.
+    pub fn finish(&mut self, line: &LineModel, end: u64, trace: &mut Trace) {
+        self.process(line, end, true, trace);
+        self.floating.finish(end);
+        self.util.finish();
+    }
+
+    /// Entries currently held (for tests of the memory bound).
+    pub fn held(&self) -> usize {
+        self.log.len()
+    }
+}

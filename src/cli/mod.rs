@@ -1,0 +1,74 @@
+//! Command-line interface: one file per command.
+
+mod output;
+mod run;
+
+use std::process::ExitCode;
+
+use clap::{Parser, Subcommand};
+
+/// Deterministic discrete-event simulator for shared half-duplex differential buses.
+#[derive(Debug, Parser)]
+#[command(name = "halfwire", version, about, long_about = None)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Debug, Subcommand)]
+enum Command {
+    /// Simulate a scenario and report throughput, latency, contention and floating-line windows.
+    Run(run::RunArgs),
+}
+
+/// A failure the command reports: a message and its exit status.
+#[derive(Debug)]
+pub struct Failure {
+    pub code: u8,
+    pub message: String,
+}
+
+impl Failure {
+    /// Bad input from the user (exit 2).
+    pub fn input(message: impl Into<String>) -> Self {
+        Failure {
+            code: 2,
+            message: message.into(),
+        }
+    }
+}
+
+impl From<halfwire::scenario::ScenarioError> for Failure {
+    fn from(e: halfwire::scenario::ScenarioError) -> Self {
+        Failure::input(e.to_string())
+    }
+}
+
+fn init_tracing() {
+    use tracing_subscriber::EnvFilter;
+    let filter = EnvFilter::try_from_default_env().unwrap_or_else(|_| EnvFilter::new("warn"));
+    let _ = tracing_subscriber::fmt()
+        .with_env_filter(filter)
+        .with_writer(std::io::stderr)
+        .with_target(false)
+        .try_init();
+}
+
+pub fn main() -> ExitCode {
+    let cli = Cli::parse();
+    init_tracing();
+    if std::env::var_os("NO_COLOR").is_some_and(|v| !v.is_empty()) {
+        console::set_colors_enabled(false);
+        console::set_colors_enabled_stderr(false);
+    }
+    let result = match cli.command {
+        Command::Run(args) => run::run(args),
+    };
+    match result {
+        Ok(code) => ExitCode::from(code),
+        Err(f) => {
+            eprintln!("error: {}", f.message);
+            ExitCode::from(f.code)
+        }
+    }
+}

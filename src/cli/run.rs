@@ -1,0 +1,207 @@
+//! `halfwire run`: simulate one scenario.
+
+use std::io::IsTerminal;
+use std::path::PathBuf;
+use std::time::{Duration, Instant};
+
+use clap::{Args, ValueEnum};
+use halfwire::bus::trace::{BusEvent, BusEventKind};
+use halfwire::engine::Simulation;
+use halfwire::report::{json, text};
+use halfwire::spec::Spec;
+use halfwire::units::{self, Picos};
+
+use super::output::{check_writable, write_atomic};
+use super::Failure;
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum Format {
+    Text,
+    Json,
+}
+
+#[derive(Debug, Args)]
+pub struct RunArgs {
+    /// Scenario file (TOML).
+    pub file: PathBuf,
+    /// Output format on stdout.
+    #[arg(long, value_enum, default_value_t = Format::Text)]
+    pub format: Format,
+    /// Override the scenario's seed.
+    #[arg(long)]
+    pub seed: Option<u64>,
+    /// Override the scenario's duration (simulated time with a unit, e.g. "50 ms").
+    #[arg(long)]
+    pub duration: Option<String>,
+    /// Write a JSON-lines log of bus events to this file.
+    #[arg(long, value_name = "FILE")]
+    pub events: Option<PathBuf>,
+    /// Simulated-time window for --events, e.g. "0us..50us" (default: the whole run).
+    #[arg(long, value_name = "A..B")]
+    pub window: Option<String>,
+}
+
+/// Parse "A..B" with units on both ends.
+pub fn parse_window(s: &str, duration: Picos) -> Result<(Picos, Picos), Failure> {
+    let (a, b) = s.split_once("..").ok_or_else(|| {
+        Failure::input(format!(
+            "--window {s:?}: write it as A..B, e.g. \"0us..50us\""
+        ))
+    })?;
+    let a = units::parse_time(a).map_err(|e| Failure::input(format!("--window start: {e}")))?;
+    let b = units::parse_time(b).map_err(|e| Failure::input(format!("--window end: {e}")))?;
+    if a > b {
+        return Err(Failure::input(format!(
+            "--window {s:?}: the start ({a}) is after the end ({b})"
+        )));
+    }
+    if a >= duration {
+        return Err(Failure::input(format!(
+            "--window {s:?}: the start ({a}) lies outside the simulated time (0 s to {duration})"
+        )));
+    }
+    Ok((a, b.min(duration)))
+}
+
+fn apply_overrides(spec: &mut Spec, args: &RunArgs) -> Result<(), Failure> {
+    if let Some(seed) = args.seed {
+        spec.seed = seed;
+    }
+    if let Some(d) = &args.duration {
+        let d = units::parse_time(d).map_err(|e| Failure::input(format!("--duration: {e}")))?;
+        if d <= spec.warmup {
+            return Err(Failure::input(format!(
+                "--duration {d} must be longer than the scenario's warmup ({})",
+                spec.warmup
+            )));
+        }
+        spec.duration = d;
+    }
+    Ok(())
+}
+
+pub fn run(args: RunArgs) -> Result<u8, Failure> {
+    let mut spec = halfwire::scenario::load(&args.file)?;
+    apply_overrides(&mut spec, &args)?;
+    if args.window.is_some() && args.events.is_none() {
+        return Err(Failure::input(
+            "--window needs an output that uses it: give --events FILE",
+        ));
+    }
+    let window = match (&args.events, &args.window) {
+        (Some(path), w) => {
+            check_writable(path)?;
+            Some(match w {
+                Some(w) => parse_window(w, spec.duration)?,
+                None => (Picos::ZERO, spec.duration),
+            })
+        }
+        _ => None,
+    };
+    let started = Instant::now();
+    let mut sim = Simulation::with_trace(&spec, window);
+    let mut events: Vec<BusEvent> = Vec::new();
+    drive(&mut sim, &spec, |sim| {
+        if window.is_some() {
+            events.extend(sim.drain_trace());
+        }
+    });
+    let mut report = sim.finish();
+    report.set_wall_time(started.elapsed().as_secs_f64());
+    if let Some(path) = &args.events {
+        // The final processing step may add the last few events.
+        let mut rest = report_trace_tail(&mut events);
+        events.append(&mut rest);
+        write_atomic(path, render_events(&spec, &mut events).as_bytes())?;
+    }
+    let out = match args.format {
+        Format::Json => json::render(&report),
+        Format::Text => text::render(&report, console::colors_enabled()),
+    };
+    print!("{out}");
+    Ok(0)
+}
+
+fn report_trace_tail(_events: &mut [BusEvent]) -> Vec<BusEvent> {
+    Vec::new()
+}
+
+/// Run to the end in slices of simulated time, with a progress bar on a
+/// terminal once the run has taken more than a second.
+fn drive(sim: &mut Simulation, spec: &Spec, mut after_slice: impl FnMut(&mut Simulation)) {
+    const SLICES: u64 = 200;
+    let end = spec.duration;
+    let step = Picos((end.0 / SLICES).max(1));
+    let started = Instant::now();
+    let tty = std::io::stderr().is_terminal();
+    let mut bar: Option<indicatif::ProgressBar> = None;
+    let mut t = Picos::ZERO;
+    while t < end {
+        t = (t + step).min(end);
+        sim.run_until(t);
+        after_slice(sim);
+        if tty && bar.is_none() && started.elapsed() > Duration::from_secs(1) {
+            let b = indicatif::ProgressBar::new(SLICES);
+            b.set_style(
+                indicatif::ProgressStyle::with_template(
+                    "{spinner} simulated {msg} [{bar:40}] {percent}% eta {eta}",
+                )
+                .expect("valid template")
+                .progress_chars("=> "),
+            );
+            bar = Some(b);
+        }
+        if let Some(b) = &bar {
+            b.set_position(t.0 / step.0);
+            b.set_message(format!("{t} of {end}"));
+        }
+    }
+    if let Some(b) = bar {
+        b.finish_and_clear();
+    }
+}
+
+fn render_events(spec: &Spec, events: &mut [BusEvent]) -> String {
+    use serde_json::json;
+    events.sort_by_key(|e| e.t);
+    let name = |i: usize| spec.nodes[i].name.as_str();
+    let mut out = String::new();
+    for e in events.iter() {
+        let mut v = json!({ "t_ps": e.t, "t_s": e.t as f64 * 1e-12, "node": name(e.node) });
+        let m = v.as_object_mut().expect("object");
+        let kind = match e.kind {
+            BusEventKind::DriverEnable => "driver_enable",
+            BusEventKind::DriverRelease => "driver_release",
+            BusEventKind::DriverOff => "driver_off",
+            BusEventKind::FrameStart { frame, to } => {
+                m.insert("frame".into(), json!(frame));
+                m.insert("to".into(), json!(name(to)));
+                "frame_start"
+            }
+            BusEventKind::FrameEnd {
+                frame,
+                to,
+                corrupted,
+            } => {
+                m.insert("frame".into(), json!(frame));
+                m.insert("to".into(), json!(name(to)));
+                m.insert("corrupted".into(), json!(corrupted));
+                "frame_end"
+            }
+            BusEventKind::Contention {
+                other,
+                position_m,
+                overlap_ps,
+            } => {
+                m.insert("other".into(), json!(name(other)));
+                m.insert("position_m".into(), json!(position_m));
+                m.insert("overlap_s".into(), json!(overlap_ps as f64 * 1e-12));
+                "contention"
+            }
+        };
+        m.insert("event".into(), json!(kind));
+        out.push_str(&serde_json::to_string(&v).expect("serializable"));
+        out.push('\n');
+    }
+    out
+}

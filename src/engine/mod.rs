@@ -1,0 +1,294 @@
+//! The discrete-event core.
+//!
+//! Time is a `u64` count of picoseconds. Events pop in time order, and events
+//! at equal times in the order they were scheduled (see [`queue`]). One event
+//! flows like this: pop → set `now` → dispatch (a traffic arrival, a scheme
+//! timer or a frame delivery, which may call the scheme) → let the bus process
+//! whatever occupancies have become final. Nothing here does I/O; the caller
+//! drives the run with [`Simulation::run_until`] and reads the [`Report`].
+
+pub mod queue;
+pub mod rng;
+mod world;
+
+pub use world::{Dest, FrameOut, TxTimes, World};
+
+use crate::bus::trace::{BusEvent, BusEventKind, Trace};
+use crate::report::Report;
+use crate::scheme::{self, AccessScheme};
+use crate::spec::{NodeId, Spec};
+use crate::stats::utilization::Piece;
+use crate::traffic::{self, Message, Source};
+use crate::units::Picos;
+
+/// What a frame is for.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum FrameKind {
+    Data,
+    Poll,
+    EmptyReply,
+}
+
+impl FrameKind {
+    pub fn name(self) -> &'static str {
+        match self {
+            FrameKind::Data => "data",
+            FrameKind::Poll => "poll",
+            FrameKind::EmptyReply => "empty-reply",
+        }
+    }
+}
+
+/// A frame shown at a node's receiver output.
+#[derive(Clone, Copy, Debug)]
+pub struct Reception {
+    pub kind: FrameKind,
+    pub from: NodeId,
+    /// The node whose receiver shows it.
+    pub at: NodeId,
+    pub corrupted: bool,
+    pub message: Option<Message>,
+    /// When the frame's last bit left the driver.
+    pub sent_end: Picos,
+}
+
+/// Events in the queue. Kept small and `Copy`: the queue never allocates per event.
+#[derive(Clone, Copy, Debug)]
+pub(crate) enum Event {
+    Arrival { source: u32 },
+    Timer { node: u32, tag: u64 },
+    Deliver { frame: u32, to: u32 },
+}
+
+/// One simulation run.
+#[derive(Debug)]
+pub struct Simulation {
+    world: World,
+    scheme: Box<dyn AccessScheme>,
+    sources: Vec<Source>,
+    started: bool,
+}
+
+impl Simulation {
+    pub fn new(spec: &Spec) -> Self {
+        Self::with_trace(spec, None)
+    }
+
+    /// A run that records bus events whose time lies in `window` (ps, inclusive).
+    pub fn with_trace(spec: &Spec, window: Option<(Picos, Picos)>) -> Self {
+        let trace = Trace::new(window.map(|(a, b)| (a.0, b.0)));
+        let world = World::new(spec.clone(), trace);
+        let scheme = scheme::build(spec);
+        let sources = traffic::sources(spec);
+        Simulation {
+            world,
+            scheme,
+            sources,
+            started: false,
+        }
+    }
+
+    pub fn now(&self) -> Picos {
+        self.world.now
+    }
+
+    pub fn spec(&self) -> &Spec {
+        &self.world.spec
+    }
+
+    /// Events processed so far.
+    pub fn events(&self) -> u64 {
+        self.world.events
+    }
+
+    /// Take the bus events recorded so far.
+    pub fn drain_trace(&mut self) -> Vec<BusEvent> {
+        std::mem::take(&mut self.world.trace.events)
+    }
+
+    fn start(&mut self) {
+        self.started = true;
+        let duration = self.world.spec.duration;
+        for (i, src) in self.sources.iter_mut().enumerate() {
+            let t = src.next_arrival(Picos::ZERO);
+            if t < duration {
+                self.world
+                    .queue
+                    .push(t, Event::Arrival { source: i as u32 });
+            }
+        }
+        self.scheme.start(&mut self.world);
+    }
+
+    /// Process every event before `until` (capped at the scenario duration).
+    pub fn run_until(&mut self, until: Picos) {
+        if !self.started {
+            self.start();
+        }
+        let until = until.min(self.world.spec.duration);
+        while let Some(t) = self.world.queue.peek_time() {
+            if t >= until {
+                break;
+            }
+            let (t, ev) = self.world.queue.pop().expect("peeked");
+            self.world.now = t;
+            self.world.events += 1;
+            match ev {
+                Event::Arrival { source } => self.on_arrival(source as usize),
+                Event::Timer { node, tag } => {
+                    self.scheme.on_timer(&mut self.world, node as usize, tag)
+                }
+                Event::Deliver { frame, to } => self.on_deliver(frame, to as usize),
+            }
+            let w = &mut self.world;
+            w.bus.process(&w.line, t.0, false, &mut w.trace);
+        }
+        if until > self.world.now {
+            self.world.now = until;
+        }
+    }
+
+    /// Run to the end and produce the report. `wall_s` is measured by the caller.
+    pub fn run(mut self) -> Report {
+        self.run_until(self.world.spec.duration);
+        self.finish()
+    }
+
+    /// End the run at the scenario duration and build the report.
+    pub fn finish(mut self) -> Report {
+        let end = self.world.spec.duration;
+        if self.world.now < end {
+            self.run_until(end);
+        }
+        // Frames still in flight are classified as they stand now.
+        let w = &mut self.world;
+        for i in 0..w.frames.len() {
+            let f = w.frames[i];
+            if f.remaining > 0 {
+                w.frames[i].remaining = 0;
+                add_frame_pieces(w, &f, f.corrupted_any);
+                w.bus.frame_resolved(f.occupancy);
+            }
+        }
+        w.bus.finish(&w.line, end.0, &mut w.trace);
+        let scheme = self.scheme.report(&self.world);
+        Report::build(&self.world, scheme)
+    }
+
+    fn on_arrival(&mut self, source: usize) {
+        let now = self.world.now;
+        let src = &mut self.sources[source];
+        let node = src.node;
+        let payload_bits = src.draw_payload();
+        let dest = src.dest(self.scheme.default_destination(node));
+        let msg = Message {
+            arrival: now.0,
+            payload_bits,
+            source: node,
+            dest,
+            flow: src.flow,
+        };
+        let next = src.next_arrival(now);
+        if next < self.world.spec.duration {
+            self.world.queue.push(
+                next,
+                Event::Arrival {
+                    source: source as u32,
+                },
+            );
+        }
+        let w = &mut self.world;
+        let counted = w.in_window(now);
+        if counted {
+            w.stats.frames.arrived += 1;
+        }
+        if w.queues[node].len() >= w.queue_limit[node] {
+            if counted {
+                w.stats.frames.dropped += 1;
+            }
+            return;
+        }
+        w.queues[node].push_back(msg);
+        self.scheme.on_message(&mut self.world, node);
+    }
+
+    fn on_deliver(&mut self, idx: u32, to: NodeId) {
+        let w = &mut self.world;
+        let f = w.frames[idx as usize];
+        let corrupted = w.bus.is_corrupted(&w.line, f.src, to, f.s, f.e);
+        let now = w.now;
+        let counted = w.in_window(now);
+        if counted {
+            if f.kind == FrameKind::Data {
+                let st = &mut w.stats;
+                st.frames.attempts += 1;
+                st.data_frames_sent += 1;
+                st.data_wire_ps += f.e - f.s;
+                if corrupted {
+                    st.frames.corrupted += 1;
+                } else if let Some(m) = f.message {
+                    st.frames.delivered += 1;
+                    st.payload_bits += m.payload_bits;
+                    st.carried_ps += f.e - f.s;
+                    let lat = now.0 - m.arrival;
+                    st.latency_all.record(lat);
+                    st.latency_node[m.source].record(lat);
+                }
+            } else {
+                w.stats.frames.control_frames += 1;
+                if corrupted {
+                    w.stats.frames.control_corrupted += 1;
+                }
+            }
+        }
+        if w.trace.enabled() {
+            w.trace.push(BusEvent {
+                t: f.e,
+                node: f.src,
+                kind: BusEventKind::FrameEnd {
+                    frame: f.kind.name(),
+                    to,
+                    corrupted,
+                },
+            });
+        }
+        let rec = &mut w.frames[idx as usize];
+        rec.remaining -= 1;
+        rec.corrupted_any |= corrupted;
+        let done = rec.remaining == 0;
+        let any = rec.corrupted_any;
+        if done {
+            add_frame_pieces(w, &f, any);
+            w.bus.frame_resolved(f.occupancy);
+            w.free_frames.push(idx);
+        }
+        let rx = Reception {
+            kind: f.kind,
+            from: f.src,
+            at: to,
+            corrupted,
+            message: f.message,
+            sent_end: Picos(f.e),
+        };
+        self.scheme.on_receive(&mut self.world, &rx);
+    }
+}
+
+/// Utilization pieces of a resolved frame.
+fn add_frame_pieces(w: &mut World, f: &world::FrameRec, corrupted: bool) {
+    if corrupted {
+        w.bus.util.add(Piece::Wasted, f.s, f.e);
+        return;
+    }
+    match (f.kind, f.message) {
+        (FrameKind::Data, Some(m)) if f.data_bits > 0 => {
+            // Overhead and payload share the frame in proportion to their data bits.
+            let wire = f.e - f.s;
+            let overhead = ((wire as u128 * u128::from(f.data_bits - m.payload_bits))
+                / u128::from(f.data_bits)) as u64;
+            w.bus.util.add(Piece::Overhead, f.s, f.s + overhead);
+            w.bus.util.add(Piece::Payload, f.s + overhead, f.e);
+        }
+        _ => w.bus.util.add(Piece::Overhead, f.s, f.e),
+    }
+}

@@ -1,0 +1,342 @@
+//! The world a scheme acts on: clock, queues, transmissions, timers, streams.
+
+use std::collections::VecDeque;
+
+use super::queue::EventQueue;
+use super::rng::Stream;
+use super::{Event, FrameKind};
+use crate::bus::trace::{BusEvent, BusEventKind, Trace};
+use crate::bus::Bus;
+use crate::line::LineModel;
+use crate::spec::{NodeId, Spec};
+use crate::stats::Stats;
+use crate::traffic::Message;
+use crate::units::Picos;
+
+/// Who a frame is addressed to.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Dest {
+    Node(NodeId),
+    /// Every node except the sender.
+    All,
+}
+
+/// A frame a scheme asks to send.
+#[derive(Clone, Copy, Debug)]
+pub struct FrameOut {
+    pub kind: FrameKind,
+    pub dest: Dest,
+    /// Total data bits (before line coding).
+    pub data_bits: u64,
+    /// The message carried, for data frames.
+    pub message: Option<Message>,
+}
+
+impl FrameOut {
+    /// A data frame carrying `msg` to its destination.
+    pub fn data(msg: Message, overhead_bits: u64) -> Self {
+        FrameOut {
+            kind: FrameKind::Data,
+            dest: Dest::Node(msg.dest),
+            data_bits: overhead_bits + msg.payload_bits,
+            message: Some(msg),
+        }
+    }
+
+    /// A control frame of `data_bits` total data bits.
+    pub fn control(kind: FrameKind, dest: Dest, data_bits: u64) -> Self {
+        FrameOut {
+            kind,
+            dest,
+            data_bits,
+            message: None,
+        }
+    }
+}
+
+/// Times of a transmission the engine has scheduled.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct TxTimes {
+    /// Enable asserted.
+    pub enable: Picos,
+    /// First bit on the wire (`enable + enable_time`).
+    pub first_bit: Picos,
+    /// Enable released: end of the last bit.
+    pub release: Picos,
+    /// Output high-impedance: `release + disable_time`.
+    pub off: Picos,
+    /// Bus id of the occupancy.
+    pub occupancy: u64,
+}
+
+/// A frame in flight.
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct FrameRec {
+    pub occupancy: u64,
+    pub src: NodeId,
+    pub kind: FrameKind,
+    /// First and last bit at the driver (ps).
+    pub s: u64,
+    pub e: u64,
+    pub data_bits: u64,
+    pub message: Option<Message>,
+    /// Deliveries still to happen.
+    pub remaining: u32,
+    pub corrupted_any: bool,
+}
+
+/// A transmission being assembled.
+#[derive(Clone, Copy, Debug)]
+struct TxBuild {
+    node: NodeId,
+    enable: u64,
+    cursor: u64,
+    frames: u32,
+    occupancy: u64,
+}
+
+/// Everything but the scheme: the state a scheme reads and acts through.
+#[derive(Debug)]
+pub struct World {
+    pub(crate) spec: Spec,
+    pub(crate) line: LineModel,
+    pub(crate) now: Picos,
+    pub(crate) queue: EventQueue<Event>,
+    pub(crate) bus: Bus,
+    pub(crate) queues: Vec<VecDeque<Message>>,
+    pub(crate) queue_limit: Vec<usize>,
+    pub(crate) access_rng: Vec<Stream>,
+    pub(crate) frames: Vec<FrameRec>,
+    pub(crate) free_frames: Vec<u32>,
+    pub(crate) stats: Stats,
+    pub(crate) trace: Trace,
+    pub(crate) events: u64,
+    tx: Option<TxBuild>,
+}
+
+impl World {
+    pub(crate) fn new(spec: Spec, trace: Trace) -> Self {
+        let line = LineModel::new(&spec);
+        let bus = Bus::new(&spec, &line);
+        let n = spec.nodes.len();
+        let access_rng = spec
+            .nodes
+            .iter()
+            .map(|node| super::rng::stream(spec.seed, &node.name, "access"))
+            .collect();
+        let queue_limit = spec
+            .nodes
+            .iter()
+            .map(|n| n.queue_limit.unwrap_or(usize::MAX))
+            .collect();
+        World {
+            line,
+            bus,
+            now: Picos::ZERO,
+            queue: EventQueue::with_capacity(256),
+            queues: (0..n).map(|_| VecDeque::with_capacity(16)).collect(),
+            queue_limit,
+            access_rng,
+            frames: Vec::with_capacity(64),
+            free_frames: Vec::with_capacity(64),
+            stats: Stats::new(n),
+            trace,
+            events: 0,
+            tx: None,
+            spec,
+        }
+    }
+
+    pub fn now(&self) -> Picos {
+        self.now
+    }
+
+    pub fn spec(&self) -> &Spec {
+        &self.spec
+    }
+
+    pub fn line(&self) -> &LineModel {
+        &self.line
+    }
+
+    /// Is `t` inside the measured window?
+    pub fn in_window(&self, t: Picos) -> bool {
+        t >= self.spec.warmup && t < self.spec.duration
+    }
+
+    pub fn queue_len(&self, node: NodeId) -> usize {
+        self.queues[node].len()
+    }
+
+    /// Take the oldest message queued at `node`.
+    pub fn pop_message(&mut self, node: NodeId) -> Option<Message> {
+        self.queues[node].pop_front()
+    }
+
+    /// Put a message back at the head of its queue (for retransmission).
+    pub fn push_front(&mut self, node: NodeId, msg: Message) {
+        self.queues[node].push_front(msg);
+    }
+
+    /// Count a message given up by the scheme.
+    pub fn count_drop(&mut self) {
+        if self.in_window(self.now) {
+            self.stats.frames.dropped += 1;
+        }
+    }
+
+    /// Count one channel access attempt (for `throughput.offered`).
+    pub fn count_access_attempt(&mut self) {
+        if self.in_window(self.now) {
+            self.stats.frames.access_attempts += 1;
+        }
+    }
+
+    /// The node's access-scheme random stream.
+    pub fn rng(&mut self, node: NodeId) -> &mut Stream {
+        &mut self.access_rng[node]
+    }
+
+    /// When the receiver output of `to` shows what driver `from` put on the line at `t`.
+    pub fn seen_at(&self, from: NodeId, to: NodeId, t: Picos) -> Picos {
+        t + self.line.delay(from, to) + self.spec.nodes[to].transceiver.receiver_delay
+    }
+
+    /// Does the receiver of `node` show another driver on the line now?
+    pub fn carrier_sensed(&self, node: NodeId) -> bool {
+        self.bus.sensed_busy(&self.line, node, self.now.0, true)
+    }
+
+    /// Fire `on_timer(node, tag)` at `at` (not in the past).
+    pub fn set_timer(&mut self, node: NodeId, at: Picos, tag: u64) {
+        debug_assert!(at >= self.now, "timer in the past");
+        self.queue.push(
+            at.max(self.now),
+            Event::Timer {
+                node: node as u32,
+                tag,
+            },
+        );
+    }
+
+    /// Start assembling a transmission whose enable is asserted at `at` (not in the past).
+    pub fn begin_tx(&mut self, node: NodeId, at: Picos) {
+        assert!(
+            self.tx.is_none(),
+            "begin_tx while another transmission is open"
+        );
+        let at = at.max(self.now).0;
+        let enable_time = self.spec.nodes[node].transceiver.enable_time.0;
+        self.tx = Some(TxBuild {
+            node,
+            enable: at,
+            cursor: at + enable_time,
+            frames: 0,
+            occupancy: self.bus.reserve_id(),
+        });
+    }
+
+    /// Append a frame to the open transmission, after the interframe gap if
+    /// it is not the first.
+    pub fn add_frame(&mut self, f: FrameOut) {
+        let mut tx = self.tx.expect("add_frame without begin_tx");
+        if tx.frames > 0 {
+            tx.cursor += self.spec.frame.interframe_gap.0;
+        }
+        let line_bits = self.spec.frame.encoding.line_bits(f.data_bits);
+        let s = tx.cursor;
+        let e = s + self.spec.frame.duration(line_bits).0;
+        tx.cursor = e;
+        tx.frames += 1;
+        let remaining = match f.dest {
+            Dest::Node(_) => 1,
+            Dest::All => self.spec.nodes.len() as u32 - 1,
+        };
+        let rec = FrameRec {
+            occupancy: tx.occupancy,
+            src: tx.node,
+            kind: f.kind,
+            s,
+            e,
+            data_bits: f.data_bits,
+            message: f.message,
+            remaining,
+            corrupted_any: false,
+        };
+        let idx = match self.free_frames.pop() {
+            Some(i) => {
+                self.frames[i as usize] = rec;
+                i
+            }
+            None => {
+                self.frames.push(rec);
+                (self.frames.len() - 1) as u32
+            }
+        };
+        let deliver = |to: NodeId, q: &mut EventQueue<Event>| {
+            let t = e
+                + self.line.delay_ps(tx.node, to)
+                + self.spec.nodes[to].transceiver.receiver_delay.0;
+            q.push(
+                Picos(t),
+                Event::Deliver {
+                    frame: idx,
+                    to: to as u32,
+                },
+            );
+        };
+        match f.dest {
+            Dest::Node(to) => deliver(to, &mut self.queue),
+            Dest::All => {
+                for to in 0..self.spec.nodes.len() {
+                    if to != tx.node {
+                        deliver(to, &mut self.queue);
+                    }
+                }
+            }
+        }
+        if self.trace.enabled() {
+            let to = match f.dest {
+                Dest::Node(n) => n,
+                Dest::All => tx.node,
+            };
+            self.trace.push(BusEvent {
+                t: s,
+                node: tx.node,
+                kind: BusEventKind::FrameStart {
+                    frame: f.kind.name(),
+                    to,
+                },
+            });
+        }
+        self.tx = Some(tx);
+    }
+
+    /// Close the open transmission: the enable is released at the end of the
+    /// last bit, and the output turns off `disable_time` later.
+    pub fn finish_tx(&mut self) -> TxTimes {
+        let tx = self.tx.take().expect("finish_tx without begin_tx");
+        let disable = self.spec.nodes[tx.node].transceiver.disable_time.0;
+        let first_bit = tx.enable + self.spec.nodes[tx.node].transceiver.enable_time.0;
+        let release = tx.cursor;
+        let off = release + disable;
+        self.bus
+            .insert(tx.occupancy, tx.node, tx.enable, release, off, tx.frames);
+        TxTimes {
+            enable: Picos(tx.enable),
+            first_bit: Picos(first_bit),
+            release: Picos(release),
+            off: Picos(off),
+            occupancy: tx.occupancy,
+        }
+    }
+
+    /// Convenience: one transmission of the given frames.
+    pub fn transmit(&mut self, node: NodeId, at: Picos, frames: &[FrameOut]) -> TxTimes {
+        self.begin_tx(node, at);
+        for f in frames {
+            self.add_frame(*f);
+        }
+        self.finish_tx()
+    }
+}

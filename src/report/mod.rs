@@ -1,0 +1,335 @@
+//! The run report: plain data that every output format renders.
+//!
+//! All figures are SI base units (seconds, bit/s, metres, ohms, volts) or
+//! plain counts and fractions. Only the `run` object depends on the machine;
+//! everything else is a pure function of the scenario and seed.
+
+pub mod json;
+pub mod text;
+
+use std::collections::BTreeMap;
+
+use serde::Serialize;
+
+use crate::engine::World;
+use crate::line::IdleState;
+use crate::scheme::SchemeReport;
+use crate::stats::LatencySummary;
+
+/// Version tag of the JSON report.
+pub const SCHEMA: &str = "halfwire-report/1";
+
+#[derive(Clone, Debug, Serialize)]
+pub struct Report {
+    pub schema: &'static str,
+    pub scenario: ScenarioId,
+    /// Length of the measured window (duration − warmup).
+    pub simulated_s: f64,
+    pub frames: Frames,
+    pub throughput: Throughput,
+    pub latency_s: Latency,
+    pub contention: Contention,
+    pub floating: Floating,
+    pub utilization: Utilization,
+    pub line: LineFigures,
+    pub scheme: SchemeReport,
+    pub warnings: Vec<Warning>,
+    pub run: RunInfo,
+}
+
+#[derive(Clone, Debug, Serialize)]
+pub struct ScenarioId {
+    pub name: String,
+    pub seed: u64,
+}
+
+#[derive(Clone, Copy, Debug, Serialize)]
+pub struct Frames {
+    pub attempts: u64,
+    pub delivered: u64,
+    pub corrupted: u64,
+    pub dropped: u64,
+    pub arrived: u64,
+    pub control: u64,
+    pub control_corrupted: u64,
+    /// Messages still queued when the run ended.
+    pub queued_at_end: u64,
+}
+
+#[derive(Clone, Copy, Debug, Serialize)]
+pub struct Throughput {
+    /// Payload bits delivered per second.
+    pub payload_bit_s: f64,
+    /// On-wire time of delivered data frames / simulated time.
+    pub carried: f64,
+    /// Channel access attempts × mean data-frame on-wire time / simulated time.
+    pub offered: f64,
+    pub access_attempts: u64,
+}
+
+#[derive(Clone, Debug, Serialize)]
+pub struct Latency {
+    pub all: LatencySummary,
+    /// Per source node (the node where the message was queued).
+    pub nodes: BTreeMap<String, LatencySummary>,
+}
+
+#[derive(Clone, Debug, Serialize)]
+pub struct ContentionItem {
+    pub at_s: f64,
+    pub nodes: [String; 2],
+    pub position_m: f64,
+    pub overlap_s: f64,
+}
+
+#[derive(Clone, Debug, Serialize)]
+pub struct Contention {
+    pub events: u64,
+    pub overlap_total_s: f64,
+    pub overlap_max_s: f64,
+    pub first: Vec<ContentionItem>,
+}
+
+#[derive(Clone, Debug, Serialize)]
+pub struct Floating {
+    /// Windows summed over every receiver that reads an idle line as undefined.
+    pub windows: u64,
+    pub total_s: f64,
+    pub longest_s: f64,
+    /// The receivers counted (idle state undefined).
+    pub hazard_receivers: Vec<String>,
+}
+
+#[derive(Clone, Copy, Debug, Serialize)]
+pub struct Utilization {
+    pub payload: f64,
+    pub overhead: f64,
+    pub gaps: f64,
+    pub idle: f64,
+    pub wasted: f64,
+}
+
+#[derive(Clone, Debug, Serialize)]
+pub struct LineFigures {
+    pub loaded_impedance_ohm: f64,
+    pub loaded_delay_s_per_m: f64,
+    pub end_to_end_delay_s: f64,
+    pub load_ratio: f64,
+    pub worst_amplitude_v: f64,
+    pub worst_amplitude_node: String,
+    /// Smallest receiver margin against the worst amplitude (V); negative fails.
+    pub worst_margin_v: f64,
+    pub worst_margin_node: String,
+    pub bit_time_s: f64,
+}
+
+#[derive(Clone, Debug, Serialize)]
+pub struct Warning {
+    pub code: &'static str,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub node: Option<String>,
+    pub message: String,
+}
+
+/// Machine-dependent figures, filled in by the caller that timed the run.
+#[derive(Clone, Copy, Debug, Default, Serialize)]
+pub struct RunInfo {
+    pub wall_s: f64,
+    pub events: u64,
+    pub events_per_s: f64,
+}
+
+impl Report {
+    pub(crate) fn build(w: &World, scheme: SchemeReport) -> Report {
+        let spec = &w.spec;
+        let line = &w.line;
+        let measured = spec.measured().as_secs_f64();
+        let per_s = |x: f64| if measured > 0.0 { x / measured } else { 0.0 };
+        let st = &w.stats;
+        let frames = Frames {
+            attempts: st.frames.attempts,
+            delivered: st.frames.delivered,
+            corrupted: st.frames.corrupted,
+            dropped: st.frames.dropped,
+            arrived: st.frames.arrived,
+            control: st.frames.control_frames,
+            control_corrupted: st.frames.control_corrupted,
+            queued_at_end: w.queues.iter().map(|q| q.len() as u64).sum(),
+        };
+        let mean_wire_s = if st.data_frames_sent > 0 {
+            st.data_wire_ps as f64 / st.data_frames_sent as f64 * 1e-12
+        } else {
+            0.0
+        };
+        let throughput = Throughput {
+            payload_bit_s: per_s(st.payload_bits as f64),
+            carried: per_s(st.carried_ps as f64 * 1e-12),
+            offered: per_s(st.frames.access_attempts as f64 * mean_wire_s),
+            access_attempts: st.frames.access_attempts,
+        };
+        let nodes = spec
+            .nodes
+            .iter()
+            .enumerate()
+            .filter(|(_, n)| !n.traffic.is_empty())
+            .map(|(i, n)| (n.name.clone(), st.latency_node[i].summary()))
+            .collect();
+        let latency = Latency {
+            all: st.latency_all.summary(),
+            nodes,
+        };
+        let c = &w.bus.contention;
+        let contention = Contention {
+            events: c.events,
+            overlap_total_s: c.overlap_total_ps as f64 * 1e-12,
+            overlap_max_s: c.overlap_max_ps as f64 * 1e-12,
+            first: c
+                .listed
+                .iter()
+                .map(|e| ContentionItem {
+                    at_s: e.at.as_secs_f64(),
+                    nodes: [
+                        spec.nodes[e.first].name.clone(),
+                        spec.nodes[e.second].name.clone(),
+                    ],
+                    position_m: e.position_m,
+                    overlap_s: e.overlap.as_secs_f64(),
+                })
+                .collect(),
+        };
+        let hazard: Vec<String> = spec
+            .nodes
+            .iter()
+            .filter(|n| n.transceiver.receiver.idle_state() == IdleState::Undefined)
+            .map(|n| n.name.clone())
+            .collect();
+        let ft = w.bus.floating.totals;
+        let floating = Floating {
+            windows: ft.windows,
+            total_s: ft.total_ps as f64 * 1e-12,
+            longest_s: ft.longest_ps as f64 * 1e-12,
+            hazard_receivers: hazard,
+        };
+        let u = w.bus.util.totals;
+        let whole = u.sum().max(1) as f64;
+        let utilization = Utilization {
+            payload: u.payload as f64 / whole,
+            overhead: u.overhead as f64 / whole,
+            gaps: u.gaps as f64 / whole,
+            idle: u.idle as f64 / whole,
+            wasted: u.wasted as f64 / whole,
+        };
+        let (amp_node, amp) = line.worst_amplitude();
+        let (margin_node, margin) = spec
+            .nodes
+            .iter()
+            .enumerate()
+            .map(|(i, n)| (i, n.transceiver.receiver.margin_v(amp)))
+            .fold(
+                (0, f64::INFINITY),
+                |acc, x| if x.1 < acc.1 { x } else { acc },
+            );
+        let line_fig = LineFigures {
+            loaded_impedance_ohm: line.loaded.impedance_ohm,
+            loaded_delay_s_per_m: line.loaded.delay_s_per_m,
+            end_to_end_delay_s: line.end_to_end.as_secs_f64(),
+            load_ratio: line.loaded.load_ratio(),
+            worst_amplitude_v: amp,
+            worst_amplitude_node: spec.nodes[amp_node].name.clone(),
+            worst_margin_v: margin,
+            worst_margin_node: spec.nodes[margin_node].name.clone(),
+            bit_time_s: 1.0 / spec.frame.bit_rate,
+        };
+        let warnings = warnings(w, amp, &contention, &floating, &frames);
+        Report {
+            schema: SCHEMA,
+            scenario: ScenarioId {
+                name: spec.name.clone(),
+                seed: spec.seed,
+            },
+            simulated_s: measured,
+            frames,
+            throughput,
+            latency_s: latency,
+            contention,
+            floating,
+            utilization,
+            line: line_fig,
+            scheme,
+            warnings,
+            run: RunInfo {
+                events: w.events,
+                ..RunInfo::default()
+            },
+        }
+    }
+
+    /// Fill the machine-dependent `run` object.
+    pub fn set_wall_time(&mut self, wall_s: f64) {
+        self.run.wall_s = wall_s;
+        self.run.events_per_s = if wall_s > 0.0 {
+            self.run.events as f64 / wall_s
+        } else {
+            0.0
+        };
+    }
+}
+
+fn warnings(w: &World, amp: f64, c: &Contention, f: &Floating, frames: &Frames) -> Vec<Warning> {
+    let mut out = Vec::new();
+    for n in &w.spec.nodes {
+        let margin = n.transceiver.receiver.margin_v(amp);
+        if margin < 0.0 {
+            out.push(Warning {
+                code: "amplitude-below-threshold",
+                node: Some(n.name.clone()),
+                message: format!(
+                    "the weakest driver's {} swing is {} short of this {} receiver's threshold",
+                    crate::units::format_si(amp, "V"),
+                    crate::units::format_si(-margin, "V"),
+                    n.transceiver.receiver.name
+                ),
+            });
+        }
+    }
+    if c.events > 0 {
+        out.push(Warning {
+            code: "contention",
+            node: None,
+            message: format!(
+                "{} contention events: two drivers on the line at once (worst overlap {})",
+                c.events,
+                crate::units::format_seconds(c.overlap_max_s)
+            ),
+        });
+    }
+    if f.windows > 0 {
+        out.push(Warning {
+            code: "floating-line",
+            node: None,
+            message: format!(
+                "{} floating-line windows at receivers without failsafe (longest {}); they may see phantom bits",
+                f.windows,
+                crate::units::format_seconds(f.longest_s)
+            ),
+        });
+    }
+    if frames.dropped > 0 {
+        out.push(Warning {
+            code: "drops",
+            node: None,
+            message: format!("{} messages dropped at full queues", frames.dropped),
+        });
+    }
+    if frames.arrived > 0 && frames.queued_at_end > frames.arrived / 10 + 100 {
+        out.push(Warning {
+            code: "backlog",
+            node: None,
+            message: format!(
+                "{} messages still queued at the end: the offered load may exceed what the scheme carries",
+                frames.queued_at_end
+            ),
+        });
+    }
+    out
+}

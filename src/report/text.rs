@@ -1,0 +1,218 @@
+//! The terminal summary.
+
+use std::fmt::Write;
+
+use console::Style;
+
+use super::Report;
+use crate::stats::LatencySummary;
+use crate::units::{format_seconds, format_si};
+
+fn pct(x: f64) -> String {
+    format!("{:.2} %", x * 100.0)
+}
+
+struct Styles {
+    head: Style,
+    good: Style,
+    bad: Style,
+    dim: Style,
+}
+
+impl Styles {
+    fn new(color: bool) -> Self {
+        let s = |st: Style| st.force_styling(color);
+        Styles {
+            head: s(Style::new().bold()),
+            good: s(Style::new().green()),
+            bad: s(Style::new().red().bold()),
+            dim: s(Style::new().dim()),
+        }
+    }
+}
+
+fn latency_row(out: &mut String, label: &str, l: &LatencySummary) {
+    let _ = writeln!(
+        out,
+        "  {:<14} {:>8} {:>11} {:>11} {:>11} {:>11} {:>11} {:>11}",
+        label,
+        l.count,
+        format_seconds(l.mean),
+        format_seconds(l.p50),
+        format_seconds(l.p90),
+        format_seconds(l.p99),
+        format_seconds(l.p999),
+        format_seconds(l.max)
+    );
+}
+
+/// Render the report for a terminal. `color` turns ANSI styling on.
+pub fn render(r: &Report, color: bool) -> String {
+    let st = Styles::new(color);
+    let mut o = String::new();
+    let _ = writeln!(
+        o,
+        "{} {}  (seed {}, {} measured, {} scheme)",
+        st.head.apply_to("halfwire run:"),
+        r.scenario.name,
+        r.scenario.seed,
+        format_seconds(r.simulated_s),
+        r.scheme.name
+    );
+    let _ = writeln!(o);
+    let _ = writeln!(o, "{}", st.head.apply_to("Line"));
+    let l = &r.line;
+    let _ = writeln!(
+        o,
+        "  loaded impedance {}   loaded delay {}/m   end to end {}   load ratio {:.3}",
+        format_si(l.loaded_impedance_ohm, "Ω"),
+        format_seconds(l.loaded_delay_s_per_m),
+        format_seconds(l.end_to_end_delay_s),
+        l.load_ratio
+    );
+    let margin = if l.worst_margin_v >= 0.0 {
+        st.good.apply_to(format_si(l.worst_margin_v, "V"))
+    } else {
+        st.bad.apply_to(format_si(l.worst_margin_v, "V"))
+    };
+    let _ = writeln!(
+        o,
+        "  worst amplitude {} ({})   worst receiver margin {} ({})   bit time {}",
+        format_si(l.worst_amplitude_v, "V"),
+        l.worst_amplitude_node,
+        margin,
+        l.worst_margin_node,
+        format_seconds(l.bit_time_s)
+    );
+    let _ = writeln!(o);
+    let _ = writeln!(o, "{}", st.head.apply_to("Throughput"));
+    let t = &r.throughput;
+    let _ = writeln!(
+        o,
+        "  payload {}   carried {}   offered {}",
+        format_si(t.payload_bit_s, "bit/s"),
+        pct(t.carried),
+        pct(t.offered)
+    );
+    let f = &r.frames;
+    let _ = writeln!(
+        o,
+        "  data frames: {} sent, {} delivered, {} corrupted; {} messages dropped, {} queued at end",
+        f.attempts, f.delivered, f.corrupted, f.dropped, f.queued_at_end
+    );
+    let u = &r.utilization;
+    let _ = writeln!(
+        o,
+        "  line time: payload {}  overhead {}  gaps {}  idle {}  wasted {}",
+        pct(u.payload),
+        pct(u.overhead),
+        pct(u.gaps),
+        pct(u.idle),
+        pct(u.wasted)
+    );
+    let _ = writeln!(o);
+    let _ = writeln!(o, "{}", st.head.apply_to("Latency (arrival to delivery)"));
+    let _ = writeln!(
+        o,
+        "{}",
+        st.dim.apply_to(format!(
+            "  {:<14} {:>8} {:>11} {:>11} {:>11} {:>11} {:>11} {:>11}",
+            "source", "count", "mean", "p50", "p90", "p99", "p99.9", "max"
+        ))
+    );
+    latency_row(&mut o, "all", &r.latency_s.all);
+    if r.latency_s.nodes.len() <= 40 {
+        for (name, l) in &r.latency_s.nodes {
+            latency_row(&mut o, name, l);
+        }
+    } else {
+        let _ = writeln!(
+            o,
+            "  ({} sources; per-node figures in --format json)",
+            r.latency_s.nodes.len()
+        );
+    }
+    let _ = writeln!(o);
+    let _ = writeln!(o, "{}", st.head.apply_to("Hand-overs"));
+    let c = &r.contention;
+    let cline = format!(
+        "  contention: {} events, total overlap {}, worst {}",
+        c.events,
+        format_seconds(c.overlap_total_s),
+        format_seconds(c.overlap_max_s)
+    );
+    let _ = writeln!(
+        o,
+        "{}",
+        if c.events > 0 {
+            st.bad.apply_to(cline)
+        } else {
+            st.good.apply_to(cline)
+        }
+    );
+    for e in &c.first {
+        let _ = writeln!(
+            o,
+            "    at {}: {} and {} overlap {} at {}",
+            format_seconds(e.at_s),
+            e.nodes[0],
+            e.nodes[1],
+            format_seconds(e.overlap_s),
+            format_si(e.position_m, "m")
+        );
+    }
+    let fl = &r.floating;
+    if fl.hazard_receivers.is_empty() {
+        let _ = writeln!(
+            o,
+            "  floating line: no receiver reads an idle line as undefined"
+        );
+    } else {
+        let _ = writeln!(
+            o,
+            "  floating line: {} windows at {} receivers without failsafe, total {}, longest {}",
+            fl.windows,
+            fl.hazard_receivers.len(),
+            format_seconds(fl.total_s),
+            format_seconds(fl.longest_s)
+        );
+    }
+    let _ = writeln!(o);
+    let _ = writeln!(
+        o,
+        "{}",
+        st.head.apply_to(format!("Scheme: {}", r.scheme.name))
+    );
+    for (k, v) in &r.scheme.fields {
+        let shown = match *v {
+            crate::scheme::SchemeValue::Seconds(x) => format_seconds(x),
+            crate::scheme::SchemeValue::Count(n) => n.to_string(),
+            crate::scheme::SchemeValue::Fraction(x) => pct(x),
+        };
+        let _ = writeln!(o, "  {:<22} {}", k, shown);
+    }
+    if !r.warnings.is_empty() {
+        let _ = writeln!(o);
+        let _ = writeln!(o, "{}", st.bad.apply_to("Warnings"));
+        for w in &r.warnings {
+            let who = w
+                .node
+                .as_deref()
+                .map(|n| format!(" [{n}]"))
+                .unwrap_or_default();
+            let _ = writeln!(o, "  {}{}: {}", w.code, who, w.message);
+        }
+    }
+    let _ = writeln!(o);
+    let _ = writeln!(
+        o,
+        "{}",
+        st.dim.apply_to(format!(
+            "{} events in {:.3} s wall ({:.1} M events/s)",
+            r.run.events,
+            r.run.wall_s,
+            r.run.events_per_s / 1e6
+        ))
+    );
+    o
+}

@@ -1,0 +1,204 @@
+//! Raw scenario structs, exactly as written in the file.
+//!
+//! Every quantity stays a string with its span until validation, so an error
+//! can point at the value. Unknown keys are rejected here by serde.
+
+use std::fmt;
+
+use serde::de::{self, Deserializer, MapAccess, SeqAccess, Visitor};
+use serde::Deserialize;
+use toml::Spanned;
+
+pub type S = Spanned<String>;
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawScenario {
+    pub name: Option<S>,
+    pub seed: Option<Spanned<u64>>,
+    pub duration: S,
+    pub warmup: Option<S>,
+    pub line: Spanned<RawLine>,
+    pub transceiver: Option<RawTransceiver>,
+    pub frame: Spanned<RawFrame>,
+    pub access: Spanned<RawAccess>,
+    pub node: Option<Vec<Spanned<RawNode>>>,
+    pub nodes: Option<Spanned<RawNodeRow>>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawLine {
+    pub length: S,
+    pub impedance: S,
+    pub delay: Option<S>,
+    pub velocity_factor: Option<Spanned<f64>>,
+    pub termination: Option<S>,
+}
+
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawTransceiver {
+    pub drive_current: Option<S>,
+    pub enable_time: Option<S>,
+    pub disable_time: Option<S>,
+    pub receiver_delay: Option<S>,
+    pub load: Option<S>,
+    pub receiver: Option<S>,
+    pub thresholds: Option<Spanned<Vec<S>>>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawFrame {
+    pub bit_rate: S,
+    pub overhead_bits: Option<Spanned<u64>>,
+    pub encoding: Option<S>,
+    pub interframe_gap: Option<S>,
+}
+
+/// `[access]`: the keys of every scheme; validation rejects the ones that do
+/// not apply to the chosen scheme.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawAccess {
+    pub scheme: S,
+    pub master: Option<S>,
+    pub order: Option<Spanned<Vec<S>>>,
+    pub max_per_poll: Option<Spanned<u32>>,
+    pub request_bits: Option<Spanned<u64>>,
+    pub empty_reply_bits: Option<Spanned<u64>>,
+    pub turnaround: Option<S>,
+    pub response_latency: Option<Spanned<RawLatency>>,
+    pub reply_timeout: Option<S>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawNode {
+    pub name: S,
+    pub position: S,
+    pub traffic: Option<Spanned<OneOrMany<RawTraffic>>>,
+    pub turnaround: Option<S>,
+    pub transceiver: Option<RawTransceiver>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawNodeRow {
+    pub count: Spanned<u64>,
+    pub first: S,
+    pub spacing: S,
+    pub prefix: S,
+    pub traffic: Option<Spanned<OneOrMany<RawTraffic>>>,
+    pub turnaround: Option<S>,
+    pub transceiver: Option<RawTransceiver>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawTraffic {
+    pub pattern: S,
+    pub rate: Option<S>,
+    pub period: Option<S>,
+    pub phase: Option<S>,
+    pub jitter: Option<S>,
+    pub payload: Spanned<RawPayload>,
+    pub to: Option<S>,
+    pub queue_limit: Option<Spanned<u64>>,
+}
+
+/// `"64 B"` or `["16 B", "64 B"]`.
+#[derive(Debug)]
+pub enum RawPayload {
+    Fixed(String),
+    Range(Vec<S>),
+}
+
+/// `"20 ns"`, `{ min = "10 ns", max = "30 ns" }` or `{ mean = "20 ns", sd = "5 ns" }`.
+#[derive(Debug)]
+pub enum RawLatency {
+    Fixed(String),
+    Table(RawLatencyTable),
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawLatencyTable {
+    pub min: Option<S>,
+    pub max: Option<S>,
+    pub mean: Option<S>,
+    pub sd: Option<S>,
+}
+
+/// One table or an array of them. A single table gets an empty span here;
+/// validation substitutes the span of the whole value.
+#[derive(Debug)]
+pub struct OneOrMany<T>(pub Vec<Spanned<T>>);
+
+impl<'de, T: Deserialize<'de>> Deserialize<'de> for OneOrMany<T> {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        struct V<T>(std::marker::PhantomData<T>);
+        impl<'de, T: Deserialize<'de>> Visitor<'de> for V<T> {
+            type Value = OneOrMany<T>;
+            fn expecting(&self, f: &mut fmt::Formatter) -> fmt::Result {
+                f.write_str("a table or an array of tables")
+            }
+            fn visit_map<A: MapAccess<'de>>(self, map: A) -> Result<Self::Value, A::Error> {
+                let one = T::deserialize(de::value::MapAccessDeserializer::new(map))?;
+                Ok(OneOrMany(vec![Spanned::new(0..0, one)]))
+            }
+            fn visit_seq<A: SeqAccess<'de>>(self, mut seq: A) -> Result<Self::Value, A::Error> {
+                let mut out = Vec::new();
+                while let Some(x) = seq.next_element()? {
+                    out.push(x);
+                }
+                Ok(OneOrMany(out))
+            }
+        }
+        d.deserialize_any(V(std::marker::PhantomData))
+    }
+}
+
+impl<'de> Deserialize<'de> for RawPayload {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        struct V;
+        impl<'de> Visitor<'de> for V {
+            type Value = RawPayload;
+            fn expecting(&self, f: &mut fmt::Formatter) -> fmt::Result {
+                f.write_str("a size such as \"64 B\" or a range such as [\"16 B\", \"64 B\"]")
+            }
+            fn visit_str<E: de::Error>(self, v: &str) -> Result<Self::Value, E> {
+                Ok(RawPayload::Fixed(v.to_owned()))
+            }
+            fn visit_seq<A: SeqAccess<'de>>(self, mut seq: A) -> Result<Self::Value, A::Error> {
+                let mut out = Vec::new();
+                while let Some(x) = seq.next_element()? {
+                    out.push(x);
+                }
+                Ok(RawPayload::Range(out))
+            }
+        }
+        d.deserialize_any(V)
+    }
+}
+
+impl<'de> Deserialize<'de> for RawLatency {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        struct V;
+        impl<'de> Visitor<'de> for V {
+            type Value = RawLatency;
+            fn expecting(&self, f: &mut fmt::Formatter) -> fmt::Result {
+                f.write_str("a time such as \"20 ns\", or a table with min and max, or mean and sd")
+            }
+            fn visit_str<E: de::Error>(self, v: &str) -> Result<Self::Value, E> {
+                Ok(RawLatency::Fixed(v.to_owned()))
+            }
+            fn visit_map<A: MapAccess<'de>>(self, map: A) -> Result<Self::Value, A::Error> {
+                let t = RawLatencyTable::deserialize(de::value::MapAccessDeserializer::new(map))?;
+                Ok(RawLatency::Table(t))
+            }
+        }
+        d.deserialize_any(V)
+    }
+}

@@ -1,0 +1,792 @@
+//! Validation: raw scenario structs → typed [`Spec`].
+//!
+//! Every check names the key and points at the value. The first error stops
+//! validation; the message says what was expected.
+
+use std::collections::HashMap;
+use std::ops::Range;
+
+use super::error::{did_you_mean, ScenarioError};
+use super::raw::*;
+use crate::line::ReceiverClass;
+use crate::spec::*;
+use crate::units::{self, Dimension, Picos};
+use toml::Spanned;
+
+type R<T> = Result<T, ScenarioError>;
+
+/// Speed of light in vacuum (m/s), exact by the SI definition.
+const C_M_PER_S: f64 = 299_792_458.0;
+
+pub const SCHEMES: &[&str] = &["polling"];
+const ENCODINGS: &[&str] = &["nrz", "8b10b", "uart-8n1", "manchester"];
+const RECEIVERS: &[&str] = &["type1", "type2", "lvds", "tia485"];
+const PATTERNS: &[&str] = &["poisson", "periodic"];
+const TERMINATIONS: &[&str] = &["both-ends", "far-end", "none"];
+
+struct V<'a> {
+    file: &'a str,
+    src: &'a str,
+}
+
+impl<'a> V<'a> {
+    fn err(&self, span: Range<usize>, key: &str, msg: impl Into<String>) -> ScenarioError {
+        ScenarioError::at(self.file, self.src, span.start, key, msg)
+    }
+
+    fn qty(&self, v: &S, dim: Dimension, key: &str) -> R<f64> {
+        units::parse_quantity(v.get_ref(), dim).map_err(|e| self.err(v.span(), key, e.message))
+    }
+
+    fn positive(&self, v: &S, dim: Dimension, key: &str) -> R<f64> {
+        let x = self.qty(v, dim, key)?;
+        if x < 0.0 {
+            return Err(self.err(
+                v.span(),
+                key,
+                format!("negative {}: \"{}\"", noun(dim), v.get_ref()),
+            ));
+        }
+        if x == 0.0 {
+            return Err(self.err(
+                v.span(),
+                key,
+                format!("{} must be greater than zero", noun(dim)),
+            ));
+        }
+        Ok(x)
+    }
+
+    fn non_negative(&self, v: &S, dim: Dimension, key: &str) -> R<f64> {
+        let x = self.qty(v, dim, key)?;
+        if x < 0.0 {
+            return Err(self.err(
+                v.span(),
+                key,
+                format!("negative {}: \"{}\"", noun(dim), v.get_ref()),
+            ));
+        }
+        Ok(x)
+    }
+
+    fn time(&self, v: &S, key: &str) -> R<Picos> {
+        units::parse_time(v.get_ref()).map_err(|e| self.err(v.span(), key, e.message))
+    }
+
+    fn opt_time(&self, v: &Option<S>, key: &str, default: Picos) -> R<Picos> {
+        v.as_ref().map_or(Ok(default), |v| self.time(v, key))
+    }
+
+    fn choice<'c>(&self, v: &S, key: &str, allowed: &[&'c str]) -> R<&'c str> {
+        let s = v.get_ref().as_str();
+        if let Some(c) = allowed.iter().find(|c| **c == s) {
+            return Ok(c);
+        }
+        let list = allowed
+            .iter()
+            .map(|c| format!("\"{c}\""))
+            .collect::<Vec<_>>()
+            .join(", ");
+        let mut e = self.err(
+            v.span(),
+            key,
+            format!("unknown value \"{s}\"; expected one of {list}"),
+        );
+        if let Some(m) = did_you_mean(s, allowed.iter().copied()) {
+            e = e.with_hint(format!("did you mean \"{m}\"?"));
+        }
+        Err(e)
+    }
+}
+
+fn noun(dim: Dimension) -> &'static str {
+    match dim {
+        Dimension::Time => "time",
+        Dimension::Length => "length",
+        Dimension::Resistance => "resistance",
+        Dimension::Current => "current",
+        Dimension::Capacitance => "capacitance",
+        Dimension::Voltage => "voltage",
+        Dimension::BitRate => "bit rate",
+        Dimension::Rate => "rate",
+        Dimension::DataSize => "size",
+        Dimension::DelayPerLength => "delay per length",
+    }
+}
+
+/// Validate a parsed scenario. `file` names it in errors; `src` is its text.
+pub fn validate(raw: &RawScenario, file: &str, src: &str) -> R<Spec> {
+    let v = V { file, src };
+    let name = raw
+        .name
+        .as_ref()
+        .map(|n| n.get_ref().clone())
+        .unwrap_or_else(|| {
+            std::path::Path::new(file)
+                .file_stem()
+                .map(|s| s.to_string_lossy().into_owned())
+                .unwrap_or_else(|| "scenario".into())
+        });
+    let seed = raw.seed.as_ref().map(|s| *s.get_ref()).unwrap_or(1);
+    let duration = v.time(&raw.duration, "duration")?;
+    if duration == Picos::ZERO {
+        return Err(v.err(
+            raw.duration.span(),
+            "duration",
+            "duration must be greater than zero",
+        ));
+    }
+    let warmup = v.opt_time(&raw.warmup, "warmup", Picos::ZERO)?;
+    if warmup >= duration {
+        let span = raw.warmup.as_ref().map(|w| w.span()).unwrap_or(0..0);
+        return Err(v.err(
+            span,
+            "warmup",
+            format!("warmup ({warmup}) must be shorter than duration ({duration})"),
+        ));
+    }
+    let line = validate_line(&v, raw.line.get_ref())?;
+    let frame = validate_frame(&v, raw.frame.get_ref())?;
+    let nodes = validate_nodes(&v, raw, &line)?;
+    let access = validate_access(&v, raw.access.get_ref(), raw.access.span(), &nodes, raw)?;
+    Ok(Spec {
+        name,
+        seed,
+        duration,
+        warmup,
+        line,
+        frame,
+        nodes,
+        access,
+    })
+}
+
+fn validate_line(v: &V, l: &RawLine) -> R<LineSpec> {
+    let length_m = v.positive(&l.length, Dimension::Length, "line.length")?;
+    let impedance_ohm = v.positive(&l.impedance, Dimension::Resistance, "line.impedance")?;
+    let delay_s_per_m = match (&l.delay, &l.velocity_factor) {
+        (Some(d), None) => v.positive(d, Dimension::DelayPerLength, "line.delay")?,
+        (None, Some(vf)) => {
+            let f = *vf.get_ref();
+            if !(f > 0.0 && f <= 1.0) {
+                return Err(v.err(
+                    vf.span(),
+                    "line.velocity_factor",
+                    format!("velocity factor {f} must lie in (0, 1]"),
+                ));
+            }
+            1.0 / (f * C_M_PER_S)
+        }
+        (Some(d), Some(_)) => {
+            return Err(v.err(
+                d.span(),
+                "line.delay",
+                "give line.delay or line.velocity_factor, not both",
+            ))
+        }
+        (None, None) => {
+            return Err(v.err(
+                0..0,
+                "line",
+                "the line needs a delay (e.g. delay = \"5 ns/m\") or a velocity_factor",
+            ))
+        }
+    };
+    let termination = match &l.termination {
+        None => Termination::BothEnds {
+            near_ohm: None,
+            far_ohm: None,
+        },
+        Some(t) => {
+            let s = t.get_ref().trim();
+            match s {
+                "both-ends" => Termination::BothEnds {
+                    near_ohm: None,
+                    far_ohm: None,
+                },
+                "far-end" => Termination::FarEnd { far_ohm: None },
+                "none" => Termination::Unterminated,
+                _ if s.starts_with(|c: char| c.is_ascii_digit() || c == '-' || c == '.') => {
+                    let r = v.positive(t, Dimension::Resistance, "line.termination")?;
+                    Termination::BothEnds {
+                        near_ohm: Some(r),
+                        far_ohm: Some(r),
+                    }
+                }
+                _ => {
+                    v.choice(t, "line.termination", TERMINATIONS)?;
+                    unreachable!()
+                }
+            }
+        }
+    };
+    Ok(LineSpec {
+        length_m,
+        impedance_ohm,
+        delay_s_per_m,
+        termination,
+    })
+}
+
+fn validate_frame(v: &V, f: &RawFrame) -> R<FrameFormat> {
+    let bit_rate = v.positive(&f.bit_rate, Dimension::BitRate, "frame.bit_rate")?;
+    let encoding = match &f.encoding {
+        None => Encoding::Nrz,
+        Some(e) => match v.choice(e, "frame.encoding", ENCODINGS)? {
+            "nrz" => Encoding::Nrz,
+            "8b10b" => Encoding::B8b10b,
+            "uart-8n1" => Encoding::Uart8n1,
+            _ => Encoding::Manchester,
+        },
+    };
+    Ok(FrameFormat {
+        bit_rate,
+        overhead_bits: f.overhead_bits.as_ref().map(|o| *o.get_ref()).unwrap_or(0),
+        encoding,
+        interframe_gap: v.opt_time(&f.interframe_gap, "frame.interframe_gap", Picos::ZERO)?,
+    })
+}
+
+/// A node before its traffic destinations are resolved.
+struct Pending<'r> {
+    name: String,
+    name_span: Range<usize>,
+    key: String,
+    position_m: f64,
+    transceiver: Transceiver,
+    traffic: Option<&'r Spanned<OneOrMany<RawTraffic>>>,
+    turnaround: Option<Picos>,
+}
+
+fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec) -> R<Vec<NodeSpec>> {
+    let defaults = raw.transceiver.as_ref();
+    let empty = RawTransceiver::default();
+    let defaults = defaults.unwrap_or(&empty);
+    let mut pending: Vec<Pending> = Vec::new();
+    let check_pos = |x: f64, span: Range<usize>, key: &str| -> R<()> {
+        if x < 0.0 || x > line.length_m * (1.0 + 1e-12) {
+            return Err(v.err(
+                span,
+                key,
+                format!(
+                    "position {} lies outside the line (0 m to {})",
+                    units::format_si(x, "m"),
+                    units::format_si(line.length_m, "m")
+                ),
+            ));
+        }
+        Ok(())
+    };
+    for (i, n) in raw.node.iter().flatten().enumerate() {
+        let n = n.get_ref();
+        let key = format!("node[{i}]");
+        let position_m = v.qty(&n.position, Dimension::Length, &format!("{key}.position"))?;
+        check_pos(position_m, n.position.span(), &format!("{key}.position"))?;
+        let name = n.name.get_ref().clone();
+        if name.trim().is_empty() {
+            return Err(v.err(
+                n.name.span(),
+                &format!("{key}.name"),
+                "a node name must not be empty",
+            ));
+        }
+        let transceiver = merge_transceiver(v, defaults, n.transceiver.as_ref(), &key, &name)?;
+        let turnaround = n
+            .turnaround
+            .as_ref()
+            .map(|t| v.time(t, &format!("{key}.turnaround")))
+            .transpose()?;
+        pending.push(Pending {
+            name,
+            name_span: n.name.span(),
+            key,
+            position_m,
+            transceiver,
+            traffic: n.traffic.as_ref(),
+            turnaround,
+        });
+    }
+    if let Some(row) = &raw.nodes {
+        let r = row.get_ref();
+        let count = *r.count.get_ref();
+        if count == 0 {
+            return Err(v.err(
+                r.count.span(),
+                "nodes.count",
+                "nodes.count must be at least 1",
+            ));
+        }
+        if count > 4096 {
+            return Err(v.err(
+                r.count.span(),
+                "nodes.count",
+                "at most 4096 generated nodes are supported",
+            ));
+        }
+        let first = v.qty(&r.first, Dimension::Length, "nodes.first")?;
+        let spacing = v.non_negative(&r.spacing, Dimension::Length, "nodes.spacing")?;
+        let width = count.to_string().len().max(2);
+        let turnaround = r
+            .turnaround
+            .as_ref()
+            .map(|t| v.time(t, "nodes.turnaround"))
+            .transpose()?;
+        for k in 0..count {
+            let name = format!("{}{:0width$}", r.prefix.get_ref(), k + 1);
+            let position_m = first + spacing * k as f64;
+            if position_m < 0.0 || position_m > line.length_m * (1.0 + 1e-12) {
+                let span = if k == 0 {
+                    r.first.span()
+                } else {
+                    r.spacing.span()
+                };
+                return Err(v.err(
+                    span,
+                    "nodes",
+                    format!(
+                        "generated node {name} at {} lies outside the line (0 m to {})",
+                        units::format_si(position_m, "m"),
+                        units::format_si(line.length_m, "m")
+                    ),
+                ));
+            }
+            let transceiver =
+                merge_transceiver(v, defaults, r.transceiver.as_ref(), "nodes", &name)?;
+            pending.push(Pending {
+                name,
+                name_span: r.prefix.span(),
+                key: "nodes".into(),
+                position_m,
+                transceiver,
+                traffic: r.traffic.as_ref(),
+                turnaround,
+            });
+        }
+    }
+    if pending.len() < 2 {
+        return Err(v.err(
+            0..0,
+            "node",
+            "a bus needs at least two nodes ([[node]] entries and/or a [nodes] row)",
+        ));
+    }
+    let mut seen: HashMap<&str, usize> = HashMap::new();
+    for (i, p) in pending.iter().enumerate() {
+        if let Some(first) = seen.insert(p.name.as_str(), i) {
+            let (l, _) = super::error::line_col(v.src, pending[first].name_span.start);
+            return Err(v
+                .err(
+                    p.name_span.clone(),
+                    &format!("{}.name", p.key),
+                    format!("duplicate node name \"{}\"", p.name),
+                )
+                .with_hint(format!("the name is first used on line {l}")));
+        }
+    }
+    let names: Vec<String> = pending.iter().map(|p| p.name.clone()).collect();
+    let mut out = Vec::with_capacity(pending.len());
+    for p in &pending {
+        let mut traffic = Vec::new();
+        let mut queue_limit: Option<usize> = None;
+        if let Some(t) = p.traffic {
+            for (j, src) in t.get_ref().0.iter().enumerate() {
+                let key = if t.get_ref().0.len() == 1 {
+                    format!("{}.traffic", p.key)
+                } else {
+                    format!("{}.traffic[{j}]", p.key)
+                };
+                let span = if src.span().is_empty() {
+                    t.span()
+                } else {
+                    src.span()
+                };
+                let (spec, limit) =
+                    validate_traffic(v, src.get_ref(), span, &key, &names, &p.name)?;
+                traffic.push(spec);
+                if let Some(l) = limit {
+                    queue_limit = Some(queue_limit.map_or(l, |q| q.min(l)));
+                }
+            }
+        }
+        out.push(NodeSpec {
+            name: p.name.clone(),
+            position_m: p.position_m,
+            transceiver: p.transceiver.clone(),
+            traffic,
+            turnaround: p.turnaround,
+            queue_limit,
+        });
+    }
+    Ok(out)
+}
+
+fn merge_transceiver(
+    v: &V,
+    defaults: &RawTransceiver,
+    over: Option<&RawTransceiver>,
+    key: &str,
+    node: &str,
+) -> R<Transceiver> {
+    let pick = |get: fn(&RawTransceiver) -> &Option<S>, name: &str| -> R<(S, String)> {
+        if let Some(o) = over.and_then(|o| get(o).as_ref()) {
+            return Ok((o.clone(), format!("{key}.transceiver.{name}")));
+        }
+        if let Some(d) = get(defaults).as_ref() {
+            return Ok((d.clone(), format!("transceiver.{name}")));
+        }
+        Err(v.err(
+            0..0,
+            &format!("transceiver.{name}"),
+            format!("node \"{node}\" has no transceiver.{name}: set it in [transceiver] or in the node's own transceiver table"),
+        ))
+    };
+    let (s, k) = pick(|t| &t.drive_current, "drive_current")?;
+    let drive_current_a = v.positive(&s, Dimension::Current, &k)?;
+    let (s, k) = pick(|t| &t.enable_time, "enable_time")?;
+    let enable_time = v.time(&s, &k)?;
+    let (s, k) = pick(|t| &t.disable_time, "disable_time")?;
+    let disable_time = v.time(&s, &k)?;
+    let (s, k) = pick(|t| &t.receiver_delay, "receiver_delay")?;
+    let receiver_delay = v.time(&s, &k)?;
+    let (s, k) = pick(|t| &t.load, "load")?;
+    let load_f = v.non_negative(&s, Dimension::Capacitance, &k)?;
+    // The receiver class comes from one level: the node's table if it names
+    // one, else the defaults.
+    let level = match over {
+        Some(o) if o.receiver.is_some() || o.thresholds.is_some() => {
+            (o, format!("{key}.transceiver"))
+        }
+        _ => (defaults, "transceiver".to_owned()),
+    };
+    let receiver = receiver_class(v, level.0, &level.1, node)?;
+    Ok(Transceiver {
+        drive_current_a,
+        enable_time,
+        disable_time,
+        receiver_delay,
+        load_f,
+        receiver,
+    })
+}
+
+fn receiver_class(v: &V, t: &RawTransceiver, key: &str, node: &str) -> R<ReceiverClass> {
+    match (&t.receiver, &t.thresholds) {
+        (Some(r), None) => Ok(match v.choice(r, &format!("{key}.receiver"), RECEIVERS)? {
+            "type1" => ReceiverClass::type1(),
+            "type2" => ReceiverClass::type2(),
+            "lvds" => ReceiverClass::lvds(),
+            _ => ReceiverClass::tia485(),
+        }),
+        (None, Some(th)) => {
+            let k = format!("{key}.thresholds");
+            let list = th.get_ref();
+            if list.len() != 2 {
+                return Err(v.err(th.span(), &k, "thresholds takes two voltages: [low, high], e.g. [\"-200 mV\", \"200 mV\"]"));
+            }
+            let low = v.qty(&list[0], Dimension::Voltage, &k)?;
+            let high = v.qty(&list[1], Dimension::Voltage, &k)?;
+            if low > high {
+                return Err(v.err(th.span(), &k, "the low threshold must not exceed the high threshold"));
+            }
+            Ok(ReceiverClass { name: "custom".into(), low_v: low, high_v: high })
+        }
+        (Some(r), Some(_)) => Err(v.err(r.span(), &format!("{key}.receiver"), "give receiver or thresholds, not both")),
+        (None, None) => Err(v.err(
+            0..0,
+            "transceiver.receiver",
+            format!("node \"{node}\" has no receiver class: set receiver = \"type1\", \"type2\", \"lvds\", \"tia485\" or thresholds = [low, high]"),
+        )),
+    }
+}
+
+fn validate_traffic(
+    v: &V,
+    r: &RawTraffic,
+    span: Range<usize>,
+    key: &str,
+    names: &[String],
+    own: &str,
+) -> R<(TrafficSpec, Option<usize>)> {
+    let pattern_name = v.choice(&r.pattern, &format!("{key}.pattern"), PATTERNS)?;
+    let stray = |field: &Option<S>, name: &str| -> R<()> {
+        if let Some(f) = field {
+            return Err(v.err(
+                f.span(),
+                &format!("{key}.{name}"),
+                format!("{name} does not apply to a {pattern_name} source"),
+            ));
+        }
+        Ok(())
+    };
+    let pattern = if pattern_name == "poisson" {
+        stray(&r.period, "period")?;
+        stray(&r.phase, "phase")?;
+        stray(&r.jitter, "jitter")?;
+        let rate = r.rate.as_ref().ok_or_else(|| {
+            v.err(
+                span.clone(),
+                key,
+                "a poisson source needs a rate, e.g. rate = \"2000/s\"",
+            )
+        })?;
+        Pattern::Poisson {
+            rate_per_s: v.positive(rate, Dimension::Rate, &format!("{key}.rate"))?,
+        }
+    } else {
+        stray(&r.rate, "rate")?;
+        let period_raw = r.period.as_ref().ok_or_else(|| {
+            v.err(
+                span.clone(),
+                key,
+                "a periodic source needs a period, e.g. period = \"1 ms\"",
+            )
+        })?;
+        let period = v.time(period_raw, &format!("{key}.period"))?;
+        if period == Picos::ZERO {
+            return Err(v.err(
+                period_raw.span(),
+                &format!("{key}.period"),
+                "period must be greater than zero",
+            ));
+        }
+        let phase = v.opt_time(&r.phase, &format!("{key}.phase"), Picos::ZERO)?;
+        let jitter = v.opt_time(&r.jitter, &format!("{key}.jitter"), Picos::ZERO)?;
+        if jitter >= period {
+            let span = r.jitter.as_ref().map(|j| j.span()).unwrap_or(0..0);
+            return Err(v.err(
+                span,
+                &format!("{key}.jitter"),
+                format!("jitter ({jitter}) must be shorter than the period ({period})"),
+            ));
+        }
+        Pattern::Periodic {
+            period,
+            phase,
+            jitter,
+        }
+    };
+    let pk = format!("{key}.payload");
+    let size = |s: &S| -> R<u64> {
+        units::parse_bits(s.get_ref()).map_err(|e| v.err(s.span(), &pk, e.message))
+    };
+    let payload = match r.payload.get_ref() {
+        RawPayload::Fixed(s) => {
+            let spanned = Spanned::new(r.payload.span(), s.clone());
+            Payload::Fixed {
+                bits: size(&spanned)?,
+            }
+        }
+        RawPayload::Range(list) => {
+            if list.len() != 2 {
+                return Err(v.err(
+                    r.payload.span(),
+                    &pk,
+                    "a payload range takes two sizes: [min, max]",
+                ));
+            }
+            let (a, b) = (size(&list[0])?, size(&list[1])?);
+            if a > b {
+                return Err(v.err(
+                    r.payload.span(),
+                    &pk,
+                    "the payload range's min exceeds its max",
+                ));
+            }
+            Payload::Uniform {
+                min_bits: a,
+                max_bits: b,
+            }
+        }
+    };
+    let to = match &r.to {
+        None => None,
+        Some(name) => {
+            let s = name.get_ref();
+            match names.iter().position(|n| n == s) {
+                Some(_) if s == own => {
+                    return Err(v.err(
+                        name.span(),
+                        &format!("{key}.to"),
+                        "a node cannot send to itself",
+                    ))
+                }
+                Some(i) => Some(i),
+                None => return Err(unknown_node(v, name, &format!("{key}.to"), names)),
+            }
+        }
+    };
+    let limit = r.queue_limit.as_ref().map(|q| *q.get_ref() as usize);
+    if limit == Some(0) {
+        let q = r.queue_limit.as_ref().expect("just checked");
+        return Err(v.err(
+            q.span(),
+            &format!("{key}.queue_limit"),
+            "queue_limit must be at least 1",
+        ));
+    }
+    Ok((
+        TrafficSpec {
+            pattern,
+            payload,
+            to,
+        },
+        limit,
+    ))
+}
+
+fn unknown_node(v: &V, name: &S, key: &str, names: &[String]) -> ScenarioError {
+    let mut e = v.err(
+        name.span(),
+        key,
+        format!("no node is called \"{}\"", name.get_ref()),
+    );
+    if let Some(m) = did_you_mean(name.get_ref(), names.iter().map(String::as_str)) {
+        e = e.with_hint(format!("did you mean \"{m}\"?"));
+    }
+    e
+}
+
+fn validate_access(
+    v: &V,
+    a: &RawAccess,
+    span: Range<usize>,
+    nodes: &[NodeSpec],
+    _raw: &RawScenario,
+) -> R<AccessSpec> {
+    let scheme = v.choice(&a.scheme, "access.scheme", SCHEMES)?;
+    debug_assert_eq!(scheme, "polling");
+    let names: Vec<String> = nodes.iter().map(|n| n.name.clone()).collect();
+    let find = |s: &S, key: &str| -> R<NodeId> {
+        names
+            .iter()
+            .position(|n| n == s.get_ref())
+            .ok_or_else(|| unknown_node(v, s, key, &names))
+    };
+    let master_raw = a.master.as_ref().ok_or_else(|| {
+        v.err(
+            span.clone(),
+            "access.master",
+            "polling needs a master: master = \"<node name>\"",
+        )
+    })?;
+    let master = find(master_raw, "access.master")?;
+    if !nodes[master].traffic.is_empty() {
+        return Err(v.err(
+            master_raw.span(),
+            "access.master",
+            format!(
+                "the master \"{}\" has traffic, but under polling only slaves send data",
+                names[master]
+            ),
+        ));
+    }
+    let order = match &a.order {
+        Some(list) => {
+            if list.get_ref().is_empty() {
+                return Err(v.err(
+                    list.span(),
+                    "access.order",
+                    "the poll order is empty: list at least one slave",
+                ));
+            }
+            let mut out = Vec::new();
+            for (i, s) in list.get_ref().iter().enumerate() {
+                let id = find(s, &format!("access.order[{i}]"))?;
+                if id == master {
+                    return Err(v.err(
+                        s.span(),
+                        &format!("access.order[{i}]"),
+                        "the master cannot poll itself",
+                    ));
+                }
+                out.push(id);
+            }
+            out
+        }
+        None => {
+            let mut ids: Vec<NodeId> = (0..nodes.len()).filter(|&i| i != master).collect();
+            ids.sort_by(|&x, &y| nodes[x].position_m.total_cmp(&nodes[y].position_m));
+            ids
+        }
+    };
+    for (i, n) in nodes.iter().enumerate() {
+        if i != master && !n.traffic.is_empty() && !order.contains(&i) {
+            return Err(v.err(
+                a.order.as_ref().map(|o| o.span()).unwrap_or(span.clone()),
+                "access.order",
+                format!("\"{}\" has traffic but is never polled", n.name),
+            ));
+        }
+        for t in &n.traffic {
+            if t.to == Some(i) {
+                unreachable!("self-addressed traffic is rejected earlier");
+            }
+        }
+    }
+    let default_turn = a
+        .turnaround
+        .as_ref()
+        .map(|t| v.time(t, "access.turnaround"))
+        .transpose()?;
+    let mut turnaround = Vec::with_capacity(nodes.len());
+    for n in nodes {
+        match n.turnaround.or(default_turn) {
+            Some(t) => turnaround.push(t),
+            None => return Err(v.err(
+                span.clone(),
+                "access.turnaround",
+                format!(
+                    "node \"{}\" has no turnaround: set access.turnaround or the node's turnaround",
+                    n.name
+                ),
+            )),
+        }
+    }
+    let response_latency = match &a.response_latency {
+        None => Latency::Fixed(Picos::ZERO),
+        Some(l) => latency(v, l, "access.response_latency")?,
+    };
+    let timeout_raw = a.reply_timeout.as_ref().ok_or_else(|| {
+        v.err(
+            span.clone(),
+            "access.reply_timeout",
+            "polling needs reply_timeout, e.g. reply_timeout = \"2 us\"",
+        )
+    })?;
+    let reply_timeout = v.time(timeout_raw, "access.reply_timeout")?;
+    let fmt_overhead = |o: &Option<Spanned<u64>>| o.as_ref().map(|x| *x.get_ref());
+    Ok(AccessSpec::Polling(PollingSpec {
+        master,
+        order,
+        max_per_poll: a.max_per_poll.as_ref().map(|m| *m.get_ref()).unwrap_or(1),
+        request_bits: fmt_overhead(&a.request_bits).unwrap_or(0),
+        empty_reply_bits: fmt_overhead(&a.empty_reply_bits).unwrap_or(0),
+        turnaround,
+        response_latency,
+        reply_timeout,
+    }))
+}
+
+fn latency(v: &V, l: &Spanned<RawLatency>, key: &str) -> R<Latency> {
+    match l.get_ref() {
+        RawLatency::Fixed(s) => Ok(Latency::Fixed(v.time(&Spanned::new(l.span(), s.clone()), key)?)),
+        RawLatency::Table(t) => match (&t.min, &t.max, &t.mean, &t.sd) {
+            (Some(a), Some(b), None, None) => {
+                let (min, max) = (v.time(a, &format!("{key}.min"))?, v.time(b, &format!("{key}.max"))?);
+                if min > max {
+                    return Err(v.err(l.span(), key, format!("min ({min}) exceeds max ({max})")));
+                }
+                Ok(Latency::Uniform { min, max })
+            }
+            (None, None, Some(m), Some(s)) => Ok(Latency::Normal {
+                mean: v.time(m, &format!("{key}.mean"))?,
+                sd: v.time(s, &format!("{key}.sd"))?,
+            }),
+            _ => Err(v.err(
+                l.span(),
+                key,
+                "a latency is a time (\"20 ns\"), { min, max } for uniform, or { mean, sd } for normal",
+            )),
+        },
+    }
+}

@@ -1,0 +1,121 @@
+//! Access schemes: who may drive the line, and when.
+//!
+//! A scheme is one file implementing [`AccessScheme`]. It reacts to four
+//! things (start, a message queued at a node, a timer it set, a frame shown at
+//! a node's receiver output) and acts only through the [`World`] handed to it:
+//! it reads queues, starts transmissions, sets timers and draws from its
+//! nodes' random streams. It never computes physics itself: occupancy,
+//! delays, contention and corruption belong to the engine and the bus, so
+//! every scheme is judged by the same rules.
+
+pub mod polling;
+
+use rand::Rng;
+use rand_distr::{Distribution, Normal};
+
+use crate::engine::rng::Stream;
+use crate::engine::{Reception, World};
+use crate::spec::{AccessSpec, Latency, NodeId, Spec};
+use crate::units::Picos;
+
+/// The interface every access scheme implements.
+pub trait AccessScheme: std::fmt::Debug {
+    /// The value of `access.scheme` that selects this scheme.
+    fn name(&self) -> &'static str;
+
+    /// Where a message goes when its traffic source names no destination.
+    fn default_destination(&self, source: NodeId) -> NodeId;
+
+    /// Called once at time zero.
+    fn start(&mut self, world: &mut World);
+
+    /// A message has just been queued at `node`.
+    fn on_message(&mut self, _world: &mut World, _node: NodeId) {}
+
+    /// A timer set with [`World::set_timer`] has fired.
+    fn on_timer(&mut self, world: &mut World, node: NodeId, tag: u64);
+
+    /// The receiver output of `rx.at` has shown the last bit of a frame.
+    fn on_receive(&mut self, world: &mut World, rx: &Reception);
+
+    /// The scheme's own figures for the report.
+    fn report(&self, world: &World) -> SchemeReport;
+}
+
+/// Build the scheme a spec asks for.
+pub fn build(spec: &Spec) -> Box<dyn AccessScheme> {
+    match &spec.access {
+        AccessSpec::Polling(p) => Box::new(polling::Polling::new(p.clone())),
+    }
+}
+
+/// A scheme-specific figure with its unit.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum SchemeValue {
+    Seconds(f64),
+    Count(u64),
+    Fraction(f64),
+}
+
+/// The scheme's object in the report: its name and named figures.
+#[derive(Clone, Debug, PartialEq)]
+pub struct SchemeReport {
+    pub name: &'static str,
+    pub fields: Vec<(&'static str, SchemeValue)>,
+}
+
+impl serde::Serialize for SchemeReport {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        use serde::ser::SerializeMap;
+        let mut m = s.serialize_map(Some(self.fields.len() + 1))?;
+        m.serialize_entry("name", self.name)?;
+        for (k, v) in &self.fields {
+            match *v {
+                SchemeValue::Seconds(x) | SchemeValue::Fraction(x) => m.serialize_entry(k, &x)?,
+                SchemeValue::Count(n) => m.serialize_entry(k, &n)?,
+            }
+        }
+        m.end()
+    }
+}
+
+/// Draw a firmware latency. Normal draws are truncated at zero.
+pub fn sample_latency(latency: &Latency, rng: &mut Stream) -> Picos {
+    match *latency {
+        Latency::Fixed(t) => t,
+        Latency::Uniform { min, max } => Picos(rng.random_range(min.0..=max.0)),
+        Latency::Normal { mean, sd } => {
+            if sd.0 == 0 {
+                return mean;
+            }
+            let n = Normal::new(mean.0 as f64, sd.0 as f64).expect("sd validated ≥ 0");
+            Picos(n.sample(rng).max(0.0).round() as u64)
+        }
+    }
+}
+
+/// Running mean and maximum of a duration, for cycle and rotation times.
+#[derive(Clone, Copy, Debug, Default)]
+pub struct DurationStat {
+    pub count: u64,
+    pub sum_ps: u128,
+    pub max_ps: u64,
+}
+
+impl DurationStat {
+    pub fn record(&mut self, ps: u64) {
+        self.count += 1;
+        self.sum_ps += u128::from(ps);
+        self.max_ps = self.max_ps.max(ps);
+    }
+    pub fn mean_s(&self) -> f64 {
+        if self.count == 0 {
+            0.0
+        } else {
+            self.sum_ps as f64 / self.count as f64 * 1e-12
+        }
+    }
+    pub fn max_s(&self) -> f64 {
+        self.max_ps as f64 * 1e-12
+    }
+}

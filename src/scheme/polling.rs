@@ -1,0 +1,203 @@
+//! Master/slave polling.
+//!
+//! The master polls the slaves in `order`, one poll per slave per cycle. A
+//! slave whose receiver output shows the end of an intact poll waits its
+//! turnaround plus a response latency, then asserts its enable and sends what
+//! was queued at that instant (up to `max_per_poll` data frames, back to
+//! back), or an empty reply. The master, once its receiver shows the end of
+//! the reply, waits its own turnaround plus a response latency and polls the
+//! next slave. If no reply has begun at the master's receiver by
+//! `reply_timeout` after the end of its poll, the master polls the next slave
+//! at that instant; a late reply then meets the next poll on the wire.
+//!
+//! Zero-load cycle, with e = enable time, r = receiver delay, T = turnaround,
+//! d(M,i) the wire delay master–slave i, Lp and Le the line bits of a poll and
+//! of an empty reply and tb the bit time:
+//!
+//! ```text
+//! cycle = Σ_i [ e_M + Lp·tb + d(M,i) + r_i + T_i + e_i + Le·tb + d(i,M) + r_M + T_M ]
+//! ```
+
+use tracing::debug;
+
+use super::{sample_latency, AccessScheme, DurationStat, SchemeReport, SchemeValue};
+use crate::engine::{Dest, FrameKind, FrameOut, Reception, World};
+use crate::spec::{NodeId, PollingSpec};
+use crate::units::Picos;
+
+const NEXT_POLL: u64 = 1;
+const TIMEOUT: u64 = 2;
+
+#[derive(Debug)]
+pub struct Polling {
+    spec: PollingSpec,
+    /// Index into `order` of the slave being polled.
+    idx: usize,
+    /// When the current poll's timeout expires.
+    deadline: Picos,
+    /// The timeout timer was armed at poll time.
+    timeout_armed: bool,
+    /// Enable time of the latest poll of `order[0]`.
+    cycle_start: Option<Picos>,
+    cycles: DurationStat,
+    polls: u64,
+    timeouts: u64,
+    empty_replies: u64,
+    data_replies: u64,
+}
+
+impl Polling {
+    pub fn new(spec: PollingSpec) -> Self {
+        Polling {
+            spec,
+            idx: 0,
+            deadline: Picos::ZERO,
+            timeout_armed: false,
+            cycle_start: None,
+            cycles: DurationStat::default(),
+            polls: 0,
+            timeouts: 0,
+            empty_replies: 0,
+            data_replies: 0,
+        }
+    }
+
+    fn poll(&mut self, w: &mut World) {
+        let now = w.now();
+        let master = self.spec.master;
+        let slave = self.spec.order[self.idx];
+        if self.idx == 0 {
+            if let Some(prev) = self.cycle_start {
+                if prev >= w.spec().warmup && w.in_window(now) {
+                    self.cycles.record((now - prev).0);
+                }
+            }
+            self.cycle_start = Some(now);
+        }
+        if w.in_window(now) {
+            self.polls += 1;
+        }
+        let poll = FrameOut::control(FrameKind::Poll, Dest::Node(slave), self.spec.request_bits);
+        let tx = w.transmit(master, now, &[poll]);
+        self.deadline = tx.release + self.spec.reply_timeout;
+        debug!(t_ps = now.0, master = %w.spec().nodes[master].name, slave = %w.spec().nodes[slave].name, "poll");
+        // If the slave cannot even see the poll before the deadline, the timeout
+        // is certain to fire first: arm it now. Otherwise it is armed, when
+        // needed, at the slave's decision.
+        self.timeout_armed = w.seen_at(master, slave, tx.release) > self.deadline;
+        if self.timeout_armed {
+            w.set_timer(master, self.deadline, TIMEOUT);
+        }
+    }
+
+    fn advance(&mut self, w: &mut World) {
+        self.idx = (self.idx + 1) % self.spec.order.len();
+        self.poll(w);
+    }
+
+    fn reply(&mut self, w: &mut World, slave: NodeId) {
+        let now = w.now();
+        let master = self.spec.master;
+        let wait =
+            self.spec.turnaround[slave] + sample_latency(&self.spec.response_latency, w.rng(slave));
+        let limit = match self.spec.max_per_poll {
+            0 => usize::MAX,
+            n => n as usize,
+        };
+        let take = w.queue_len(slave).min(limit);
+        let counted = w.in_window(now);
+        w.begin_tx(slave, now + wait);
+        if take == 0 {
+            w.add_frame(FrameOut::control(
+                FrameKind::EmptyReply,
+                Dest::Node(master),
+                self.spec.empty_reply_bits,
+            ));
+            if counted {
+                self.empty_replies += 1;
+            }
+        } else {
+            let overhead = w.spec().frame.overhead_bits;
+            for _ in 0..take {
+                let msg = w.pop_message(slave).expect("queue length checked");
+                w.count_access_attempt();
+                w.add_frame(FrameOut::data(msg, overhead));
+            }
+            if counted {
+                self.data_replies += 1;
+            }
+        }
+        let tx = w.finish_tx();
+        debug!(t_ps = now.0, slave = %w.spec().nodes[slave].name, frames = take, enable_ps = tx.enable.0, "reply");
+        let starts_at_master = w.seen_at(slave, master, tx.first_bit);
+        if self.timeout_armed {
+            // The timeout fires regardless (see `poll`); the reply comes late.
+            return;
+        }
+        if starts_at_master > self.deadline {
+            w.set_timer(master, self.deadline.max(now), TIMEOUT);
+        } else {
+            let master_wait = self.spec.turnaround[master]
+                + sample_latency(&self.spec.response_latency, w.rng(master));
+            let next = w.seen_at(slave, master, tx.release) + master_wait;
+            w.set_timer(master, next, NEXT_POLL);
+        }
+    }
+}
+
+impl AccessScheme for Polling {
+    fn name(&self) -> &'static str {
+        "polling"
+    }
+
+    fn default_destination(&self, _source: NodeId) -> NodeId {
+        self.spec.master
+    }
+
+    fn start(&mut self, w: &mut World) {
+        self.poll(w);
+    }
+
+    fn on_timer(&mut self, w: &mut World, _node: NodeId, tag: u64) {
+        match tag {
+            NEXT_POLL => self.advance(w),
+            TIMEOUT => {
+                if w.in_window(w.now()) {
+                    self.timeouts += 1;
+                }
+                debug!(t_ps = w.now().0, "reply timeout");
+                self.advance(w);
+            }
+            _ => unreachable!("polling sets only its own timers"),
+        }
+    }
+
+    fn on_receive(&mut self, w: &mut World, rx: &Reception) {
+        if rx.kind != FrameKind::Poll || rx.at != self.spec.order[self.idx] {
+            return;
+        }
+        if rx.corrupted {
+            debug!(t_ps = w.now().0, "poll corrupted at slave; no reply");
+            if !self.timeout_armed {
+                w.set_timer(self.spec.master, self.deadline.max(w.now()), TIMEOUT);
+            }
+            return;
+        }
+        self.reply(w, rx.at);
+    }
+
+    fn report(&self, _w: &World) -> SchemeReport {
+        SchemeReport {
+            name: "polling",
+            fields: vec![
+                ("cycle_mean_s", SchemeValue::Seconds(self.cycles.mean_s())),
+                ("cycle_max_s", SchemeValue::Seconds(self.cycles.max_s())),
+                ("cycles", SchemeValue::Count(self.cycles.count)),
+                ("polls", SchemeValue::Count(self.polls)),
+                ("data_replies", SchemeValue::Count(self.data_replies)),
+                ("empty_replies", SchemeValue::Count(self.empty_replies)),
+                ("timeouts", SchemeValue::Count(self.timeouts)),
+            ],
+        }
+    }
+}

@@ -1,0 +1,251 @@
+//! The typed run specification.
+//!
+//! A [`Spec`] is what a scenario file becomes after validation: every quantity
+//! is resolved to SI base units (metres, ohms, farads, amperes, volts) or to
+//! integer picoseconds, every node reference is an index, and every default
+//! has been applied. Nothing downstream of validation re-checks user input;
+//! the engine may assume that a `Spec` is internally consistent.
+
+use crate::line::ReceiverClass;
+use crate::units::Picos;
+
+/// Index of a node in [`Spec::nodes`].
+pub type NodeId = usize;
+
+/// A fully validated scenario.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Spec {
+    pub name: String,
+    pub seed: u64,
+    /// Simulated time at which the run stops.
+    pub duration: Picos,
+    /// Simulated time excluded from the statistics (measured window is `warmup..duration`).
+    pub warmup: Picos,
+    pub line: LineSpec,
+    pub frame: FrameFormat,
+    pub nodes: Vec<NodeSpec>,
+    pub access: AccessSpec,
+}
+
+impl Spec {
+    /// Length of the measured window.
+    pub fn measured(&self) -> Picos {
+        self.duration - self.warmup
+    }
+
+    /// Look a node up by name.
+    pub fn node_id(&self, name: &str) -> Option<NodeId> {
+        self.nodes.iter().position(|n| n.name == name)
+    }
+}
+
+/// The unloaded line.
+#[derive(Clone, Debug, PartialEq)]
+pub struct LineSpec {
+    pub length_m: f64,
+    /// Unloaded differential characteristic impedance Z0.
+    pub impedance_ohm: f64,
+    /// Unloaded propagation delay per metre, tpd0.
+    pub delay_s_per_m: f64,
+    pub termination: Termination,
+}
+
+/// How the ends of the line are terminated. `None` resistances mean "matched
+/// to the loaded impedance".
+#[derive(Clone, Debug, PartialEq)]
+pub enum Termination {
+    /// A resistor at each end (multipoint).
+    BothEnds {
+        near_ohm: Option<f64>,
+        far_ohm: Option<f64>,
+    },
+    /// A resistor at the far end only (multidrop, one driver at the near end).
+    FarEnd { far_ohm: Option<f64> },
+    /// No termination at all.
+    Unterminated,
+}
+
+/// Per-node transceiver parameters, after defaults and overrides are merged.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Transceiver {
+    /// Current-mode driver output current.
+    pub drive_current_a: f64,
+    /// From driver enable asserted to output valid.
+    pub enable_time: Picos,
+    /// From enable released to output high-impedance.
+    pub disable_time: Picos,
+    /// From the line at this node's position to the receiver output.
+    pub receiver_delay: Picos,
+    /// Capacitance this node adds to the line (device, connector, stub).
+    pub load_f: f64,
+    pub receiver: ReceiverClass,
+}
+
+#[derive(Clone, Debug, PartialEq)]
+pub struct NodeSpec {
+    pub name: String,
+    pub position_m: f64,
+    pub transceiver: Transceiver,
+    pub traffic: Vec<TrafficSpec>,
+    /// The node's own turnaround, overriding the access scheme's default.
+    pub turnaround: Option<Picos>,
+    /// Maximum number of queued messages; arrivals beyond it are dropped and counted.
+    pub queue_limit: Option<usize>,
+}
+
+/// One traffic source at a node.
+#[derive(Clone, Debug, PartialEq)]
+pub struct TrafficSpec {
+    pub pattern: Pattern,
+    pub payload: Payload,
+    /// Destination; `None` means the scheme's default (the master, for polling).
+    pub to: Option<NodeId>,
+}
+
+#[derive(Clone, Debug, PartialEq)]
+pub enum Pattern {
+    /// Poisson arrivals at `rate_per_s` messages per second.
+    Poisson { rate_per_s: f64 },
+    /// Releases at `phase + k·period`, each delayed by a uniform draw in `0..=jitter`.
+    Periodic {
+        period: Picos,
+        phase: Picos,
+        jitter: Picos,
+    },
+}
+
+#[derive(Clone, Debug, PartialEq)]
+pub enum Payload {
+    Fixed {
+        bits: u64,
+    },
+    /// Uniform over whole bits in `min_bits..=max_bits`.
+    Uniform {
+        min_bits: u64,
+        max_bits: u64,
+    },
+}
+
+impl Payload {
+    pub fn mean_bits(&self) -> f64 {
+        match *self {
+            Payload::Fixed { bits } => bits as f64,
+            Payload::Uniform { min_bits, max_bits } => (min_bits + max_bits) as f64 / 2.0,
+        }
+    }
+}
+
+/// Line coding: how many line symbols carry a given number of data bits.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Encoding {
+    /// One line symbol per bit.
+    Nrz,
+    /// Ten line symbols per eight data bits (rounded up to whole code groups).
+    B8b10b,
+    /// Start bit, eight data bits, stop bit: ten symbols per data byte, whole bytes.
+    Uart8n1,
+    /// Two line symbols per bit.
+    Manchester,
+}
+
+impl Encoding {
+    pub fn name(self) -> &'static str {
+        match self {
+            Encoding::Nrz => "nrz",
+            Encoding::B8b10b => "8b10b",
+            Encoding::Uart8n1 => "uart-8n1",
+            Encoding::Manchester => "manchester",
+        }
+    }
+
+    /// Line symbols needed for `data_bits`.
+    pub fn line_bits(self, data_bits: u64) -> u64 {
+        match self {
+            Encoding::Nrz => data_bits,
+            Encoding::B8b10b | Encoding::Uart8n1 => data_bits.div_ceil(8) * 10,
+            Encoding::Manchester => data_bits * 2,
+        }
+    }
+}
+
+/// Framing shared by every frame on the bus.
+#[derive(Clone, Debug, PartialEq)]
+pub struct FrameFormat {
+    /// Line signalling rate in symbols (line bits) per second.
+    pub bit_rate: f64,
+    /// Data bits every data frame carries besides its payload.
+    pub overhead_bits: u64,
+    pub encoding: Encoding,
+    /// Idle time between back-to-back frames from one driver.
+    pub interframe_gap: Picos,
+}
+
+impl FrameFormat {
+    /// Time on the wire of `line_bits` symbols, rounded to the nearest picosecond.
+    pub fn duration(&self, line_bits: u64) -> Picos {
+        Picos((line_bits as f64 * 1e12 / self.bit_rate).round() as u64)
+    }
+
+    /// One line-bit time (unit interval), rounded to the nearest picosecond.
+    pub fn bit_time(&self) -> Picos {
+        self.duration(1)
+    }
+
+    /// Line symbols of a data frame carrying `payload_bits`.
+    pub fn data_line_bits(&self, payload_bits: u64) -> u64 {
+        self.encoding.line_bits(self.overhead_bits + payload_bits)
+    }
+
+    /// Line symbols of a control frame of `data_bits` total data bits.
+    pub fn control_line_bits(&self, data_bits: u64) -> u64 {
+        self.encoding.line_bits(data_bits)
+    }
+}
+
+/// A random firmware latency added on top of a turnaround.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Latency {
+    Fixed(Picos),
+    Uniform {
+        min: Picos,
+        max: Picos,
+    },
+    /// Normal, truncated at zero (negative draws become zero).
+    Normal {
+        mean: Picos,
+        sd: Picos,
+    },
+}
+
+/// The access scheme and its parameters.
+#[derive(Clone, Debug, PartialEq)]
+pub enum AccessSpec {
+    Polling(PollingSpec),
+}
+
+impl AccessSpec {
+    pub fn name(&self) -> &'static str {
+        match self {
+            AccessSpec::Polling(_) => "polling",
+        }
+    }
+}
+
+/// Master/slave polling.
+#[derive(Clone, Debug, PartialEq)]
+pub struct PollingSpec {
+    pub master: NodeId,
+    /// Slaves in poll order.
+    pub order: Vec<NodeId>,
+    /// Messages a slave may send per poll; 0 means everything queued at the poll.
+    pub max_per_poll: u32,
+    /// Total data bits of a poll frame.
+    pub request_bits: u64,
+    /// Total data bits of a "nothing to send" reply.
+    pub empty_reply_bits: u64,
+    /// Turnaround of every node, indexed by [`NodeId`] (node overrides applied).
+    pub turnaround: Vec<Picos>,
+    pub response_latency: Latency,
+    /// How long after the end of its request the master waits for a reply to begin.
+    pub reply_timeout: Picos,
+}

@@ -1,0 +1,54 @@
+//! Counters and accumulators filled by the engine during the measured window.
+
+pub mod latency;
+pub mod utilization;
+
+pub use latency::{LatencyStats, LatencySummary};
+
+/// Frame and message counters over the measured window.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub struct FrameCounters {
+    /// Data frames resolved (delivered or corrupted).
+    pub attempts: u64,
+    pub delivered: u64,
+    pub corrupted: u64,
+    /// Messages dropped (queue full, or given up by the scheme).
+    pub dropped: u64,
+    /// Messages that arrived at a queue.
+    pub arrived: u64,
+    /// Channel access attempts, as the scheme counts them.
+    pub access_attempts: u64,
+    /// Control frames (polls, empty replies, tokens, ...) delivered intact or not.
+    pub control_frames: u64,
+    pub control_corrupted: u64,
+}
+
+/// Everything the engine accumulates.
+#[derive(Debug)]
+pub struct Stats {
+    pub frames: FrameCounters,
+    /// Payload bits of delivered data frames.
+    pub payload_bits: u64,
+    /// On-wire time of delivered data frames (ps).
+    pub carried_ps: u64,
+    /// On-wire time of every data frame transmitted (ps) and their count.
+    pub data_wire_ps: u64,
+    pub data_frames_sent: u64,
+    pub latency_all: LatencyStats,
+    /// Per source node.
+    pub latency_node: Vec<LatencyStats>,
+}
+
+impl Stats {
+    pub fn new(nodes: usize) -> Self {
+        Stats {
+            frames: FrameCounters::default(),
+            payload_bits: 0,
+            carried_ps: 0,
+            data_wire_ps: 0,
+            data_frames_sent: 0,
+            latency_all: LatencyStats::new(),
+            latency_node: (0..nodes).map(|_| LatencyStats::new()).collect(),
+        }
+    }
+}
