@@ -22,8 +22,8 @@ pub struct FloatingTotals {
 pub struct FloatingSweep {
     /// Per node: is its receiver a hazard, and until when is its position driven.
     hazard: Vec<bool>,
+    hazard_ids: Vec<usize>,
     driven_until: Vec<u64>,
-    per_node: Vec<FloatingTotals>,
     window: (u64, u64),
     pub totals: FloatingTotals,
 }
@@ -32,9 +32,9 @@ impl FloatingSweep {
     pub fn new(hazard: Vec<bool>, window: (Picos, Picos)) -> Self {
         let n = hazard.len();
         FloatingSweep {
+            hazard_ids: (0..n).filter(|&i| hazard[i]).collect(),
             hazard,
             driven_until: vec![0; n],
-            per_node: vec![FloatingTotals::default(); n],
             window: (window.0 .0, window.1 .0),
             totals: FloatingTotals::default(),
         }
@@ -50,11 +50,49 @@ impl FloatingSweep {
     pub fn feed(&mut self, node: usize, from: u64, to: u64, next_arrival: u64) {
         let until = self.driven_until[node];
         if from > until {
-            self.close(node, until, from.min(next_arrival));
+            self.close(until, from.min(next_arrival));
         }
         if to > until {
             self.driven_until[node] = to;
         }
+    }
+
+    /// Feed one occupancy `[a, b)` of a driver to every hazard receiver at
+    /// once. `delays[i]` is the wire delay from the driver to node i;
+    /// `next[i]`, when given, bounds each window from above (see [`Self::feed`]).
+    /// This is the hot path: totals are gathered in locals and per-node
+    /// figures are not kept.
+    #[inline]
+    pub fn feed_all(&mut self, a: u64, b: u64, delays: &[u64], next: Option<&[u64]>) {
+        let (w0, w1) = self.window;
+        let (mut windows, mut total, mut longest) = (0u64, 0u64, self.totals.longest_ps);
+        // Branch-free: when the signal arrives before `until` the clipped
+        // window is empty, because then to ≤ from ≤ until ≤ max(until, w0).
+        let mut one = |i: usize, until: &mut u64| {
+            let d = delays[i];
+            let from = a + d;
+            let to = match next {
+                None => from,
+                Some(n) => from.min(n[i]),
+            };
+            let len = to.min(w1).saturating_sub((*until).max(w0));
+            windows += u64::from(len > 0);
+            total += len;
+            longest = longest.max(len);
+            *until = (*until).max(b + d);
+        };
+        if self.hazard_ids.len() == self.driven_until.len() {
+            for (i, until) in self.driven_until.iter_mut().enumerate() {
+                one(i, until);
+            }
+        } else {
+            for &i in &self.hazard_ids {
+                one(i, &mut self.driven_until[i]);
+            }
+        }
+        self.totals.windows += windows;
+        self.totals.total_ps += total;
+        self.totals.longest_ps = longest;
     }
 
     /// Close every receiver's open window at the end of the run.
@@ -62,28 +100,23 @@ impl FloatingSweep {
         for node in 0..self.hazard.len() {
             if self.hazard[node] && self.driven_until[node] < end {
                 let from = self.driven_until[node];
-                self.close(node, from, end);
+                self.close(from, end);
                 self.driven_until[node] = end;
             }
         }
     }
 
-    pub fn node_totals(&self, node: usize) -> FloatingTotals {
-        self.per_node[node]
-    }
-
-    fn close(&mut self, node: usize, from: u64, to: u64) {
+    fn close(&mut self, from: u64, to: u64) {
         let from = from.max(self.window.0);
         let to = to.min(self.window.1);
         if to <= from {
             return;
         }
         let len = to - from;
-        for t in [&mut self.totals, &mut self.per_node[node]] {
-            t.windows += 1;
-            t.total_ps += len;
-            t.longest_ps = t.longest_ps.max(len);
-        }
+        let t = &mut self.totals;
+        t.windows += 1;
+        t.total_ps += len;
+        t.longest_ps = t.longest_ps.max(len);
     }
 }
 

@@ -78,6 +78,8 @@ pub struct Bus {
     pub util: UtilizationSweep,
     pub floating: FloatingSweep,
     pub contention: ContentionTotals,
+    /// Reused per-receiver buffer (no allocation per occupancy).
+    scratch: Vec<u64>,
 }
 
 impl Bus {
@@ -105,6 +107,7 @@ impl Bus {
             util: UtilizationSweep::new(window.0, window.1),
             floating: FloatingSweep::new(hazard, (spec.warmup, spec.duration)),
             contention: ContentionTotals::default(),
+            scratch: Vec::with_capacity(spec.nodes.len()),
         }
     }
 
@@ -251,20 +254,24 @@ impl Bus {
                 });
             }
         }
-        // Floating windows at every hazard receiver.
-        for node in 0..self.positions.len() {
-            if !self.floating.is_hazard(node) {
-                continue;
+        // Floating windows at every hazard receiver. Later entries already in
+        // the log can reach a receiver before this one (only when they contend
+        // with it); their earliest arrival bounds the window.
+        let later = self.log.len() - idx - 1;
+        let next = if later == 0 {
+            None
+        } else {
+            self.scratch.clear();
+            self.scratch.resize(self.positions.len(), u64::MAX);
+            for m in self.log.range(idx + 1..) {
+                for (slot, d) in self.scratch.iter_mut().zip(line.delay_row(m.node)) {
+                    *slot = (*slot).min(m.a + d);
+                }
             }
-            let d = line.delay_ps(k.node, node);
-            let next = self
-                .log
-                .range(idx + 1..)
-                .map(|m| m.a + line.delay_ps(m.node, node))
-                .min()
-                .unwrap_or(u64::MAX);
-            self.floating.feed(node, k.a + d, k.b + d, next);
-        }
+            Some(self.scratch.as_slice())
+        };
+        self.floating
+            .feed_all(k.a, k.b, line.delay_row(k.node), next);
         self.util.add(Piece::Occupancy, k.a, k.b);
         trace.push(BusEvent {
             t: k.a,

@@ -10,16 +10,17 @@ use std::collections::BinaryHeap;
 
 use crate::units::Picos;
 
+/// `key` packs (time, seq) as `time << 64 | seq`, so one integer comparison
+/// orders entries.
 #[derive(Clone, Copy, Debug)]
 struct Entry<E> {
-    time: u64,
-    seq: u64,
+    key: u128,
     event: E,
 }
 
 impl<E> PartialEq for Entry<E> {
     fn eq(&self, other: &Self) -> bool {
-        self.time == other.time && self.seq == other.seq
+        self.key == other.key
     }
 }
 impl<E> Eq for Entry<E> {}
@@ -31,10 +32,7 @@ impl<E> PartialOrd for Entry<E> {
 impl<E> Ord for Entry<E> {
     // Reversed: BinaryHeap is a max-heap and we want the earliest first.
     fn cmp(&self, other: &Self) -> Ordering {
-        other
-            .time
-            .cmp(&self.time)
-            .then_with(|| other.seq.cmp(&self.seq))
+        other.key.cmp(&self.key)
     }
 }
 
@@ -59,20 +57,19 @@ impl<E: Copy> EventQueue<E> {
     pub fn push(&mut self, time: Picos, event: E) {
         let seq = self.next_seq;
         self.next_seq += 1;
-        self.heap.push(Entry {
-            time: time.0,
-            seq,
-            event,
-        });
+        let key = (u128::from(time.0) << 64) | u128::from(seq);
+        self.heap.push(Entry { key, event });
     }
 
     /// Time of the next event, if any.
     pub fn peek_time(&self) -> Option<Picos> {
-        self.heap.peek().map(|e| Picos(e.time))
+        self.heap.peek().map(|e| Picos((e.key >> 64) as u64))
     }
 
     pub fn pop(&mut self) -> Option<(Picos, E)> {
-        self.heap.pop().map(|e| (Picos(e.time), e.event))
+        self.heap
+            .pop()
+            .map(|e| (Picos((e.key >> 64) as u64), e.event))
     }
 
     pub fn len(&self) -> usize {

@@ -94,6 +94,12 @@ impl LineModel {
         self.delays[a * self.n + b]
     }
 
+    /// Wire delays from node `a` to every node, in node order (ps).
+    #[inline]
+    pub fn delay_row(&self, a: NodeId) -> &[u64] {
+        &self.delays[a * self.n..(a + 1) * self.n]
+    }
+
     /// The smallest driver amplitude on the bus and the node that produces it.
     pub fn worst_amplitude(&self) -> (NodeId, f64) {
         self.amplitude_v

@@ -732,14 +732,16 @@ fn validate_access(
     for n in nodes {
         match n.turnaround.or(default_turn) {
             Some(t) => turnaround.push(t),
-            None => return Err(v.err(
-                span.clone(),
-                "access.turnaround",
-                format!(
+            None => {
+                return Err(v.err(
+                    span.clone(),
+                    "access.turnaround",
+                    format!(
                     "node \"{}\" has no turnaround: set access.turnaround or the node's turnaround",
                     n.name
                 ),
-            )),
+                ))
+            }
         }
     }
     let response_latency = match &a.response_latency {

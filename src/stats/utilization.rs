@@ -14,12 +14,12 @@
 //! The classes partition the measured window, so the fractions sum to 1.
 //!
 //! Pieces arrive out of order (a frame's fate is known only when it is
-//! delivered), so the sweep keeps their edges in a min-heap and advances only
-//! up to a frontier before which no new piece can start. The heap holds the
-//! edges of the few transmissions in flight, so memory stays flat.
+//! delivered), so the sweep keeps their edges sorted and advances only up to
+//! a frontier before which no new piece can start. It holds the edges of the
+//! few transmissions in flight, so memory stays flat; edges arrive nearly in
+//! order, so a sorted deque with insertion from the back beats a heap here.
 
-use std::cmp::Reverse;
-use std::collections::BinaryHeap;
+use std::collections::VecDeque;
 
 /// What a piece contributes to the sweep.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord)]
@@ -53,8 +53,8 @@ impl UtilizationTotals {
 /// The incremental sweep.
 #[derive(Debug)]
 pub struct UtilizationSweep {
-    /// Edges: (time, kind << 1 | is_end).
-    edges: BinaryHeap<Reverse<(u64, u8)>>,
+    /// Edges sorted by time: (time, kind << 1 | is_end).
+    edges: VecDeque<(u64, u8)>,
     last: u64,
     drivers: u32,
     labels: [u32; LABELS],
@@ -66,7 +66,7 @@ impl UtilizationSweep {
     /// Measures the window `start..end` (picoseconds).
     pub fn new(start: u64, end: u64) -> Self {
         UtilizationSweep {
-            edges: BinaryHeap::with_capacity(64),
+            edges: VecDeque::with_capacity(64),
             last: 0,
             drivers: 0,
             labels: [0; LABELS],
@@ -81,18 +81,31 @@ impl UtilizationSweep {
             return;
         }
         let kind = piece as u8;
-        self.edges.push(Reverse((from, kind << 1)));
-        self.edges.push(Reverse((to, (kind << 1) | 1)));
+        self.insert(from, kind << 1);
+        self.insert(to, (kind << 1) | 1);
+    }
+
+    #[inline]
+    fn insert(&mut self, t: u64, code: u8) {
+        let mut at = self.edges.len();
+        while at > 0 && self.edges[at - 1].0 > t {
+            at -= 1;
+        }
+        if at == self.edges.len() {
+            self.edges.push_back((t, code));
+        } else {
+            self.edges.insert(at, (t, code));
+        }
     }
 
     /// Classify all time before `frontier`. The caller promises that no piece
     /// added later starts before `frontier`.
     pub fn advance(&mut self, frontier: u64) {
-        while let Some(&Reverse((t, code))) = self.edges.peek() {
+        while let Some(&(t, code)) = self.edges.front() {
             if t > frontier {
                 break;
             }
-            self.edges.pop();
+            self.edges.pop_front();
             self.account(t);
             let kind = code >> 1;
             let end = code & 1 == 1;
