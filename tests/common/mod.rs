@@ -1,0 +1,191 @@
+//! Shared helpers for the integration tests: a small scenario builder and the
+//! published reference formulas the tests check against.
+#![allow(dead_code)]
+
+use halfwire::spec::Spec;
+
+/// Parameters of a polling bus used across tests.
+#[derive(Clone, Debug)]
+pub struct Bus {
+    pub length_m: f64,
+    pub slaves: usize,
+    pub first_m: f64,
+    pub spacing_m: f64,
+    pub rate_per_s: f64,
+    pub payload: &'static str,
+    pub turnaround: &'static str,
+    pub master_turnaround: &'static str,
+    pub enable: &'static str,
+    pub disable: &'static str,
+    pub rx_delay: &'static str,
+    pub load: &'static str,
+    pub receiver: &'static str,
+    pub duration: &'static str,
+    pub warmup: &'static str,
+    pub seed: u64,
+    pub max_per_poll: u32,
+    pub slave_disable: Option<&'static str>,
+}
+
+impl Default for Bus {
+    fn default() -> Self {
+        Bus {
+            length_m: 2.0,
+            slaves: 4,
+            first_m: 0.3,
+            spacing_m: 0.4,
+            rate_per_s: 0.0,
+            payload: "64 B",
+            turnaround: "20 ns",
+            master_turnaround: "30 ns",
+            enable: "7 ns",
+            disable: "9 ns",
+            rx_delay: "5 ns",
+            load: "5 pF",
+            receiver: "type2",
+            duration: "1 ms",
+            warmup: "0 s",
+            seed: 1,
+            max_per_poll: 1,
+            slave_disable: None,
+        }
+    }
+}
+
+impl Bus {
+    pub fn toml(&self) -> String {
+        let traffic = if self.rate_per_s > 0.0 {
+            format!(
+                "traffic = {{ pattern = \"poisson\", rate = \"{}/s\", payload = \"{}\" }}",
+                self.rate_per_s, self.payload
+            )
+        } else {
+            String::new()
+        };
+        let slave_tx = match self.slave_disable {
+            Some(d) => format!("[nodes.transceiver]\ndisable_time = \"{d}\"\n"),
+            None => String::new(),
+        };
+        format!(
+            r#"
+name = "test bus"
+seed = {seed}
+duration = "{duration}"
+warmup = "{warmup}"
+
+[line]
+length = "{length} m"
+impedance = "100 ohm"
+delay = "5 ns/m"
+
+[transceiver]
+drive_current = "11.3 mA"
+enable_time = "{enable}"
+disable_time = "{disable}"
+receiver_delay = "{rx}"
+load = "{load}"
+receiver = "{receiver}"
+
+[frame]
+bit_rate = "100 Mbit/s"
+overhead_bits = 48
+interframe_gap = "40 ns"
+
+[access]
+scheme = "polling"
+master = "m"
+max_per_poll = {mpp}
+request_bits = 32
+empty_reply_bits = 16
+turnaround = "{turn}"
+reply_timeout = "5 us"
+
+[[node]]
+name = "m"
+position = "0 m"
+turnaround = "{mturn}"
+
+[nodes]
+count = {n}
+first = "{first} m"
+spacing = "{spacing} m"
+prefix = "s"
+{traffic}
+{slave_tx}
+"#,
+            seed = self.seed,
+            duration = self.duration,
+            warmup = self.warmup,
+            length = self.length_m,
+            enable = self.enable,
+            disable = self.disable,
+            rx = self.rx_delay,
+            load = self.load,
+            receiver = self.receiver,
+            mpp = self.max_per_poll,
+            turn = self.turnaround,
+            mturn = self.master_turnaround,
+            n = self.slaves,
+            first = self.first_m,
+            spacing = self.spacing_m,
+            traffic = traffic,
+            slave_tx = slave_tx,
+        )
+    }
+
+    pub fn spec(&self) -> Spec {
+        halfwire::scenario::parse_str(&self.toml(), "test.toml").expect("test scenario is valid")
+    }
+}
+
+/// Mean waiting time (arrival to start of service) in a symmetric polling
+/// system with N queues, Poisson arrivals λ per queue, service time b with
+/// second moment b2, and deterministic switchover r per queue:
+/// Takagi, *Analysis of Polling Systems*, MIT Press 1986; Bertsekas &
+/// Gallager, *Data Networks*, §3.5.2.
+pub mod takagi {
+    pub fn exhaustive(n: f64, lambda: f64, b: f64, b2: f64, r: f64) -> f64 {
+        let rho = n * lambda * b;
+        (n * lambda * b2 + r * (n - rho)) / (2.0 * (1.0 - rho))
+    }
+    pub fn gated(n: f64, lambda: f64, b: f64, b2: f64, r: f64) -> f64 {
+        let rho = n * lambda * b;
+        (n * lambda * b2 + r * (n + rho)) / (2.0 * (1.0 - rho))
+    }
+    pub fn one_limited(n: f64, lambda: f64, b: f64, b2: f64, r: f64) -> f64 {
+        let rho = n * lambda * b;
+        (n * lambda * b2 + r * (n + rho)) / (2.0 * (1.0 - rho - n * lambda * r))
+    }
+}
+
+/// Pollaczek–Khinchine mean wait of M/G/1: W = λ·E[S²] / (2(1 − ρ)).
+pub fn pollaczek_khinchine(lambda: f64, es2: f64, rho: f64) -> f64 {
+    lambda * es2 / (2.0 * (1.0 - rho))
+}
+
+/// Two-sided 95 % Student t quantile t(0.975; df), from a statistics table.
+pub fn t975(df: usize) -> f64 {
+    match df {
+        4 => 2.776,
+        9 => 2.262,
+        29 => 2.045,
+        _ => panic!("add t(0.975; {df}) from a table"),
+    }
+}
+
+/// Mean and 95 % confidence half-width of independent replications.
+pub fn mean_ci(xs: &[f64]) -> (f64, f64) {
+    let n = xs.len() as f64;
+    let mean = xs.iter().sum::<f64>() / n;
+    let var = xs.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (n - 1.0);
+    (mean, t975(xs.len() - 1) * (var / n).sqrt())
+}
+
+/// Run the built binary.
+pub fn halfwire(args: &[&str]) -> std::process::Output {
+    std::process::Command::new(env!("CARGO_BIN_EXE_halfwire"))
+        .args(args)
+        .env("NO_COLOR", "1")
+        .output()
+        .expect("the halfwire binary runs")
+}
