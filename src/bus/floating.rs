@@ -4,9 +4,23 @@
 //! (one whose thresholds leave a 0 V input undefined) the sweep keeps the time
 //! until which the line at that position is known to be driven; a new
 //! occupancy whose signal arrives after it opens a window. The caller passes
-//! the earliest arrival, at this receiver, of any occupancy that is known but
+//! the earliest arrival, at each receiver, of any occupancy that is known but
 //! not yet fed, so a later-enabled driver whose signal arrives first (only
 //! possible when the two contend) still closes the window at the right time.
+//!
+//! ## Fast path
+//! On a well-behaved bus one driver hands over to the next, and right after
+//! driver p's occupancy every receiver i is driven until b_p + d(p,i): the
+//! state is *dominated* by p and needs no per-receiver array. The window the
+//! next driver k opens at receiver i is then g + u_i with g = a_k − b_p and
+//! u_i = d(k,i) − d(p,i), so with the u_i of the pair (p, k) sorted once (and
+//! their suffix sums), the count, total and longest window over all
+//! receivers take one binary search instead of a pass over every receiver.
+//! The result is exactly that of the per-receiver pass (integer arithmetic);
+//! anything unusual (a bound from a later occupancy, clipping at the window
+//! edges, a next driver that does not dominate) takes the per-receiver pass.
+
+use rustc_hash::FxHashMap;
 
 use crate::units::Picos;
 
@@ -18,12 +32,30 @@ pub struct FloatingTotals {
     pub longest_ps: u64,
 }
 
+/// Sorted u_i = d(k,i) − d(p,i) over hazard receivers, with suffix sums.
+#[derive(Debug)]
+struct PairProfile {
+    sorted: Vec<i64>,
+    /// `suffix[j]` = Σ sorted[j..].
+    suffix: Vec<i64>,
+    /// Largest d(k,i) over hazard receivers.
+    max_dk: u64,
+}
+
+/// Most pair profiles kept (bounds memory on very large buses).
+const PROFILE_BUDGET_VALUES: usize = 1 << 21;
+
 #[derive(Debug)]
 pub struct FloatingSweep {
-    /// Per node: is its receiver a hazard, and until when is its position driven.
     hazard: Vec<bool>,
     hazard_ids: Vec<usize>,
+    /// Per node: until when its position is driven. Valid only when `dominant` is `None`.
     driven_until: Vec<u64>,
+    /// `Some((p, b_p))` when every hazard receiver i is driven until exactly b_p + d(p,i).
+    dominant: Option<(usize, u64)>,
+    profiles: FxHashMap<u32, PairProfile>,
+    profile_values: usize,
+    fast_path: bool,
     window: (u64, u64),
     pub totals: FloatingTotals,
 }
@@ -35,19 +67,29 @@ impl FloatingSweep {
             hazard_ids: (0..n).filter(|&i| hazard[i]).collect(),
             hazard,
             driven_until: vec![0; n],
+            dominant: None,
+            profiles: FxHashMap::default(),
+            profile_values: 0,
+            fast_path: true,
             window: (window.0 .0, window.1 .0),
             totals: FloatingTotals::default(),
         }
+    }
+
+    /// Turn the fast path off (for tests that compare the two paths).
+    pub fn without_fast_path(mut self) -> Self {
+        self.fast_path = false;
+        self
     }
 
     pub fn is_hazard(&self, node: usize) -> bool {
         self.hazard[node]
     }
 
-    /// Feed an occupancy as seen at receiver `node`: it arrives at `from` and
-    /// leaves at `to`; `next_arrival` bounds the window from above (see module docs).
-    #[inline]
+    /// Feed an occupancy as seen at receiver `node` only: it arrives at `from`
+    /// and leaves at `to`; `next_arrival` bounds the window from above.
     pub fn feed(&mut self, node: usize, from: u64, to: u64, next_arrival: u64) {
+        self.materialize(|_| unreachable!("no dominant state without delays"));
         let until = self.driven_until[node];
         if from > until {
             self.close(until, from.min(next_arrival));
@@ -57,15 +99,29 @@ impl FloatingSweep {
         }
     }
 
-    /// Feed one occupancy `[a, b)` of a driver to every hazard receiver at
-    /// once. `delays[i]` is the wire delay from the driver to node i;
-    /// `next[i]`, when given, bounds each window from above (see [`Self::feed`]).
-    /// This is the hot path: totals are gathered in locals and per-node
-    /// figures are not kept.
+    /// Feed driver `k`'s occupancy `[a, b)` to every hazard receiver.
+    /// `delay(x, i)` is the wire delay from node x to node i; `next[i]`, when
+    /// given, bounds each window from above (see the module docs).
     #[inline]
-    pub fn feed_all(&mut self, a: u64, b: u64, delays: &[u64], next: Option<&[u64]>) {
+    pub fn feed_occupancy<'a, D: Fn(usize) -> &'a [u64]>(
+        &mut self,
+        k: usize,
+        a: u64,
+        b: u64,
+        rows: D,
+        next: Option<&[u64]>,
+    ) {
+        if self.hazard_ids.is_empty() {
+            return;
+        }
+        if self.fast_path && next.is_none() && self.try_fast(k, a, b, &rows) {
+            return;
+        }
+        self.materialize(&rows);
+        let delays = rows(k);
         let (w0, w1) = self.window;
         let (mut windows, mut total, mut longest) = (0u64, 0u64, self.totals.longest_ps);
+        let mut dominates = true;
         // Branch-free: when the signal arrives before `until` the clipped
         // window is empty, because then to ≤ from ≤ until ≤ max(until, w0).
         let mut one = |i: usize, until: &mut u64| {
@@ -79,6 +135,7 @@ impl FloatingSweep {
             windows += u64::from(len > 0);
             total += len;
             longest = longest.max(len);
+            dominates &= b + d >= *until;
             *until = (*until).max(b + d);
         };
         if self.hazard_ids.len() == self.driven_until.len() {
@@ -93,10 +150,94 @@ impl FloatingSweep {
         self.totals.windows += windows;
         self.totals.total_ps += total;
         self.totals.longest_ps = longest;
+        if dominates && next.is_none() {
+            self.dominant = Some((k, b));
+        }
+    }
+
+    /// The closed-form hand-over from the dominant driver p to k. Returns
+    /// false (and changes nothing) when its preconditions do not hold.
+    fn try_fast<'a, D: Fn(usize) -> &'a [u64]>(
+        &mut self,
+        k: usize,
+        a: u64,
+        b: u64,
+        rows: &D,
+    ) -> bool {
+        let Some((p, bp)) = self.dominant else {
+            return false;
+        };
+        let (w0, w1) = self.window;
+        // No clipping: every window starts at or after w0 and ends by w1.
+        if bp < w0 {
+            return false;
+        }
+        let key = (p as u32) << 16 | k as u32;
+        if !self.profiles.contains_key(&key) {
+            if self.profile_values + self.hazard_ids.len() > PROFILE_BUDGET_VALUES
+                || p > 0xffff
+                || k > 0xffff
+            {
+                return false;
+            }
+            let (rp, rk) = (rows(p), rows(k));
+            let mut sorted: Vec<i64> = self
+                .hazard_ids
+                .iter()
+                .map(|&i| rk[i] as i64 - rp[i] as i64)
+                .collect();
+            sorted.sort_unstable();
+            let mut suffix = vec![0i64; sorted.len() + 1];
+            for j in (0..sorted.len()).rev() {
+                suffix[j] = suffix[j + 1] + sorted[j];
+            }
+            let max_dk = self.hazard_ids.iter().map(|&i| rk[i]).max().unwrap_or(0);
+            self.profile_values += sorted.len();
+            self.profiles.insert(
+                key,
+                PairProfile {
+                    sorted,
+                    suffix,
+                    max_dk,
+                },
+            );
+        }
+        let prof = &self.profiles[&key];
+        let (umin, umax) = (prof.sorted[0], *prof.sorted.last().expect("non-empty"));
+        // k must dominate afterwards: b + d(k,i) ≥ b_p + d(p,i) for every i.
+        if (b as i64 - bp as i64) < -umin {
+            return false;
+        }
+        if a + prof.max_dk > w1 {
+            return false;
+        }
+        let g = a as i64 - bp as i64;
+        // Windows where g + u_i > 0.
+        let first = prof.sorted.partition_point(|&u| u <= -g);
+        let count = prof.sorted.len() - first;
+        if count > 0 {
+            let total = count as i64 * g + prof.suffix[first];
+            self.totals.windows += count as u64;
+            self.totals.total_ps += total as u64;
+            self.totals.longest_ps = self.totals.longest_ps.max((g + umax) as u64);
+        }
+        self.dominant = Some((k, b));
+        true
+    }
+
+    /// Write the implicit dominated state into the per-receiver array.
+    fn materialize<'a, D: Fn(usize) -> &'a [u64]>(&mut self, rows: D) {
+        if let Some((p, bp)) = self.dominant.take() {
+            let r = rows(p);
+            for &i in &self.hazard_ids {
+                self.driven_until[i] = bp + r[i];
+            }
+        }
     }
 
     /// Close every receiver's open window at the end of the run.
-    pub fn finish(&mut self, end: u64) {
+    pub fn finish<'a, D: Fn(usize) -> &'a [u64]>(&mut self, end: u64, rows: D) {
+        self.materialize(rows);
         for node in 0..self.hazard.len() {
             if self.hazard[node] && self.driven_until[node] < end {
                 let from = self.driven_until[node];
@@ -123,6 +264,7 @@ impl FloatingSweep {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use proptest::prelude::*;
 
     #[test]
     fn gaps_between_occupancies_are_windows() {
@@ -130,7 +272,7 @@ mod tests {
         f.feed(0, 100, 300, u64::MAX);
         f.feed(0, 350, 600, u64::MAX);
         f.feed(0, 500, 900, u64::MAX); // overlaps: no window
-        f.finish(1000);
+        f.finish(1000, |_| &[]);
         // 0..100, 300..350, 900..1000
         assert_eq!(
             f.totals,
@@ -149,5 +291,39 @@ mod tests {
         // Next fed occupancy arrives at 400, but another known one arrives at 250.
         f.feed(0, 400, 500, 250);
         assert_eq!(f.totals.total_ps, 150);
+    }
+
+    proptest! {
+        // The closed-form hand-over gives exactly the per-receiver result.
+        #[test]
+        fn fast_path_equals_per_receiver_pass(
+            positions in proptest::collection::vec(0u64..3000, 2..8),
+            hazard in proptest::collection::vec(prop::bool::ANY, 8),
+            steps in proptest::collection::vec((0usize..8, 0u64..400, 1u64..2000), 1..40),
+            w0 in 0u64..2000,
+        ) {
+            let n = positions.len();
+            let delays: Vec<Vec<u64>> = positions
+                .iter()
+                .map(|x| positions.iter().map(|y| x.abs_diff(*y)).collect())
+                .collect();
+            let rows = |i: usize| delays[i].as_slice();
+            let window = (Picos(w0), Picos(60_000));
+            let hz: Vec<bool> = hazard[..n].to_vec();
+            let mut fast = FloatingSweep::new(hz.clone(), window);
+            let mut slow = FloatingSweep::new(hz, window).without_fast_path();
+            let mut t = 0u64;
+            for (node, gap, len) in steps {
+                let node = node % n;
+                let a = t + gap;
+                let b = a + len;
+                fast.feed_occupancy(node, a, b, rows, None);
+                slow.feed_occupancy(node, a, b, rows, None);
+                t = a + len / 2; // sometimes overlapping, sometimes not
+            }
+            fast.finish(60_000, rows);
+            slow.finish(60_000, rows);
+            prop_assert_eq!(fast.totals, slow.totals);
+        }
     }
 }

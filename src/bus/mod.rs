@@ -257,8 +257,14 @@ impl Bus {
         // Floating windows at every hazard receiver. Later entries already in
         // the log can reach a receiver before this one (only when they contend
         // with it); their earliest arrival bounds the window.
-        let later = self.log.len() - idx - 1;
-        let next = if later == 0 {
+        // The log is sorted by enable time, so if the next entry enables at
+        // least the largest wire delay after this one, no later entry can
+        // reach any receiver first and no bound is needed.
+        let needs_bound = self
+            .log
+            .get(idx + 1)
+            .is_some_and(|m| m.a < k.a + self.max_delay);
+        let next = if !needs_bound {
             None
         } else {
             self.scratch.clear();
@@ -271,7 +277,7 @@ impl Bus {
             Some(self.scratch.as_slice())
         };
         self.floating
-            .feed_all(k.a, k.b, line.delay_row(k.node), next);
+            .feed_occupancy(k.node, k.a, k.b, |i| line.delay_row(i), next);
         self.util.add(Piece::Occupancy, k.a, k.b);
         trace.push(BusEvent {
             t: k.a,
@@ -293,7 +299,7 @@ impl Bus {
     /// Close the run: process everything and end open floating windows.
     pub fn finish(&mut self, line: &LineModel, end: u64, trace: &mut Trace) {
         self.process(line, end, true, trace);
-        self.floating.finish(end);
+        self.floating.finish(end, |i| line.delay_row(i));
         self.util.finish();
     }
 
