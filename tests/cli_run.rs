@@ -349,3 +349,22 @@ fn no_partial_output_file_on_error() {
         "no temporary files left"
     );
 }
+
+#[test]
+fn debug_log_shows_scheme_decisions() {
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_halfwire"))
+        .args(["run", "scenarios/buoy-link.toml", "--duration", "60 ms"])
+        .env("RUST_LOG", "halfwire=debug")
+        .output()
+        .unwrap();
+    assert!(out.status.success());
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("DEBUG poll") && err.contains("slave=sensor"),
+        "{err}"
+    );
+    assert!(
+        !err.contains('\u{1b}'),
+        "no ANSI codes when stderr is not a terminal"
+    );
+}

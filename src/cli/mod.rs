@@ -44,23 +44,28 @@ impl From<halfwire::scenario::ScenarioError> for Failure {
     }
 }
 
-fn init_tracing() {
+/// Log to stderr, filtered by RUST_LOG (e.g. `RUST_LOG=halfwire=debug`).
+/// Events carry simulated time (`t_ps`), so wall-clock stamps are left out.
+fn init_tracing(color: bool) {
     use tracing_subscriber::EnvFilter;
     let filter = EnvFilter::try_from_default_env().unwrap_or_else(|_| EnvFilter::new("warn"));
     let _ = tracing_subscriber::fmt()
         .with_env_filter(filter)
         .with_writer(std::io::stderr)
+        .with_ansi(color)
+        .without_time()
         .with_target(false)
         .try_init();
 }
 
 pub fn main() -> ExitCode {
     let cli = Cli::parse();
-    init_tracing();
+    // Colour follows the usual conventions: only on a terminal, never with NO_COLOR.
     if std::env::var_os("NO_COLOR").is_some_and(|v| !v.is_empty()) {
         console::set_colors_enabled(false);
         console::set_colors_enabled_stderr(false);
     }
+    init_tracing(console::colors_enabled_stderr());
     let result = match cli.command {
         Command::Run(args) => run::run(args),
     };

@@ -81,3 +81,33 @@ impl ReceiverClass {
         high.min(low)
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn idle_line_decisions_follow_the_thresholds() {
+        // Threshold classes: common practice, from memory of TIA/EIA-899 (type 1
+        // and 2), TIA/EIA-644 and TIA-485-A.
+        assert_eq!(ReceiverClass::type1().idle_state(), IdleState::Undefined);
+        assert_eq!(ReceiverClass::type2().idle_state(), IdleState::Low);
+        assert_eq!(ReceiverClass::lvds().idle_state(), IdleState::Undefined);
+        assert_eq!(ReceiverClass::tia485().idle_state(), IdleState::Undefined);
+        let t2 = ReceiverClass::type2();
+        assert_eq!(t2.read(0.100), IdleState::Undefined);
+        assert_eq!(t2.read(0.151), IdleState::High);
+        assert_eq!(t2.read(0.049), IdleState::Low);
+    }
+
+    #[test]
+    fn margins_against_a_swing() {
+        // 339 mV into a heavily loaded 30 Ω bus (common practice) against each class.
+        let a = 0.339;
+        assert!((ReceiverClass::type1().margin_v(a) - 0.289).abs() < 1e-12);
+        assert!((ReceiverClass::type2().margin_v(a) - 0.189).abs() < 1e-12);
+        assert!((ReceiverClass::tia485().margin_v(a) - 0.139).abs() < 1e-12);
+        // A 120 mV swing cannot reach a type-2 receiver's +150 mV high threshold.
+        assert!(ReceiverClass::type2().margin_v(0.120) < 0.0);
+    }
+}

@@ -41,7 +41,13 @@ fn from_toml(e: toml::de::Error, text: &str, file: &str) -> ScenarioError {
         return err;
     }
     let msg = msg.replace("missing field", "missing key");
-    ScenarioError::at(file, text, offset, &key, msg)
+    let err = ScenarioError::at(file, text, offset, &key, msg.clone());
+    if msg.contains("expected a string") {
+        return err.with_hint(
+            "quantities are strings with a unit, e.g. length = \"2.4 m\" or enable_time = \"7 ns\"",
+        );
+    }
+    err
 }
 
 /// Split serde's "unknown field `x`, expected one of `a`, `b`" (or "expected `a`").

@@ -145,7 +145,7 @@ pub fn validate(raw: &RawScenario, file: &str, src: &str) -> R<Spec> {
             format!("warmup ({warmup}) must be shorter than duration ({duration})"),
         ));
     }
-    let line = validate_line(&v, raw.line.get_ref())?;
+    let line = validate_line(&v, raw.line.get_ref(), raw.line.span())?;
     let frame = validate_frame(&v, raw.frame.get_ref())?;
     let nodes = validate_nodes(&v, raw, &line)?;
     let access = validate_access(&v, raw.access.get_ref(), raw.access.span(), &nodes, raw)?;
@@ -161,7 +161,7 @@ pub fn validate(raw: &RawScenario, file: &str, src: &str) -> R<Spec> {
     })
 }
 
-fn validate_line(v: &V, l: &RawLine) -> R<LineSpec> {
+fn validate_line(v: &V, l: &RawLine, at: Range<usize>) -> R<LineSpec> {
     let length_m = v.positive(&l.length, Dimension::Length, "line.length")?;
     let impedance_ohm = v.positive(&l.impedance, Dimension::Resistance, "line.impedance")?;
     let delay_s_per_m = match (&l.delay, &l.velocity_factor) {
@@ -186,7 +186,7 @@ fn validate_line(v: &V, l: &RawLine) -> R<LineSpec> {
         }
         (None, None) => {
             return Err(v.err(
-                0..0,
+                at,
                 "line",
                 "the line needs a delay (e.g. delay = \"5 ns/m\") or a velocity_factor",
             ))
@@ -290,7 +290,14 @@ fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec) -> R<Vec<NodeSpec>>
                 "a node name must not be empty",
             ));
         }
-        let transceiver = merge_transceiver(v, defaults, n.transceiver.as_ref(), &key, &name)?;
+        let transceiver = merge_transceiver(
+            v,
+            defaults,
+            n.transceiver.as_ref(),
+            &key,
+            &name,
+            n.name.span(),
+        )?;
         let turnaround = n
             .turnaround
             .as_ref()
@@ -350,8 +357,14 @@ fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec) -> R<Vec<NodeSpec>>
                     ),
                 ));
             }
-            let transceiver =
-                merge_transceiver(v, defaults, r.transceiver.as_ref(), "nodes", &name)?;
+            let transceiver = merge_transceiver(
+                v,
+                defaults,
+                r.transceiver.as_ref(),
+                "nodes",
+                &name,
+                r.prefix.span(),
+            )?;
             pending.push(Pending {
                 name,
                 name_span: r.prefix.span(),
@@ -426,6 +439,7 @@ fn merge_transceiver(
     over: Option<&RawTransceiver>,
     key: &str,
     node: &str,
+    at: Range<usize>,
 ) -> R<Transceiver> {
     let pick = |get: fn(&RawTransceiver) -> &Option<S>, name: &str| -> R<(S, String)> {
         if let Some(o) = over.and_then(|o| get(o).as_ref()) {
@@ -435,7 +449,7 @@ fn merge_transceiver(
             return Ok((d.clone(), format!("transceiver.{name}")));
         }
         Err(v.err(
-            0..0,
+            at.clone(),
             &format!("transceiver.{name}"),
             format!("node \"{node}\" has no transceiver.{name}: set it in [transceiver] or in the node's own transceiver table"),
         ))
@@ -458,7 +472,7 @@ fn merge_transceiver(
         }
         _ => (defaults, "transceiver".to_owned()),
     };
-    let receiver = receiver_class(v, level.0, &level.1, node)?;
+    let receiver = receiver_class(v, level.0, &level.1, node, at)?;
     Ok(Transceiver {
         drive_current_a,
         enable_time,
@@ -469,7 +483,13 @@ fn merge_transceiver(
     })
 }
 
-fn receiver_class(v: &V, t: &RawTransceiver, key: &str, node: &str) -> R<ReceiverClass> {
+fn receiver_class(
+    v: &V,
+    t: &RawTransceiver,
+    key: &str,
+    node: &str,
+    at: Range<usize>,
+) -> R<ReceiverClass> {
     match (&t.receiver, &t.thresholds) {
         (Some(r), None) => Ok(match v.choice(r, &format!("{key}.receiver"), RECEIVERS)? {
             "type1" => ReceiverClass::type1(),
@@ -492,7 +512,7 @@ fn receiver_class(v: &V, t: &RawTransceiver, key: &str, node: &str) -> R<Receive
         }
         (Some(r), Some(_)) => Err(v.err(r.span(), &format!("{key}.receiver"), "give receiver or thresholds, not both")),
         (None, None) => Err(v.err(
-            0..0,
+            at,
             "transceiver.receiver",
             format!("node \"{node}\" has no receiver class: set receiver = \"type1\", \"type2\", \"lvds\", \"tia485\" or thresholds = [low, high]"),
         )),
