@@ -221,14 +221,38 @@ pub enum Latency {
 #[derive(Clone, Debug, PartialEq)]
 pub enum AccessSpec {
     Polling(PollingSpec),
+    Token(TokenSpec),
 }
 
 impl AccessSpec {
     pub fn name(&self) -> &'static str {
         match self {
             AccessSpec::Polling(_) => "polling",
+            AccessSpec::Token(_) => "token",
         }
     }
+}
+
+/// Token passing on a logical ring.
+#[derive(Clone, Debug, PartialEq)]
+pub struct TokenSpec {
+    /// The ring, in token order.
+    pub order: Vec<NodeId>,
+    /// Total data bits of a token frame.
+    pub token_bits: u64,
+    /// Data frames a holder may send per token; 0 means no count limit.
+    pub max_per_token: u32,
+    /// Longest a holder may drive data, from its enable to the end of its last
+    /// data frame (its first frame is always allowed).
+    pub token_hold: Option<Picos>,
+    /// Turnaround of every node, indexed by [`NodeId`].
+    pub turnaround: Vec<Picos>,
+    pub response_latency: Latency,
+    /// Silence after which `recovery_node` regenerates the token.
+    pub token_timeout: Option<Picos>,
+    pub recovery_node: NodeId,
+    /// Instants from which the next token frame sent is lost.
+    pub lose_token_at: Vec<Picos>,
 }
 
 /// Master/slave polling.

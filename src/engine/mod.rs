@@ -27,6 +27,7 @@ pub enum FrameKind {
     Data,
     Poll,
     EmptyReply,
+    Token,
 }
 
 impl FrameKind {
@@ -35,6 +36,7 @@ impl FrameKind {
             FrameKind::Data => "data",
             FrameKind::Poll => "poll",
             FrameKind::EmptyReply => "empty-reply",
+            FrameKind::Token => "token",
         }
     }
 }
@@ -50,6 +52,8 @@ pub struct Reception {
     pub message: Option<Message>,
     /// When the frame's last bit left the driver.
     pub sent_end: Picos,
+    /// Bus id of the transmission that carried it.
+    pub occupancy: u64,
 }
 
 /// Events in the queue. Kept small and `Copy`: the queue never allocates per event.
@@ -269,6 +273,7 @@ impl Simulation {
             corrupted,
             message: f.message,
             sent_end: Picos(f.e),
+            occupancy: f.occupancy,
         };
         self.scheme.on_receive(&mut self.world, &rx);
     }

@@ -71,6 +71,49 @@ pub struct RawAccess {
     pub turnaround: Option<S>,
     pub response_latency: Option<Spanned<RawLatency>>,
     pub reply_timeout: Option<S>,
+    pub token_bits: Option<Spanned<u64>>,
+    pub max_per_token: Option<Spanned<u32>>,
+    pub token_hold: Option<S>,
+    pub token_timeout: Option<S>,
+    pub recovery_node: Option<S>,
+    pub faults: Option<Spanned<Vec<Spanned<RawFault>>>>,
+}
+
+impl RawAccess {
+    /// The keys present in the file, with their spans (for the
+    /// "does not apply to this scheme" check).
+    pub fn present(&self) -> Vec<(&'static str, std::ops::Range<usize>)> {
+        fn sp<T>(v: &Option<Spanned<T>>) -> Option<std::ops::Range<usize>> {
+            v.as_ref().map(|x| x.span())
+        }
+        let all = [
+            ("order", sp(&self.order)),
+            ("turnaround", sp(&self.turnaround)),
+            ("response_latency", sp(&self.response_latency)),
+            ("master", sp(&self.master)),
+            ("max_per_poll", sp(&self.max_per_poll)),
+            ("request_bits", sp(&self.request_bits)),
+            ("empty_reply_bits", sp(&self.empty_reply_bits)),
+            ("reply_timeout", sp(&self.reply_timeout)),
+            ("token_bits", sp(&self.token_bits)),
+            ("max_per_token", sp(&self.max_per_token)),
+            ("token_hold", sp(&self.token_hold)),
+            ("token_timeout", sp(&self.token_timeout)),
+            ("recovery_node", sp(&self.recovery_node)),
+            ("faults", sp(&self.faults)),
+        ];
+        all.into_iter()
+            .filter_map(|(k, s)| s.map(|s| (k, s)))
+            .collect()
+    }
+}
+
+/// An injected fault: `{ at = "3 ms", kind = "lose-token" }`.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawFault {
+    pub at: S,
+    pub kind: S,
 }
 
 #[derive(Debug, Deserialize)]

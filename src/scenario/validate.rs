@@ -6,113 +6,20 @@
 use std::collections::HashMap;
 use std::ops::Range;
 
-use super::error::{did_you_mean, ScenarioError};
+use super::check::{unknown_node, R, V};
 use super::raw::*;
 use crate::line::ReceiverClass;
 use crate::spec::*;
 use crate::units::{self, Dimension, Picos};
 use toml::Spanned;
 
-type R<T> = Result<T, ScenarioError>;
-
 /// Speed of light in vacuum (m/s), exact by the SI definition.
 const C_M_PER_S: f64 = 299_792_458.0;
 
-pub const SCHEMES: &[&str] = &["polling"];
 const ENCODINGS: &[&str] = &["nrz", "8b10b", "uart-8n1", "manchester"];
 const RECEIVERS: &[&str] = &["type1", "type2", "lvds", "tia485"];
 const PATTERNS: &[&str] = &["poisson", "periodic"];
 const TERMINATIONS: &[&str] = &["both-ends", "far-end", "none"];
-
-struct V<'a> {
-    file: &'a str,
-    src: &'a str,
-}
-
-impl<'a> V<'a> {
-    fn err(&self, span: Range<usize>, key: &str, msg: impl Into<String>) -> ScenarioError {
-        ScenarioError::at(self.file, self.src, span.start, key, msg)
-    }
-
-    fn qty(&self, v: &S, dim: Dimension, key: &str) -> R<f64> {
-        units::parse_quantity(v.get_ref(), dim).map_err(|e| self.err(v.span(), key, e.message))
-    }
-
-    fn positive(&self, v: &S, dim: Dimension, key: &str) -> R<f64> {
-        let x = self.qty(v, dim, key)?;
-        if x < 0.0 {
-            return Err(self.err(
-                v.span(),
-                key,
-                format!("negative {}: \"{}\"", noun(dim), v.get_ref()),
-            ));
-        }
-        if x == 0.0 {
-            return Err(self.err(
-                v.span(),
-                key,
-                format!("{} must be greater than zero", noun(dim)),
-            ));
-        }
-        Ok(x)
-    }
-
-    fn non_negative(&self, v: &S, dim: Dimension, key: &str) -> R<f64> {
-        let x = self.qty(v, dim, key)?;
-        if x < 0.0 {
-            return Err(self.err(
-                v.span(),
-                key,
-                format!("negative {}: \"{}\"", noun(dim), v.get_ref()),
-            ));
-        }
-        Ok(x)
-    }
-
-    fn time(&self, v: &S, key: &str) -> R<Picos> {
-        units::parse_time(v.get_ref()).map_err(|e| self.err(v.span(), key, e.message))
-    }
-
-    fn opt_time(&self, v: &Option<S>, key: &str, default: Picos) -> R<Picos> {
-        v.as_ref().map_or(Ok(default), |v| self.time(v, key))
-    }
-
-    fn choice<'c>(&self, v: &S, key: &str, allowed: &[&'c str]) -> R<&'c str> {
-        let s = v.get_ref().as_str();
-        if let Some(c) = allowed.iter().find(|c| **c == s) {
-            return Ok(c);
-        }
-        let list = allowed
-            .iter()
-            .map(|c| format!("\"{c}\""))
-            .collect::<Vec<_>>()
-            .join(", ");
-        let mut e = self.err(
-            v.span(),
-            key,
-            format!("unknown value \"{s}\"; expected one of {list}"),
-        );
-        if let Some(m) = did_you_mean(s, allowed.iter().copied()) {
-            e = e.with_hint(format!("did you mean \"{m}\"?"));
-        }
-        Err(e)
-    }
-}
-
-fn noun(dim: Dimension) -> &'static str {
-    match dim {
-        Dimension::Time => "time",
-        Dimension::Length => "length",
-        Dimension::Resistance => "resistance",
-        Dimension::Current => "current",
-        Dimension::Capacitance => "capacitance",
-        Dimension::Voltage => "voltage",
-        Dimension::BitRate => "bit rate",
-        Dimension::Rate => "rate",
-        Dimension::DataSize => "size",
-        Dimension::DelayPerLength => "delay per length",
-    }
-}
 
 /// Validate a parsed scenario. `file` names it in errors; `src` is its text.
 pub fn validate(raw: &RawScenario, file: &str, src: &str) -> R<Spec> {
@@ -148,7 +55,7 @@ pub fn validate(raw: &RawScenario, file: &str, src: &str) -> R<Spec> {
     let line = validate_line(&v, raw.line.get_ref(), raw.line.span())?;
     let frame = validate_frame(&v, raw.frame.get_ref())?;
     let nodes = validate_nodes(&v, raw, &line)?;
-    let access = validate_access(&v, raw.access.get_ref(), raw.access.span(), &nodes, raw)?;
+    let access = super::access::validate(&v, raw.access.get_ref(), raw.access.span(), &nodes)?;
     Ok(Spec {
         name,
         seed,
@@ -652,163 +559,4 @@ fn validate_traffic(
         },
         limit,
     ))
-}
-
-fn unknown_node(v: &V, name: &S, key: &str, names: &[String]) -> ScenarioError {
-    let mut e = v.err(
-        name.span(),
-        key,
-        format!("no node is called \"{}\"", name.get_ref()),
-    );
-    if let Some(m) = did_you_mean(name.get_ref(), names.iter().map(String::as_str)) {
-        e = e.with_hint(format!("did you mean \"{m}\"?"));
-    }
-    e
-}
-
-fn validate_access(
-    v: &V,
-    a: &RawAccess,
-    span: Range<usize>,
-    nodes: &[NodeSpec],
-    _raw: &RawScenario,
-) -> R<AccessSpec> {
-    let scheme = v.choice(&a.scheme, "access.scheme", SCHEMES)?;
-    debug_assert_eq!(scheme, "polling");
-    let names: Vec<String> = nodes.iter().map(|n| n.name.clone()).collect();
-    let find = |s: &S, key: &str| -> R<NodeId> {
-        names
-            .iter()
-            .position(|n| n == s.get_ref())
-            .ok_or_else(|| unknown_node(v, s, key, &names))
-    };
-    let master_raw = a.master.as_ref().ok_or_else(|| {
-        v.err(
-            span.clone(),
-            "access.master",
-            "polling needs a master: master = \"<node name>\"",
-        )
-    })?;
-    let master = find(master_raw, "access.master")?;
-    if !nodes[master].traffic.is_empty() {
-        return Err(v.err(
-            master_raw.span(),
-            "access.master",
-            format!(
-                "the master \"{}\" has traffic, but under polling only slaves send data",
-                names[master]
-            ),
-        ));
-    }
-    let order = match &a.order {
-        Some(list) => {
-            if list.get_ref().is_empty() {
-                return Err(v.err(
-                    list.span(),
-                    "access.order",
-                    "the poll order is empty: list at least one slave",
-                ));
-            }
-            let mut out = Vec::new();
-            for (i, s) in list.get_ref().iter().enumerate() {
-                let id = find(s, &format!("access.order[{i}]"))?;
-                if id == master {
-                    return Err(v.err(
-                        s.span(),
-                        &format!("access.order[{i}]"),
-                        "the master cannot poll itself",
-                    ));
-                }
-                out.push(id);
-            }
-            out
-        }
-        None => {
-            let mut ids: Vec<NodeId> = (0..nodes.len()).filter(|&i| i != master).collect();
-            ids.sort_by(|&x, &y| nodes[x].position_m.total_cmp(&nodes[y].position_m));
-            ids
-        }
-    };
-    for (i, n) in nodes.iter().enumerate() {
-        if i != master && !n.traffic.is_empty() && !order.contains(&i) {
-            return Err(v.err(
-                a.order.as_ref().map(|o| o.span()).unwrap_or(span.clone()),
-                "access.order",
-                format!("\"{}\" has traffic but is never polled", n.name),
-            ));
-        }
-        for t in &n.traffic {
-            if t.to == Some(i) {
-                unreachable!("self-addressed traffic is rejected earlier");
-            }
-        }
-    }
-    let default_turn = a
-        .turnaround
-        .as_ref()
-        .map(|t| v.time(t, "access.turnaround"))
-        .transpose()?;
-    let mut turnaround = Vec::with_capacity(nodes.len());
-    for n in nodes {
-        match n.turnaround.or(default_turn) {
-            Some(t) => turnaround.push(t),
-            None => {
-                return Err(v.err(
-                    span.clone(),
-                    "access.turnaround",
-                    format!(
-                    "node \"{}\" has no turnaround: set access.turnaround or the node's turnaround",
-                    n.name
-                ),
-                ))
-            }
-        }
-    }
-    let response_latency = match &a.response_latency {
-        None => Latency::Fixed(Picos::ZERO),
-        Some(l) => latency(v, l, "access.response_latency")?,
-    };
-    let timeout_raw = a.reply_timeout.as_ref().ok_or_else(|| {
-        v.err(
-            span.clone(),
-            "access.reply_timeout",
-            "polling needs reply_timeout, e.g. reply_timeout = \"2 us\"",
-        )
-    })?;
-    let reply_timeout = v.time(timeout_raw, "access.reply_timeout")?;
-    let fmt_overhead = |o: &Option<Spanned<u64>>| o.as_ref().map(|x| *x.get_ref());
-    Ok(AccessSpec::Polling(PollingSpec {
-        master,
-        order,
-        max_per_poll: a.max_per_poll.as_ref().map(|m| *m.get_ref()).unwrap_or(1),
-        request_bits: fmt_overhead(&a.request_bits).unwrap_or(0),
-        empty_reply_bits: fmt_overhead(&a.empty_reply_bits).unwrap_or(0),
-        turnaround,
-        response_latency,
-        reply_timeout,
-    }))
-}
-
-fn latency(v: &V, l: &Spanned<RawLatency>, key: &str) -> R<Latency> {
-    match l.get_ref() {
-        RawLatency::Fixed(s) => Ok(Latency::Fixed(v.time(&Spanned::new(l.span(), s.clone()), key)?)),
-        RawLatency::Table(t) => match (&t.min, &t.max, &t.mean, &t.sd) {
-            (Some(a), Some(b), None, None) => {
-                let (min, max) = (v.time(a, &format!("{key}.min"))?, v.time(b, &format!("{key}.max"))?);
-                if min > max {
-                    return Err(v.err(l.span(), key, format!("min ({min}) exceeds max ({max})")));
-                }
-                Ok(Latency::Uniform { min, max })
-            }
-            (None, None, Some(m), Some(s)) => Ok(Latency::Normal {
-                mean: v.time(m, &format!("{key}.mean"))?,
-                sd: v.time(s, &format!("{key}.sd"))?,
-            }),
-            _ => Err(v.err(
-                l.span(),
-                key,
-                "a latency is a time (\"20 ns\"), { min, max } for uniform, or { mean, sd } for normal",
-            )),
-        },
-    }
 }

@@ -9,6 +9,7 @@
 //! every scheme is judged by the same rules.
 
 pub mod polling;
+pub mod token;
 
 use rand::Rng;
 use rand_distr::{Distribution, Normal};
@@ -46,7 +47,14 @@ pub trait AccessScheme: std::fmt::Debug {
 pub fn build(spec: &Spec) -> Box<dyn AccessScheme> {
     match &spec.access {
         AccessSpec::Polling(p) => Box::new(polling::Polling::new(p.clone())),
+        AccessSpec::Token(t) => Box::new(token::Token::new(t.clone())),
     }
+}
+
+/// The default destination of schemes without a master: the first node of
+/// the scenario, or the second for the first node's own traffic.
+pub fn first_other_node(source: NodeId) -> NodeId {
+    usize::from(source == 0)
 }
 
 /// A scheme-specific figure with its unit.

@@ -1,0 +1,181 @@
+//! Validation of `[access]`: one file per scheme, sharing the helpers here.
+//!
+//! `[access]` is parsed into one flat struct holding every scheme's keys;
+//! a key that does not apply to the chosen scheme is an error that says so.
+
+mod polling;
+mod token;
+
+use std::ops::Range;
+
+use super::check::{latency, unknown_node, R, V};
+use super::raw::{RawAccess, S};
+use crate::spec::{AccessSpec, Latency, NodeId, NodeSpec};
+use crate::units::Picos;
+
+/// Values of `access.scheme`.
+pub const SCHEMES: &[&str] = &["polling", "token"];
+
+/// Keys every scheme accepts.
+const COMMON: &[&str] = &["scheme", "order", "turnaround", "response_latency"];
+
+/// What a scheme validator works from.
+pub(crate) struct Access<'a> {
+    pub v: &'a V<'a>,
+    pub a: &'a RawAccess,
+    pub span: Range<usize>,
+    pub nodes: &'a [NodeSpec],
+    pub names: Vec<String>,
+    pub scheme: &'static str,
+}
+
+pub fn validate(v: &V, a: &RawAccess, span: Range<usize>, nodes: &[NodeSpec]) -> R<AccessSpec> {
+    let scheme = v.choice(&a.scheme, "access.scheme", SCHEMES)?;
+    let allowed: &[&str] = match scheme {
+        "polling" => polling::KEYS,
+        _ => token::KEYS,
+    };
+    for (key, at) in a.present() {
+        if !COMMON.contains(&key) && !allowed.contains(&key) {
+            let mut e = v.err(
+                at,
+                &format!("access.{key}"),
+                format!("`{key}` does not apply to scheme \"{scheme}\""),
+            );
+            let mut keys: Vec<&str> = COMMON
+                .iter()
+                .chain(allowed)
+                .copied()
+                .filter(|k| *k != "scheme")
+                .collect();
+            keys.sort_unstable();
+            e = e.with_hint(format!("keys of \"{scheme}\": {}", keys.join(", ")));
+            return Err(e);
+        }
+    }
+    let ctx = Access {
+        v,
+        a,
+        span,
+        nodes,
+        names: nodes.iter().map(|n| n.name.clone()).collect(),
+        scheme,
+    };
+    match scheme {
+        "polling" => polling::validate(&ctx),
+        _ => token::validate(&ctx),
+    }
+}
+
+impl<'a> Access<'a> {
+    /// Resolve a node name.
+    pub fn find(&self, s: &S, key: &str) -> R<NodeId> {
+        self.names
+            .iter()
+            .position(|n| n == s.get_ref())
+            .ok_or_else(|| unknown_node(self.v, s, key, &self.names))
+    }
+
+    /// A required key, or an error naming it with an example.
+    pub fn required<'b, T>(&self, field: &'b Option<T>, key: &str, example: &str) -> R<&'b T> {
+        field.as_ref().ok_or_else(|| {
+            self.v.err(
+                self.span.clone(),
+                &format!("access.{key}"),
+                format!("{} needs {key}, e.g. {example}", self.scheme),
+            )
+        })
+    }
+
+    /// `access.order`, or every node but `exclude` in position order.
+    /// `what` names the list in errors ("poll order", "token ring").
+    pub fn order(&self, exclude: Option<NodeId>, what: &str) -> R<Vec<NodeId>> {
+        match &self.a.order {
+            Some(list) => {
+                if list.get_ref().is_empty() {
+                    return Err(self.v.err(
+                        list.span(),
+                        "access.order",
+                        format!("the {what} is empty: list at least one node"),
+                    ));
+                }
+                let mut out = Vec::new();
+                for (i, s) in list.get_ref().iter().enumerate() {
+                    let key = format!("access.order[{i}]");
+                    let id = self.find(s, &key)?;
+                    if Some(id) == exclude {
+                        return Err(self.v.err(
+                            s.span(),
+                            &key,
+                            format!("\"{}\" cannot be in the {what}", s.get_ref()),
+                        ));
+                    }
+                    out.push(id);
+                }
+                Ok(out)
+            }
+            None => {
+                let mut ids: Vec<NodeId> = (0..self.nodes.len())
+                    .filter(|&i| Some(i) != exclude)
+                    .collect();
+                ids.sort_by(|&x, &y| {
+                    self.nodes[x]
+                        .position_m
+                        .total_cmp(&self.nodes[y].position_m)
+                });
+                Ok(ids)
+            }
+        }
+    }
+
+    /// Every node with traffic must appear in `order`.
+    pub fn all_senders_in(&self, order: &[NodeId], what: &str) -> R<()> {
+        for (i, n) in self.nodes.iter().enumerate() {
+            if !n.traffic.is_empty() && !order.contains(&i) {
+                return Err(self.v.err(
+                    self.a
+                        .order
+                        .as_ref()
+                        .map(|o| o.span())
+                        .unwrap_or(self.span.clone()),
+                    "access.order",
+                    format!("\"{}\" has traffic but is not in the {what}", n.name),
+                ));
+            }
+        }
+        Ok(())
+    }
+
+    /// Per-node turnaround: the node's own, else `access.turnaround`.
+    pub fn turnarounds(&self) -> R<Vec<Picos>> {
+        let default = self
+            .a
+            .turnaround
+            .as_ref()
+            .map(|t| self.v.time(t, "access.turnaround"))
+            .transpose()?;
+        self.nodes
+            .iter()
+            .map(|n| {
+                n.turnaround.or(default).ok_or_else(|| {
+                    self.v.err(
+                        self.span.clone(),
+                        "access.turnaround",
+                        format!("node \"{}\" has no turnaround: set access.turnaround or the node's turnaround", n.name),
+                    )
+                })
+            })
+            .collect()
+    }
+
+    pub fn response_latency(&self) -> R<Latency> {
+        match &self.a.response_latency {
+            None => Ok(Latency::Fixed(Picos::ZERO)),
+            Some(l) => latency(self.v, l, "access.response_latency"),
+        }
+    }
+
+    pub fn count(&self, field: &Option<toml::Spanned<u64>>, default: u64) -> u64 {
+        field.as_ref().map(|x| *x.get_ref()).unwrap_or(default)
+    }
+}

@@ -1,0 +1,141 @@
+//! Checking single values: quantities with units, choices from a list,
+//! node references. Every failure is a positioned [`ScenarioError`].
+
+use std::ops::Range;
+
+use toml::Spanned;
+
+use super::error::{did_you_mean, ScenarioError};
+use super::raw::{RawLatency, S};
+use crate::spec::Latency;
+use crate::units::{self, Dimension, Picos};
+
+pub(crate) type R<T> = Result<T, ScenarioError>;
+
+/// The value checker: knows the file and its text, so errors can point into it.
+pub(crate) struct V<'a> {
+    pub file: &'a str,
+    pub src: &'a str,
+}
+
+impl<'a> V<'a> {
+    pub fn err(&self, span: Range<usize>, key: &str, msg: impl Into<String>) -> ScenarioError {
+        ScenarioError::at(self.file, self.src, span.start, key, msg)
+    }
+
+    pub fn qty(&self, v: &S, dim: Dimension, key: &str) -> R<f64> {
+        units::parse_quantity(v.get_ref(), dim).map_err(|e| self.err(v.span(), key, e.message))
+    }
+
+    pub fn positive(&self, v: &S, dim: Dimension, key: &str) -> R<f64> {
+        let x = self.qty(v, dim, key)?;
+        if x < 0.0 {
+            return Err(self.err(
+                v.span(),
+                key,
+                format!("negative {}: \"{}\"", noun(dim), v.get_ref()),
+            ));
+        }
+        if x == 0.0 {
+            return Err(self.err(
+                v.span(),
+                key,
+                format!("{} must be greater than zero", noun(dim)),
+            ));
+        }
+        Ok(x)
+    }
+
+    pub fn non_negative(&self, v: &S, dim: Dimension, key: &str) -> R<f64> {
+        let x = self.qty(v, dim, key)?;
+        if x < 0.0 {
+            return Err(self.err(
+                v.span(),
+                key,
+                format!("negative {}: \"{}\"", noun(dim), v.get_ref()),
+            ));
+        }
+        Ok(x)
+    }
+
+    pub fn time(&self, v: &S, key: &str) -> R<Picos> {
+        units::parse_time(v.get_ref()).map_err(|e| self.err(v.span(), key, e.message))
+    }
+
+    pub fn opt_time(&self, v: &Option<S>, key: &str, default: Picos) -> R<Picos> {
+        v.as_ref().map_or(Ok(default), |v| self.time(v, key))
+    }
+
+    pub fn choice<'c>(&self, v: &S, key: &str, allowed: &[&'c str]) -> R<&'c str> {
+        let s = v.get_ref().as_str();
+        if let Some(c) = allowed.iter().find(|c| **c == s) {
+            return Ok(c);
+        }
+        let list = allowed
+            .iter()
+            .map(|c| format!("\"{c}\""))
+            .collect::<Vec<_>>()
+            .join(", ");
+        let mut e = self.err(
+            v.span(),
+            key,
+            format!("unknown value \"{s}\"; expected one of {list}"),
+        );
+        if let Some(m) = did_you_mean(s, allowed.iter().copied()) {
+            e = e.with_hint(format!("did you mean \"{m}\"?"));
+        }
+        Err(e)
+    }
+}
+
+fn noun(dim: Dimension) -> &'static str {
+    match dim {
+        Dimension::Time => "time",
+        Dimension::Length => "length",
+        Dimension::Resistance => "resistance",
+        Dimension::Current => "current",
+        Dimension::Capacitance => "capacitance",
+        Dimension::Voltage => "voltage",
+        Dimension::BitRate => "bit rate",
+        Dimension::Rate => "rate",
+        Dimension::DataSize => "size",
+        Dimension::DelayPerLength => "delay per length",
+    }
+}
+
+pub fn unknown_node(v: &V, name: &S, key: &str, names: &[String]) -> ScenarioError {
+    let mut e = v.err(
+        name.span(),
+        key,
+        format!("no node is called \"{}\"", name.get_ref()),
+    );
+    if let Some(m) = did_you_mean(name.get_ref(), names.iter().map(String::as_str)) {
+        e = e.with_hint(format!("did you mean \"{m}\"?"));
+    }
+    e
+}
+
+/// A firmware latency: a time, `{ min, max }` (uniform) or `{ mean, sd }` (normal).
+pub fn latency(v: &V, l: &Spanned<RawLatency>, key: &str) -> R<Latency> {
+    match l.get_ref() {
+        RawLatency::Fixed(s) => Ok(Latency::Fixed(v.time(&Spanned::new(l.span(), s.clone()), key)?)),
+        RawLatency::Table(t) => match (&t.min, &t.max, &t.mean, &t.sd) {
+            (Some(a), Some(b), None, None) => {
+                let (min, max) = (v.time(a, &format!("{key}.min"))?, v.time(b, &format!("{key}.max"))?);
+                if min > max {
+                    return Err(v.err(l.span(), key, format!("min ({min}) exceeds max ({max})")));
+                }
+                Ok(Latency::Uniform { min, max })
+            }
+            (None, None, Some(m), Some(s)) => Ok(Latency::Normal {
+                mean: v.time(m, &format!("{key}.mean"))?,
+                sd: v.time(s, &format!("{key}.sd"))?,
+            }),
+            _ => Err(v.err(
+                l.span(),
+                key,
+                "a latency is a time (\"20 ns\"), { min, max } for uniform, or { mean, sd } for normal",
+            )),
+        },
+    }
+}

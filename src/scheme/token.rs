@@ -1,0 +1,233 @@
+//! Token passing on a logical ring.
+//!
+//! The holder of the token, once its receiver output has shown the end of
+//! the token frame, waits its turnaround plus a response latency, asserts its
+//! enable and sends what was queued at that instant (up to `max_per_token`
+//! data frames, and within `token_hold`), then the token frame to the next
+//! node in `order`, all in one transmission. With nothing queued it sends
+//! the token alone.
+//!
+//! Zero-load rotation, with e, r, T as for polling and Lt the line bits of a token:
+//!
+//! ```text
+//! rotation = Σ_i [ T_i + e_i + Lt·tb + d(i, i+1) + r_(i+1) ]
+//! ```
+//!
+//! **Token loss** (`faults = [{ at, kind = "lose-token" }]`): the first token
+//! frame sent at or after `at` is lost (it occupies the wire, but its
+//! addressee never accepts it). The recovery node watches the line: when its
+//! receiver has shown no driver for `token_timeout`, it regenerates the token
+//! and acts as the holder. The watchdog runs all the time, so a timeout that
+//! is shorter than a normal silent gap regenerates a token that was not lost,
+//! with the duplicate tokens that follow on a real ring.
+
+use tracing::debug;
+
+use super::{
+    first_other_node, sample_latency, AccessScheme, DurationStat, SchemeReport, SchemeValue,
+};
+use crate::engine::{Dest, FrameKind, FrameOut, Reception, TxTimes, World};
+use crate::spec::{NodeId, TokenSpec};
+use crate::units::Picos;
+
+const WATCHDOG: u64 = 1;
+
+#[derive(Debug)]
+pub struct Token {
+    spec: TokenSpec,
+    /// Position in `order` of each node's successor, by node (usize::MAX if not in the ring).
+    next_of: Vec<usize>,
+    /// The occupancy carrying a lost token frame.
+    lost: Option<u64>,
+    /// When the lost token frame left the wire at its sender (release).
+    lost_at: Picos,
+    next_fault: usize,
+    /// Watchdog: deadline and generation of the live timer.
+    deadline: Picos,
+    generation: u64,
+    last_head_visit: Option<Picos>,
+    rotations: DurationStat,
+    recoveries: DurationStat,
+    passes: u64,
+    lost_tokens: u64,
+}
+
+impl Token {
+    pub fn new(spec: TokenSpec) -> Self {
+        let n = spec.turnaround.len();
+        let mut next_of = vec![usize::MAX; n];
+        for (i, &node) in spec.order.iter().enumerate() {
+            next_of[node] = spec.order[(i + 1) % spec.order.len()];
+        }
+        Token {
+            spec,
+            next_of,
+            lost: None,
+            lost_at: Picos::ZERO,
+            next_fault: 0,
+            deadline: Picos::MAX,
+            generation: 0,
+            last_head_visit: None,
+            rotations: DurationStat::default(),
+            recoveries: DurationStat::default(),
+            passes: 0,
+            lost_tokens: 0,
+        }
+    }
+
+    /// `node` holds the token and asserts its enable at `enable`.
+    fn hold(&mut self, w: &mut World, node: NodeId, enable: Picos) {
+        if node == self.spec.order[0] {
+            if let Some(prev) = self.last_head_visit {
+                if prev >= w.spec().warmup && w.in_window(enable) {
+                    self.rotations.record((enable - prev).0);
+                }
+            }
+            self.last_head_visit = Some(enable);
+        }
+        let limit = match self.spec.max_per_token {
+            0 => usize::MAX,
+            n => n as usize,
+        };
+        let overhead = w.spec().frame.overhead_bits;
+        let first_bit = enable + w.spec().nodes[node].transceiver.enable_time;
+        let mut end = first_bit;
+        let mut sent = 0usize;
+        w.begin_tx(node, enable);
+        while sent < limit && w.queue_len(node) > 0 {
+            let msg = w.pop_message(node).expect("queue checked");
+            let frame = FrameOut::data(msg, overhead);
+            let gap = if sent > 0 {
+                w.spec().frame.interframe_gap
+            } else {
+                Picos::ZERO
+            };
+            let frame_end = end
+                + gap
+                + w.spec()
+                    .frame
+                    .duration(w.spec().frame.encoding.line_bits(frame.data_bits));
+            if let Some(hold) = self.spec.token_hold {
+                if sent > 0 && frame_end - enable > hold {
+                    w.push_front(node, msg);
+                    break;
+                }
+            }
+            w.count_access_attempt();
+            w.add_frame(frame);
+            end = frame_end;
+            sent += 1;
+        }
+        let next = self.next_of[node];
+        w.add_frame(FrameOut::control(
+            FrameKind::Token,
+            Dest::Node(next),
+            self.spec.token_bits,
+        ));
+        let tx = w.finish_tx();
+        if w.in_window(enable) {
+            self.passes += 1;
+        }
+        if self.next_fault < self.spec.lose_token_at.len()
+            && self.spec.lose_token_at[self.next_fault] <= enable
+        {
+            self.next_fault += 1;
+            self.lost = Some(tx.occupancy);
+            self.lost_at = tx.release;
+            if w.in_window(enable) {
+                self.lost_tokens += 1;
+            }
+            debug!(t_ps = enable.0, holder = %w.spec().nodes[node].name, "token lost");
+        }
+        debug!(t_ps = w.now().0, holder = %w.spec().nodes[node].name, frames = sent, enable_ps = enable.0, "token held");
+        self.watch(w, node, tx);
+    }
+
+    /// Re-arm the recovery node's silence watchdog for a new transmission.
+    fn watch(&mut self, w: &mut World, node: NodeId, tx: TxTimes) {
+        let Some(timeout) = self.spec.token_timeout else {
+            return;
+        };
+        let r = self.spec.recovery_node;
+        let starts = w.seen_at(node, r, tx.enable);
+        if starts >= self.deadline {
+            // The watchdog fires before this signal reaches the recovery node.
+            return;
+        }
+        self.deadline = w.seen_at(node, r, tx.off) + timeout;
+        self.generation += 1;
+        w.set_timer(r, self.deadline, (self.generation << 8) | WATCHDOG);
+    }
+}
+
+impl AccessScheme for Token {
+    fn name(&self) -> &'static str {
+        "token"
+    }
+
+    fn default_destination(&self, source: NodeId) -> NodeId {
+        first_other_node(source)
+    }
+
+    fn start(&mut self, w: &mut World) {
+        let head = self.spec.order[0];
+        self.hold(w, head, Picos::ZERO);
+    }
+
+    fn on_timer(&mut self, w: &mut World, node: NodeId, tag: u64) {
+        if tag & 0xff != WATCHDOG || tag >> 8 != self.generation {
+            return; // superseded by later activity
+        }
+        // Silence for token_timeout at the recovery node: regenerate the token.
+        self.deadline = Picos::MAX;
+        if w.in_window(w.now()) {
+            self.recoveries
+                .record((w.now() - self.lost_at.min(w.now())).0);
+        }
+        debug!(t_ps = w.now().0, node = %w.spec().nodes[node].name, "token regenerated");
+        self.lost = None;
+        self.hold(w, node, w.now());
+    }
+
+    fn on_receive(&mut self, w: &mut World, rx: &Reception) {
+        if rx.kind != FrameKind::Token || rx.corrupted {
+            return;
+        }
+        if self.lost.is_some_and(|occ| occ == rx.occupancy) {
+            return; // the lost token: nobody accepts it
+        }
+        let node = rx.at;
+        let wait =
+            self.spec.turnaround[node] + sample_latency(&self.spec.response_latency, w.rng(node));
+        let enable = w.now() + wait;
+        self.hold(w, node, enable);
+    }
+
+    fn report(&self, _w: &World) -> SchemeReport {
+        SchemeReport {
+            name: "token",
+            fields: vec![
+                (
+                    "rotation_mean_s",
+                    SchemeValue::Seconds(self.rotations.mean_s()),
+                ),
+                (
+                    "rotation_max_s",
+                    SchemeValue::Seconds(self.rotations.max_s()),
+                ),
+                ("rotations", SchemeValue::Count(self.rotations.count)),
+                ("token_passes", SchemeValue::Count(self.passes)),
+                ("tokens_lost", SchemeValue::Count(self.lost_tokens)),
+                ("recoveries", SchemeValue::Count(self.recoveries.count)),
+                (
+                    "recovery_mean_s",
+                    SchemeValue::Seconds(self.recoveries.mean_s()),
+                ),
+                (
+                    "recovery_max_s",
+                    SchemeValue::Seconds(self.recoveries.max_s()),
+                ),
+            ],
+        }
+    }
+}
