@@ -202,19 +202,15 @@ impl FrameFormat {
     }
 }
 
-/// A random firmware latency added on top of a turnaround.
+/// A random delay: a firmware latency on top of a turnaround, or a backoff.
 #[derive(Clone, Debug, PartialEq)]
 pub enum Latency {
     Fixed(Picos),
-    Uniform {
-        min: Picos,
-        max: Picos,
-    },
+    Uniform { min: Picos, max: Picos },
     /// Normal, truncated at zero (negative draws become zero).
-    Normal {
-        mean: Picos,
-        sd: Picos,
-    },
+    Normal { mean: Picos, sd: Picos },
+    /// Exponential (memoryless) with the given mean.
+    Exponential { mean: Picos },
 }
 
 /// The access scheme and its parameters.
@@ -222,6 +218,7 @@ pub enum Latency {
 pub enum AccessSpec {
     Polling(PollingSpec),
     Token(TokenSpec),
+    Aloha(AlohaSpec),
 }
 
 impl AccessSpec {
@@ -229,6 +226,7 @@ impl AccessSpec {
         match self {
             AccessSpec::Polling(_) => "polling",
             AccessSpec::Token(_) => "token",
+            AccessSpec::Aloha(_) => "aloha",
         }
     }
 }
@@ -272,4 +270,18 @@ pub struct PollingSpec {
     pub response_latency: Latency,
     /// How long after the end of its request the master waits for a reply to begin.
     pub reply_timeout: Picos,
+}
+
+/// ALOHA, pure or slotted, with ideal feedback.
+#[derive(Clone, Debug, PartialEq)]
+pub struct AlohaSpec {
+    pub slotted: bool,
+    /// Slot length (slotted only): transmissions start at multiples of it.
+    pub slot_time: Picos,
+    /// After the end of its frame a sender learns the outcome this much later.
+    pub ack_timeout: Picos,
+    /// Delay before a retransmission (rounded up to a slot boundary when slotted).
+    pub backoff: Latency,
+    /// Attempts after which a message is dropped; 0 = never.
+    pub max_attempts: u32,
 }

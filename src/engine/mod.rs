@@ -206,7 +206,7 @@ impl Simulation {
         if counted {
             w.stats.frames.arrived += 1;
         }
-        if w.queues[node].len() >= w.queue_limit[node] {
+        if w.queues[node].len() + w.holding[node] >= w.queue_limit[node] {
             if counted {
                 w.stats.frames.dropped += 1;
             }

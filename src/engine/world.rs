@@ -105,6 +105,9 @@ pub struct World {
     pub(crate) bus: Bus,
     pub(crate) queues: Vec<VecDeque<Message>>,
     pub(crate) queue_limit: Vec<usize>,
+    /// Messages a scheme has taken from a queue but still holds (in flight,
+    /// awaiting an outcome or a retry); they count against `queue_limit`.
+    pub(crate) holding: Vec<usize>,
     pub(crate) access_rng: Vec<Stream>,
     pub(crate) frames: Vec<FrameRec>,
     pub(crate) free_frames: Vec<u32>,
@@ -136,6 +139,7 @@ impl World {
             queue: EventQueue::with_capacity(256),
             queues: (0..n).map(|_| VecDeque::with_capacity(16)).collect(),
             queue_limit,
+            holding: vec![0; n],
             access_rng,
             frames: Vec::with_capacity(64),
             free_frames: Vec::with_capacity(64),
@@ -171,6 +175,12 @@ impl World {
     /// Take the oldest message queued at `node`.
     pub fn pop_message(&mut self, node: NodeId) -> Option<Message> {
         self.queues[node].pop_front()
+    }
+
+    /// Tell the engine how many messages the scheme holds for `node` outside
+    /// its queue; they count against the node's `queue_limit`.
+    pub fn set_holding(&mut self, node: NodeId, messages: usize) {
+        self.holding[node] = messages;
     }
 
     /// Put a message back at the head of its queue (for retransmission).

@@ -131,10 +131,17 @@ pub fn latency(v: &V, l: &Spanned<RawLatency>, key: &str) -> R<Latency> {
                 mean: v.time(m, &format!("{key}.mean"))?,
                 sd: v.time(s, &format!("{key}.sd"))?,
             }),
+            (None, None, Some(m), None) => {
+                let mean = v.time(m, &format!("{key}.mean"))?;
+                if mean == Picos::ZERO {
+                    return Err(v.err(m.span(), &format!("{key}.mean"), "an exponential mean must be greater than zero"));
+                }
+                Ok(Latency::Exponential { mean })
+            }
             _ => Err(v.err(
                 l.span(),
                 key,
-                "a latency is a time (\"20 ns\"), { min, max } for uniform, or { mean, sd } for normal",
+                "a random time is a time (\"20 ns\"), { min, max } for uniform, { mean, sd } for normal, or { mean } for exponential",
             )),
         },
     }

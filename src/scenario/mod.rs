@@ -1,7 +1,7 @@
 //! Scenario files: TOML text → raw structs (serde, spans kept) → validated [`Spec`].
 
 mod access;
-mod check;
+pub(crate) mod check;
 pub mod error;
 pub mod keypath;
 pub mod raw;

@@ -77,6 +77,11 @@ pub struct RawAccess {
     pub token_timeout: Option<S>,
     pub recovery_node: Option<S>,
     pub faults: Option<Spanned<Vec<Spanned<RawFault>>>>,
+    pub slotted: Option<Spanned<bool>>,
+    pub slot_time: Option<S>,
+    pub ack_timeout: Option<S>,
+    pub backoff: Option<Spanned<RawLatency>>,
+    pub max_attempts: Option<Spanned<u32>>,
 }
 
 impl RawAccess {
@@ -101,6 +106,11 @@ impl RawAccess {
             ("token_timeout", sp(&self.token_timeout)),
             ("recovery_node", sp(&self.recovery_node)),
             ("faults", sp(&self.faults)),
+            ("slotted", sp(&self.slotted)),
+            ("slot_time", sp(&self.slot_time)),
+            ("ack_timeout", sp(&self.ack_timeout)),
+            ("backoff", sp(&self.backoff)),
+            ("max_attempts", sp(&self.max_attempts)),
         ];
         all.into_iter()
             .filter_map(|(k, s)| s.map(|s| (k, s)))

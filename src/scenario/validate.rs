@@ -55,7 +55,7 @@ pub fn validate(raw: &RawScenario, file: &str, src: &str) -> R<Spec> {
     let line = validate_line(&v, raw.line.get_ref(), raw.line.span())?;
     let frame = validate_frame(&v, raw.frame.get_ref())?;
     let nodes = validate_nodes(&v, raw, &line)?;
-    let access = super::access::validate(&v, raw.access.get_ref(), raw.access.span(), &nodes)?;
+    let access = super::access::validate(&v, raw.access.get_ref(), raw.access.span(), &nodes, &line, &frame)?;
     Ok(Spec {
         name,
         seed,

@@ -8,11 +8,12 @@
 //! delays, contention and corruption belong to the engine and the bus, so
 //! every scheme is judged by the same rules.
 
+pub mod aloha;
 pub mod polling;
 pub mod token;
 
 use rand::Rng;
-use rand_distr::{Distribution, Normal};
+use rand_distr::{Distribution, Exp, Normal};
 
 use crate::engine::rng::Stream;
 use crate::engine::{Reception, World};
@@ -48,6 +49,7 @@ pub fn build(spec: &Spec) -> Box<dyn AccessScheme> {
     match &spec.access {
         AccessSpec::Polling(p) => Box::new(polling::Polling::new(p.clone())),
         AccessSpec::Token(t) => Box::new(token::Token::new(t.clone())),
+        AccessSpec::Aloha(a) => Box::new(aloha::Aloha::new(a.clone(), spec.nodes.len())),
     }
 }
 
@@ -98,6 +100,11 @@ pub fn sample_latency(latency: &Latency, rng: &mut Stream) -> Picos {
             }
             let n = Normal::new(mean.0 as f64, sd.0 as f64).expect("sd validated ≥ 0");
             Picos(n.sample(rng).max(0.0).round() as u64)
+        }
+        Latency::Exponential { mean } => {
+            let e = Exp::new(1.0 / mean.0 as f64).expect("mean validated > 0");
+            let x: f64 = e.sample(rng);
+            Picos(x.round() as u64)
         }
     }
 }

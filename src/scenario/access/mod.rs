@@ -3,6 +3,7 @@
 //! `[access]` is parsed into one flat struct holding every scheme's keys;
 //! a key that does not apply to the chosen scheme is an error that says so.
 
+mod aloha;
 mod polling;
 mod token;
 
@@ -10,11 +11,11 @@ use std::ops::Range;
 
 use super::check::{latency, unknown_node, R, V};
 use super::raw::{RawAccess, S};
-use crate::spec::{AccessSpec, Latency, NodeId, NodeSpec};
+use crate::spec::{AccessSpec, FrameFormat, Latency, LineSpec, NodeId, NodeSpec};
 use crate::units::Picos;
 
 /// Values of `access.scheme`.
-pub const SCHEMES: &[&str] = &["polling", "token"];
+pub const SCHEMES: &[&str] = &["polling", "token", "aloha"];
 
 /// Keys every scheme accepts.
 const COMMON: &[&str] = &["scheme", "order", "turnaround", "response_latency"];
@@ -25,15 +26,25 @@ pub(crate) struct Access<'a> {
     pub a: &'a RawAccess,
     pub span: Range<usize>,
     pub nodes: &'a [NodeSpec],
+    pub line: &'a LineSpec,
+    pub frame: &'a FrameFormat,
     pub names: Vec<String>,
     pub scheme: &'static str,
 }
 
-pub fn validate(v: &V, a: &RawAccess, span: Range<usize>, nodes: &[NodeSpec]) -> R<AccessSpec> {
+pub fn validate(
+    v: &V,
+    a: &RawAccess,
+    span: Range<usize>,
+    nodes: &[NodeSpec],
+    line: &LineSpec,
+    frame: &FrameFormat,
+) -> R<AccessSpec> {
     let scheme = v.choice(&a.scheme, "access.scheme", SCHEMES)?;
     let allowed: &[&str] = match scheme {
         "polling" => polling::KEYS,
-        _ => token::KEYS,
+        "token" => token::KEYS,
+        _ => aloha::KEYS,
     };
     for (key, at) in a.present() {
         if !COMMON.contains(&key) && !allowed.contains(&key) {
@@ -58,12 +69,15 @@ pub fn validate(v: &V, a: &RawAccess, span: Range<usize>, nodes: &[NodeSpec]) ->
         a,
         span,
         nodes,
+        line,
+        frame,
         names: nodes.iter().map(|n| n.name.clone()).collect(),
         scheme,
     };
     match scheme {
         "polling" => polling::validate(&ctx),
-        _ => token::validate(&ctx),
+        "token" => token::validate(&ctx),
+        _ => aloha::validate(&ctx),
     }
 }
 
@@ -173,6 +187,33 @@ impl<'a> Access<'a> {
             None => Ok(Latency::Fixed(Picos::ZERO)),
             Some(l) => latency(self.v, l, "access.response_latency"),
         }
+    }
+
+    /// The largest wire delay between any two nodes plus the largest
+    /// receiver delay: how long until every node can know a frame's fate.
+    pub fn max_lag(&self) -> Picos {
+        let total: f64 = self.nodes.iter().map(|n| n.transceiver.load_f).sum();
+        let (lo, hi) = self.nodes.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), n| {
+            (lo.min(n.position_m), hi.max(n.position_m))
+        });
+        let line = crate::line::LoadedLine::new(self.line.impedance_ohm, self.line.delay_s_per_m, self.line.length_m, total);
+        let wire = Picos(((hi - lo) * line.delay_s_per_m * 1e12).round() as u64);
+        wire + self.nodes.iter().map(|n| n.transceiver.receiver_delay).max().unwrap_or(Picos::ZERO)
+    }
+
+    /// Time on the wire of the longest data frame any source can send.
+    pub fn longest_data_frame(&self) -> Picos {
+        let bits = self
+            .nodes
+            .iter()
+            .flat_map(|n| &n.traffic)
+            .map(|t| match t.payload {
+                crate::spec::Payload::Fixed { bits } => bits,
+                crate::spec::Payload::Uniform { max_bits, .. } => max_bits,
+            })
+            .max()
+            .unwrap_or(0);
+        self.frame.duration(self.frame.data_line_bits(bits))
     }
 
     pub fn count(&self, field: &Option<toml::Spanned<u64>>, default: u64) -> u64 {
