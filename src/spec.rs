@@ -9,6 +9,10 @@
 use crate::line::ReceiverClass;
 use crate::units::Picos;
 
+/// Queue capacity of a node that sets no `queue_limit`: large enough never to
+/// matter on a bus that keeps up, and a bound on memory on one that does not.
+pub const DEFAULT_QUEUE_LIMIT: usize = 10_000;
+
 /// Index of a node in [`Spec::nodes`].
 pub type NodeId = usize;
 
@@ -89,7 +93,8 @@ pub struct NodeSpec {
     pub traffic: Vec<TrafficSpec>,
     /// The node's own turnaround, overriding the access scheme's default.
     pub turnaround: Option<Picos>,
-    /// Maximum number of queued messages; arrivals beyond it are dropped and counted.
+    /// Maximum number of queued messages; arrivals beyond it are dropped and
+    /// counted. `None` means [`DEFAULT_QUEUE_LIMIT`].
     pub queue_limit: Option<usize>,
 }
 
@@ -206,11 +211,19 @@ impl FrameFormat {
 #[derive(Clone, Debug, PartialEq)]
 pub enum Latency {
     Fixed(Picos),
-    Uniform { min: Picos, max: Picos },
+    Uniform {
+        min: Picos,
+        max: Picos,
+    },
     /// Normal, truncated at zero (negative draws become zero).
-    Normal { mean: Picos, sd: Picos },
+    Normal {
+        mean: Picos,
+        sd: Picos,
+    },
     /// Exponential (memoryless) with the given mean.
-    Exponential { mean: Picos },
+    Exponential {
+        mean: Picos,
+    },
 }
 
 /// The access scheme and its parameters.

@@ -109,3 +109,82 @@ pub fn sources(spec: &Spec) -> Vec<Source> {
     }
     out
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::spec::Spec;
+
+    fn spec(count: usize, rate_s01: f64) -> Spec {
+        let text = format!(
+            r#"
+duration = "1 ms"
+[line]
+length = "2 m"
+impedance = "100 ohm"
+delay = "5 ns/m"
+[transceiver]
+drive_current = "11.3 mA"
+enable_time = "7 ns"
+disable_time = "9 ns"
+receiver_delay = "5 ns"
+load = "5 pF"
+receiver = "type2"
+[frame]
+bit_rate = "100 Mbit/s"
+overhead_bits = 48
+[access]
+scheme = "polling"
+master = "m"
+turnaround = "20 ns"
+reply_timeout = "5 us"
+[[node]]
+name = "m"
+position = "0 m"
+[[node]]
+name = "s01"
+position = "0.2 m"
+traffic = {{ pattern = "poisson", rate = "{rate_s01}/s", payload = ["8 B", "64 B"] }}
+[nodes]
+count = {count}
+first = "0.5 m"
+spacing = "0.1 m"
+prefix = "x"
+traffic = {{ pattern = "poisson", rate = "10000/s", payload = ["8 B", "64 B"] }}
+"#
+        );
+        crate::scenario::parse_str(&text, "t.toml").unwrap()
+    }
+
+    fn arrivals(spec: &Spec, node: &str, n: usize) -> Vec<(u64, u64)> {
+        let id = spec.node_id(node).unwrap();
+        let mut src = sources(spec).into_iter().find(|s| s.node == id).unwrap();
+        let mut t = Picos::ZERO;
+        (0..n)
+            .map(|_| {
+                t = src.next_arrival(t);
+                (t.0, src.draw_payload())
+            })
+            .collect()
+    }
+
+    #[test]
+    fn a_nodes_arrivals_do_not_depend_on_other_nodes() {
+        let base = spec(4, 10_000.0);
+        // Changing s01's traffic leaves x03's arrival stream unchanged...
+        assert_eq!(
+            arrivals(&base, "x03", 500),
+            arrivals(&spec(4, 77_777.0), "x03", 500)
+        );
+        // ...while s01's own stream changes.
+        assert_ne!(
+            arrivals(&base, "s01", 50),
+            arrivals(&spec(4, 77_777.0), "s01", 50)
+        );
+        // Adding nodes does not move the others either.
+        assert_eq!(
+            arrivals(&base, "x02", 500),
+            arrivals(&spec(9, 10_000.0), "x02", 500)
+        );
+    }
+}

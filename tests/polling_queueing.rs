@@ -9,8 +9,7 @@
 
 mod common;
 
-use common::{mean_ci, pollaczek_khinchine, takagi, Bus};
-use serde_json::Value;
+use common::{loaded_tpd, mean_ci, par_map, pollaczek_khinchine, takagi, Bus};
 
 const TB: f64 = 10e-9; // 100 Mbit/s
 const LD: f64 = 560.0; // 48 overhead + 512 payload bits, NRZ
@@ -24,16 +23,17 @@ struct Setup {
     lambda: f64,
 }
 
-/// One replication's mean wait, and the wire delays used for it.
+/// One replication's mean wait (through the built binary).
 fn mean_wait(bus: &Bus) -> f64 {
-    let spec = bus.spec();
-    let line = halfwire::line::LineModel::new(&spec);
-    let j: Value = serde_json::to_value(halfwire::simulate(&spec)).unwrap();
-    let master = spec.node_id("m").unwrap();
+    let j = bus.run();
+    // Wire delay slave → master from the handbook loaded-line formula.
+    let tpd = loaded_tpd(5e-9, 100.0, (bus.slaves + 1) as f64 * 5e-12, bus.length_m);
     let (mut sum, mut count) = (0.0, 0.0);
     for (name, l) in j["latency_s"]["nodes"].as_object().unwrap() {
-        let id = spec.node_id(name).unwrap();
-        let tail = 20e-9 + 7e-9 + LD * TB + line.delay(id, master).as_secs_f64() + 5e-9;
+        let k: f64 = name.trim_start_matches('s').parse().unwrap();
+        let x = bus.first_m + bus.spacing_m * (k - 1.0);
+        let d = (x * tpd * 1e12).round() * 1e-12;
+        let tail = 20e-9 + 7e-9 + LD * TB + d + 5e-9;
         let n = l["count"].as_f64().unwrap();
         sum += (l["mean"].as_f64().unwrap() - tail) * n;
         count += n;

@@ -3,23 +3,11 @@
 
 mod common;
 
-use common::Bus;
-use halfwire::report::Report;
+use common::{loaded_tpd, Bus};
 use serde_json::Value;
-
-fn json(r: &Report) -> Value {
-    serde_json::to_value(r).expect("report serializes")
-}
 
 fn ps(x: &Value) -> u64 {
     (x.as_f64().expect("a number") * 1e12).round() as u64
-}
-
-/// Loaded delay per metre from the handbook formula (Johnson & Graham, High-Speed
-/// Digital Design, 1993): tpd' = tpd0·sqrt(1 + C_d·n / C0), C0 = tpd0 / Z0.
-fn loaded_tpd(tpd0: f64, z0: f64, total_load_f: f64, length_m: f64) -> f64 {
-    let c0 = tpd0 / z0;
-    tpd0 * (1.0 + total_load_f / length_m / c0).sqrt()
 }
 
 #[test]
@@ -29,8 +17,7 @@ fn zero_load_cycle_is_the_sum_of_the_timing_terms() {
         duration: "200 us",
         ..Bus::default()
     };
-    let report = halfwire::simulate(&bus.spec());
-    let j = json(&report);
+    let j = bus.run();
     // Independent computation of the documented cycle:
     // Σ_i [e_M + Lp·tb + d(M,i) + r_i + T_i + e_i + Le·tb + d(i,M) + r_M + T_M]
     let tpd = loaded_tpd(5e-9, 100.0, 6.0 * 5e-12, bus.length_m);
@@ -65,8 +52,8 @@ fn slave_turnaround_threshold_to_the_picosecond() {
         turnaround: "3.999 ns",
         ..at.clone()
     };
-    let ja = json(&halfwire::simulate(&at.spec()));
-    let jb = json(&halfwire::simulate(&below.spec()));
+    let ja = at.run();
+    let jb = below.run();
     assert_eq!(ja["contention"]["events"], 0, "at the boundary: no overlap");
     let c = &jb["contention"];
     assert!(c["events"].as_u64().unwrap() > 0, "1 ps below: contention");
@@ -97,8 +84,8 @@ fn master_turnaround_threshold_to_the_picosecond() {
         master_turnaround: "3.999 ns",
         ..at.clone()
     };
-    let ja = json(&halfwire::simulate(&at.spec()));
-    let jb = json(&halfwire::simulate(&below.spec()));
+    let ja = at.run();
+    let jb = below.run();
     assert_eq!(ja["contention"]["events"], 0);
     assert!(jb["contention"]["events"].as_u64().unwrap() > 0);
     assert_eq!(ps(&jb["contention"]["overlap_max_s"]), 1);
@@ -119,11 +106,8 @@ fn threshold_follows_the_previous_drivers_disable_time() {
         master_turnaround: "19.999 ns",
         ..at.clone()
     };
-    assert_eq!(
-        json(&halfwire::simulate(&at.spec()))["contention"]["events"],
-        0
-    );
-    let jb = json(&halfwire::simulate(&below.spec()));
+    assert_eq!(at.run()["contention"]["events"], 0);
+    let jb = below.run();
     assert_eq!(ps(&jb["contention"]["overlap_max_s"]), 1);
 }
 
@@ -140,8 +124,8 @@ fn type1_receivers_see_every_hand_over_gap() {
         receiver: "type2",
         ..t1.clone()
     };
-    let j1 = json(&halfwire::simulate(&t1.spec()));
-    let j2 = json(&halfwire::simulate(&t2.spec()));
+    let j1 = t1.run();
+    let j2 = t2.run();
     assert!(j1["floating"]["windows"].as_u64().unwrap() > 0);
     assert_eq!(j2["floating"]["windows"], 0);
     // A 20 ns slave turnaround + 5 ns receiver delay − 9 ns disable leaves the
@@ -158,7 +142,7 @@ fn utilization_partitions_the_window() {
         warmup: "1 ms",
         ..Bus::default()
     };
-    let j = json(&halfwire::simulate(&bus.spec()));
+    let j = bus.run();
     let u = &j["utilization"];
     let sum: f64 = ["payload", "overhead", "gaps", "idle", "wasted"]
         .iter()

@@ -3,7 +3,7 @@
 
 mod common;
 
-use common::{mean_ci, takagi};
+use common::{mean_ci, par_map, takagi};
 use serde_json::Value;
 
 struct Ring {
@@ -87,9 +87,18 @@ prefix = "n"
     }
 
     fn run(&self) -> Value {
-        let spec = halfwire::scenario::parse_str(&self.toml(), "ring.toml").expect("valid ring");
-        serde_json::to_value(halfwire::simulate(&spec)).unwrap()
+        common::run_toml(&self.toml())
     }
+}
+
+/// Run a scenario that must be refused: exit 2; the error text.
+fn run_bad(toml: &str) -> String {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("ring.toml");
+    std::fs::write(&path, toml).unwrap();
+    let out = common::halfwire(&["run", path.to_str().unwrap()]);
+    assert_eq!(out.status.code(), Some(2));
+    String::from_utf8_lossy(&out.stderr).into_owned()
 }
 
 fn ps(v: &Value) -> u64 {
@@ -130,24 +139,23 @@ fn symmetric_poisson_load_matches_one_limited_polling() {
     let rho = 0.5;
     let lambda = rho / (n * b);
     let expected = takagi::one_limited(n, lambda, b, b * b, r);
-    let waits: Vec<f64> = (1..=30)
-        .map(|seed| {
-            let ring = Ring {
-                nodes: 8,
-                length_m: 0.01,
-                spacing_m: 0.001,
-                rate_per_s: lambda,
-                duration: "300 ms",
-                warmup: "10 ms",
-                seed,
-                ..Ring::default()
-            };
-            let j = ring.run();
-            // latency = W + (T + e + Ld·tb + d + r)
-            let tail = 20e-9 + 7e-9 + 560.0 * tb + 5e-9;
-            j["latency_s"]["all"]["mean"].as_f64().unwrap() - tail
-        })
-        .collect();
+    let seeds: Vec<u64> = (1..=30).collect();
+    let waits: Vec<f64> = par_map(&seeds, |&seed| {
+        let ring = Ring {
+            nodes: 8,
+            length_m: 0.01,
+            spacing_m: 0.001,
+            rate_per_s: lambda,
+            duration: "300 ms",
+            warmup: "10 ms",
+            seed,
+            ..Ring::default()
+        };
+        let j = ring.run();
+        // latency = W + (T + e + Ld·tb + d + r)
+        let tail = 20e-9 + 7e-9 + 560.0 * tb + 5e-9;
+        j["latency_s"]["all"]["mean"].as_f64().unwrap() - tail
+    });
     let (mean, half) = mean_ci(&waits);
     eprintln!("token W sim {mean:.4e} ± {half:.2e}, Takagi {expected:.4e}");
     assert!(
@@ -179,6 +187,8 @@ fn a_lost_token_is_regenerated_after_the_timeout() {
     };
     let err = halfwire::scenario::parse_str(&bad.toml(), "ring.toml").unwrap_err();
     assert!(err.to_string().contains("token_timeout"), "{err}");
+    let out = run_bad(&bad.toml());
+    assert!(out.contains("token_timeout"), "{out}");
 }
 
 #[test]

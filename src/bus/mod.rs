@@ -196,16 +196,21 @@ impl Bus {
             self.process_one(line, self.processed, trace);
             self.processed += 1;
         }
-        let frontier = match self.log.get(self.processed) {
-            Some(o) => o.a.min(now),
-            None => now,
-        };
+        let frontier = self.frontier(now);
         self.util.advance(frontier);
         // Drop processed entries that can no longer overlap, corrupt or be sensed.
         let horizon = frontier.saturating_sub(self.max_delay + self.max_rx_delay);
         while self.processed > 0 && self.log[0].b <= horizon {
             self.log.pop_front();
             self.processed -= 1;
+        }
+    }
+
+    /// No occupancy enabled before this instant is still unprocessed.
+    pub fn frontier(&self, now: u64) -> u64 {
+        match self.log.get(self.processed) {
+            Some(o) => o.a.min(now),
+            None => now,
         }
     }
 
@@ -296,9 +301,11 @@ impl Bus {
         });
     }
 
-    /// Close the run: process everything and end open floating windows.
-    pub fn finish(&mut self, line: &LineModel, end: u64, trace: &mut Trace) {
-        self.process(line, end, true, trace);
+    /// Close the run: process everything (as of `now`, which may lie past
+    /// the end when in-flight frames were followed) and end open floating
+    /// windows at `end`.
+    pub fn finish(&mut self, line: &LineModel, now: u64, end: u64, trace: &mut Trace) {
+        self.process(line, now, true, trace);
         self.floating.finish(end, |i| line.delay_row(i));
         self.util.finish();
     }

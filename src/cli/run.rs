@@ -11,7 +11,7 @@ use halfwire::report::{json, text};
 use halfwire::spec::Spec;
 use halfwire::units::{self, Picos};
 
-use super::output::{check_writable, write_atomic};
+use super::output::{check_writable, print_stdout, AtomicFile};
 use super::Failure;
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
@@ -88,42 +88,88 @@ pub fn run(args: RunArgs) -> Result<u8, Failure> {
             "--window needs an output that uses it: give --events FILE",
         ));
     }
-    let window = match (&args.events, &args.window) {
-        (Some(path), w) => {
-            check_writable(path)?;
-            Some(match w {
+    let window = match &args.events {
+        Some(path) => {
+            check_writable(path, &[args.file.as_path()])?;
+            Some(match &args.window {
                 Some(w) => parse_window(w, spec.duration)?,
                 None => (Picos::ZERO, spec.duration),
             })
         }
-        _ => None,
+        None => None,
+    };
+    let mut log = match &args.events {
+        Some(path) => Some(EventLog::new(AtomicFile::create(path)?)),
+        None => None,
     };
     let started = Instant::now();
     let mut sim = Simulation::with_trace(&spec, window);
-    let mut events: Vec<BusEvent> = Vec::new();
+    let mut write_error = None;
     drive(&mut sim, &spec, |sim| {
-        if window.is_some() {
-            events.extend(sim.drain_trace());
+        if let Some(log) = &mut log {
+            let settled = sim.settled_before();
+            if let Err(e) = log.take(&spec, sim.drain_trace(), Some(settled)) {
+                write_error.get_or_insert(e);
+            }
         }
     });
-    let mut report = sim.finish();
+    if let Some(e) = write_error {
+        return Err(e);
+    }
+    if let Some(t) = sim.stalled() {
+        return Err(Failure::input(format!(
+            "{}: simulated time stopped advancing at {t}: the scenario schedules events forever at one instant (zero-length frames or timeouts?)",
+            args.file.display()
+        )));
+    }
+    let (mut report, tail) = sim.finish_with_trace();
     report.set_wall_time(started.elapsed().as_secs_f64());
-    if let Some(path) = &args.events {
-        // The final processing step may add the last few events.
-        let mut rest = report_trace_tail(&mut events);
-        events.append(&mut rest);
-        write_atomic(path, render_events(&spec, &mut events).as_bytes())?;
+    if let Some(mut log) = log {
+        log.take(&spec, tail, None)?;
+        log.file.commit()?;
     }
     let out = match args.format {
         Format::Json => json::render(&report),
         Format::Text => text::render(&report, console::colors_enabled()),
     };
-    print!("{out}");
+    print_stdout(&out)?;
     Ok(0)
 }
 
-fn report_trace_tail(_events: &mut [BusEvent]) -> Vec<BusEvent> {
-    Vec::new()
+/// The `--events` file, written in time order as events become final.
+struct EventLog {
+    file: AtomicFile,
+    pending: Vec<BusEvent>,
+}
+
+impl EventLog {
+    fn new(file: AtomicFile) -> Self {
+        EventLog {
+            file,
+            pending: Vec::new(),
+        }
+    }
+
+    /// Add events; write out every pending event before `settled` (all of
+    /// them when `None`).
+    fn take(
+        &mut self,
+        spec: &Spec,
+        events: Vec<BusEvent>,
+        settled: Option<Picos>,
+    ) -> Result<(), Failure> {
+        self.pending.extend(events);
+        // Stable sort: events at one instant keep the order they were recorded in.
+        self.pending.sort_by_key(|e| e.t);
+        let cut = match settled {
+            Some(t) => self.pending.partition_point(|e| e.t < t.0),
+            None => self.pending.len(),
+        };
+        let text = render_events(spec, &self.pending[..cut]);
+        self.file.write(text.as_bytes())?;
+        self.pending.drain(..cut);
+        Ok(())
+    }
 }
 
 /// Run to the end in slices of simulated time, with a progress bar on a
@@ -161,9 +207,8 @@ fn drive(sim: &mut Simulation, spec: &Spec, mut after_slice: impl FnMut(&mut Sim
     }
 }
 
-fn render_events(spec: &Spec, events: &mut [BusEvent]) -> String {
+fn render_events(spec: &Spec, events: &[BusEvent]) -> String {
     use serde_json::json;
-    events.sort_by_key(|e| e.t);
     let name = |i: usize| spec.nodes[i].name.as_str();
     let mut out = String::new();
     for e in events.iter() {

@@ -71,7 +71,13 @@ pub struct Simulation {
     scheme: Box<dyn AccessScheme>,
     sources: Vec<Source>,
     started: bool,
+    /// Set when simulated time stopped advancing (see [`STALL_EVENTS`]).
+    stalled: Option<Picos>,
 }
+
+/// Events at one instant after which a run counts as stalled: a scenario
+/// whose cycle takes no simulated time would otherwise never end.
+pub const STALL_EVENTS: u64 = 5_000_000;
 
 impl Simulation {
     pub fn new(spec: &Spec) -> Self {
@@ -89,6 +95,7 @@ impl Simulation {
             scheme,
             sources,
             started: false,
+            stalled: None,
         }
     }
 
@@ -98,6 +105,11 @@ impl Simulation {
 
     pub fn spec(&self) -> &Spec {
         &self.world.spec
+    }
+
+    /// The instant at which simulated time stopped advancing, if it did.
+    pub fn stalled(&self) -> Option<Picos> {
+        self.stalled
     }
 
     /// Events processed so far.
@@ -130,9 +142,19 @@ impl Simulation {
             self.start();
         }
         let until = until.min(self.world.spec.duration);
+        let mut same_instant = 0u64;
         while let Some(t) = self.world.queue.peek_time() {
-            if t >= until {
+            if t >= until || self.stalled.is_some() {
                 break;
+            }
+            if t == self.world.now {
+                same_instant += 1;
+                if same_instant > STALL_EVENTS {
+                    self.stalled = Some(t);
+                    break;
+                }
+            } else {
+                same_instant = 0;
             }
             let (t, ev) = self.world.queue.pop().expect("peeked");
             self.world.now = t;
@@ -159,24 +181,60 @@ impl Simulation {
     }
 
     /// End the run at the scenario duration and build the report.
-    pub fn finish(mut self) -> Report {
+    pub fn finish(self) -> Report {
+        self.finish_with_trace().0
+    }
+
+    /// End the run and also return the bus events recorded while closing it.
+    ///
+    /// Frames still in flight at the end are followed to their delivery (no
+    /// new traffic, timers or scheme decisions happen after the end), so the
+    /// utilization of the last instants is classified by their real fate.
+    pub fn finish_with_trace(mut self) -> (Report, Vec<BusEvent>) {
         let end = self.world.spec.duration;
-        if self.world.now < end {
+        if self.world.now < end && self.stalled.is_none() {
             self.run_until(end);
         }
-        // Frames still in flight are classified as they stand now.
         let w = &mut self.world;
-        for i in 0..w.frames.len() {
-            let f = w.frames[i];
-            if f.remaining > 0 {
-                w.frames[i].remaining = 0;
-                add_frame_pieces(w, &f, f.corrupted_any);
-                w.bus.frame_resolved(f.occupancy);
+        while let Some((t, ev)) = w.queue.pop() {
+            if let Event::Deliver { frame, to } = ev {
+                w.now = w.now.max(t);
+                let f = w.frames[frame as usize];
+                let corrupted = w.bus.is_corrupted(&w.line, f.src, to as usize, f.s, f.e);
+                w.trace.push(BusEvent {
+                    t: f.e,
+                    node: f.src,
+                    kind: BusEventKind::FrameEnd {
+                        frame: f.kind.name(),
+                        to: to as usize,
+                        corrupted,
+                    },
+                });
+                let rec = &mut w.frames[frame as usize];
+                rec.remaining -= 1;
+                rec.corrupted_any |= corrupted;
+                if rec.remaining == 0 {
+                    let any = rec.corrupted_any;
+                    add_frame_pieces(w, &f, any);
+                    w.bus.frame_resolved(f.occupancy);
+                }
             }
         }
-        w.bus.finish(&w.line, end.0, &mut w.trace);
+        let close = w.now.max(end);
+        w.bus.finish(&w.line, close.0, end.0, &mut w.trace);
         let scheme = self.scheme.report(&self.world);
-        Report::build(&self.world, scheme)
+        let mut report = Report::build(&self.world, scheme);
+        if let Some(t) = self.stalled {
+            report.stalled_at_s = Some(t.as_secs_f64());
+        }
+        let events = std::mem::take(&mut self.world.trace.events);
+        (report, events)
+    }
+
+    /// Bus events before this instant are final: none will be recorded
+    /// earlier than it from now on (for streaming a sorted event log).
+    pub fn settled_before(&self) -> Picos {
+        Picos(self.world.bus.frontier(self.world.now.0))
     }
 
     fn on_arrival(&mut self, source: usize) {
@@ -295,5 +353,32 @@ fn add_frame_pieces(w: &mut World, f: &world::FrameRec, corrupted: bool) {
             w.bus.util.add(Piece::Payload, f.s + overhead, f.e);
         }
         _ => w.bus.util.add(Piece::Overhead, f.s, f.e),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn slicing_a_run_changes_nothing() {
+        let text = std::fs::read_to_string(concat!(
+            env!("CARGO_MANIFEST_DIR"),
+            "/scenarios/fruit-grader.toml"
+        ))
+        .unwrap();
+        let mut spec = crate::scenario::parse_str(&text, "fruit-grader.toml").unwrap();
+        spec.duration = Picos::from_ms(6);
+        let strip = |r: Report| {
+            let mut v = serde_json::to_value(r).unwrap();
+            v.as_object_mut().unwrap().remove("run");
+            serde_json::to_string(&v).unwrap()
+        };
+        let whole = strip(Simulation::new(&spec).run());
+        let mut sim = Simulation::new(&spec);
+        for k in 1..=37u64 {
+            sim.run_until(Picos(spec.duration.0 * k / 37));
+        }
+        assert_eq!(strip(sim.finish()), whole);
     }
 }

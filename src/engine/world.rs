@@ -115,6 +115,9 @@ pub struct World {
     pub(crate) trace: Trace,
     pub(crate) events: u64,
     tx: Option<TxBuild>,
+    /// Per node: when its latest transmission releases the enable. A
+    /// transceiver has one driver, so a new transmission may not start earlier.
+    last_release: Vec<u64>,
 }
 
 impl World {
@@ -130,7 +133,7 @@ impl World {
         let queue_limit = spec
             .nodes
             .iter()
-            .map(|n| n.queue_limit.unwrap_or(usize::MAX))
+            .map(|n| n.queue_limit.unwrap_or(crate::spec::DEFAULT_QUEUE_LIMIT))
             .collect();
         World {
             line,
@@ -147,6 +150,7 @@ impl World {
             trace,
             events: 0,
             tx: None,
+            last_release: vec![0; n],
             spec,
         }
     }
@@ -339,6 +343,11 @@ impl World {
             off: Picos(off),
             occupancy: tx.occupancy,
         }
+    }
+
+    /// When `node`'s latest transmission releases its enable (its driver is free after that).
+    pub fn driver_free_at(&self, node: NodeId) -> Picos {
+        Picos(self.last_release[node])
     }
 
     /// Convenience: one transmission of the given frames.

@@ -34,6 +34,9 @@ pub struct Report {
     pub line: LineFigures,
     pub scheme: SchemeReport,
     pub warnings: Vec<Warning>,
+    /// Set when simulated time stopped advancing: the run ended there.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub stalled_at_s: Option<f64>,
     pub run: RunInfo,
 }
 
@@ -211,7 +214,9 @@ impl Report {
             hazard_receivers: hazard,
         };
         let u = w.bus.util.totals;
-        let whole = u.sum().max(1) as f64;
+        // Fractions of the measured window itself, so any gap in the
+        // accounting would show as a sum below 1.
+        let whole = spec.measured().0.max(1) as f64;
         let utilization = Utilization {
             payload: u.payload as f64 / whole,
             overhead: u.overhead as f64 / whole,
@@ -257,6 +262,7 @@ impl Report {
             line: line_fig,
             scheme,
             warnings,
+            stalled_at_s: None,
             run: RunInfo {
                 events: w.events,
                 ..RunInfo::default()

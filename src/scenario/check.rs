@@ -12,6 +12,10 @@ use crate::units::{self, Dimension, Picos};
 
 pub(crate) type R<T> = Result<T, ScenarioError>;
 
+/// The longest time any key may hold (10⁶ s, about 11.6 days): sums of a few
+/// such times stay far inside the u64 picosecond range.
+pub const MAX_TIME: Picos = Picos(1_000_000_000_000_000_000);
+
 /// The value checker: knows the file and its text, so errors can point into it.
 pub(crate) struct V<'a> {
     pub file: &'a str,
@@ -59,7 +63,33 @@ impl<'a> V<'a> {
     }
 
     pub fn time(&self, v: &S, key: &str) -> R<Picos> {
-        units::parse_time(v.get_ref()).map_err(|e| self.err(v.span(), key, e.message))
+        let t = units::parse_time(v.get_ref()).map_err(|e| self.err(v.span(), key, e.message))?;
+        if t > MAX_TIME {
+            return Err(self.err(
+                v.span(),
+                key,
+                format!("{t} is longer than the supported {MAX_TIME}"),
+            ));
+        }
+        Ok(t)
+    }
+
+    /// A quantity that must lie in `lo..=hi` (SI base units), with the range in the message.
+    pub fn within(&self, v: &S, dim: Dimension, key: &str, lo: f64, hi: f64, unit: &str) -> R<f64> {
+        let x = self.positive(v, dim, key)?;
+        if x < lo || x > hi {
+            return Err(self.err(
+                v.span(),
+                key,
+                format!(
+                    "\"{}\" is outside the supported range {} to {}",
+                    v.get_ref(),
+                    units::format_si(lo, unit),
+                    units::format_si(hi, unit)
+                ),
+            ));
+        }
+        Ok(x)
     }
 
     pub fn opt_time(&self, v: &Option<S>, key: &str, default: Picos) -> R<Picos> {

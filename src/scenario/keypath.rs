@@ -5,10 +5,37 @@ use toml_edit::{ImDocument, Item, Table, Value};
 
 /// The deepest key path whose key or value span contains `offset`.
 pub fn key_path_at(source: &str, offset: usize) -> Option<String> {
-    let doc = ImDocument::parse(source).ok()?;
+    let Ok(doc) = ImDocument::parse(source) else {
+        return line_key_path(source, offset);
+    };
     let mut best = None;
     walk_table(doc.as_table(), String::new(), offset, &mut best);
     best
+}
+
+/// For text that does not parse as a whole: the last table header before
+/// `offset` and the key assigned on its line.
+fn line_key_path(source: &str, offset: usize) -> Option<String> {
+    let before = source.get(..offset.min(source.len()))?;
+    let line_start = before.rfind('\n').map(|i| i + 1).unwrap_or(0);
+    let line = source[line_start..].lines().next().unwrap_or("");
+    let key = line
+        .split_once('=')
+        .map(|(k, _)| k.trim().to_owned())
+        .filter(|k| !k.is_empty() && !k.starts_with('['));
+    let table = before[..line_start].lines().rev().find_map(|l| {
+        let l = l.trim();
+        l.strip_prefix("[[")
+            .and_then(|r| r.strip_suffix("]]"))
+            .or_else(|| l.strip_prefix('[').and_then(|r| r.strip_suffix(']')))
+            .map(|t| t.trim().to_owned())
+    });
+    match (table, key) {
+        (Some(t), Some(k)) => Some(format!("{t}.{k}")),
+        (None, Some(k)) => Some(k),
+        (Some(t), None) => Some(t),
+        (None, None) => None,
+    }
 }
 
 fn contains(span: Option<std::ops::Range<usize>>, offset: usize) -> bool {

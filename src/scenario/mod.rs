@@ -28,9 +28,27 @@ pub fn load(path: &std::path::Path) -> Result<Spec, ScenarioError> {
 /// Turn a TOML/serde error into a positioned error with the key path and,
 /// for unknown keys or values, a "did you mean" hint.
 fn from_toml(e: toml::de::Error, text: &str, file: &str) -> ScenarioError {
-    let offset = e.span().map(|s| s.start).unwrap_or(0);
-    let key = keypath::key_path_at(text, offset).unwrap_or_default();
+    let span = e.span().unwrap_or(0..0);
+    let offset = span.start;
+    // Errors about the top-level table are reported at offset 0.
+    let whole_document = span.start == 0 && !text.trim_start().starts_with('[');
+    let mut key = if whole_document {
+        String::new()
+    } else {
+        keypath::key_path_at(text, offset).unwrap_or_default()
+    };
     let msg = e.message().trim().to_owned();
+    if let Some(missing) = msg
+        .strip_prefix("missing field `")
+        .and_then(|m| m.split('`').next())
+    {
+        key = if key.is_empty() {
+            missing.to_owned()
+        } else {
+            format!("{key}.{missing}")
+        };
+        return ScenarioError::at(file, text, offset, &key, format!("missing key `{missing}`"));
+    }
     if let Some((unknown, expected)) = parse_unknown_field(&msg) {
         let mut err =
             ScenarioError::at(file, text, offset, &key, format!("unknown key `{unknown}`"));
@@ -42,9 +60,15 @@ fn from_toml(e: toml::de::Error, text: &str, file: &str) -> ScenarioError {
         }
         return err;
     }
-    let msg = msg.replace("missing field", "missing key");
+    let msg = if msg.contains("number too large to fit in target type") {
+        "this integer is too large (TOML integers are at most 9223372036854775807)".to_owned()
+    } else {
+        msg
+    };
     let err = ScenarioError::at(file, text, offset, &key, msg.clone());
-    if msg.contains("expected a string") {
+    if (msg.contains("invalid type: integer") || msg.contains("invalid type: floating point"))
+        && msg.contains("expected a string")
+    {
         return err.with_hint(
             "quantities are strings with a unit, e.g. length = \"2.4 m\" or enable_time = \"7 ns\"",
         );

@@ -6,12 +6,18 @@
 use std::collections::HashMap;
 use std::ops::Range;
 
-use super::check::{unknown_node, R, V};
+use super::check::{unknown_node, MAX_TIME, R, V};
 use super::raw::*;
 use crate::line::ReceiverClass;
 use crate::spec::*;
 use crate::units::{self, Dimension, Picos};
 use toml::Spanned;
+
+/// Most nodes on one bus (the engine keeps an N × N delay matrix).
+pub const MAX_NODES: usize = 4096;
+
+/// Most data bits in one frame (2⁴⁰); larger frames would overflow picosecond time.
+pub const MAX_FRAME_BITS: u64 = 1 << 40;
 
 /// Speed of light in vacuum (m/s), exact by the SI definition.
 const C_M_PER_S: f64 = 299_792_458.0;
@@ -55,7 +61,16 @@ pub fn validate(raw: &RawScenario, file: &str, src: &str) -> R<Spec> {
     let line = validate_line(&v, raw.line.get_ref(), raw.line.span())?;
     let frame = validate_frame(&v, raw.frame.get_ref())?;
     let nodes = validate_nodes(&v, raw, &line)?;
-    let access = super::access::validate(&v, raw.access.get_ref(), raw.access.span(), &nodes, &line, &frame)?;
+    check_frame_times(&v, raw, &frame, &nodes)?;
+    check_arrival_count(&v, raw, &nodes, duration)?;
+    let access = super::access::validate(
+        &v,
+        raw.access.get_ref(),
+        raw.access.span(),
+        &nodes,
+        &line,
+        &frame,
+    )?;
     Ok(Spec {
         name,
         seed,
@@ -69,10 +84,38 @@ pub fn validate(raw: &RawScenario, file: &str, src: &str) -> R<Spec> {
 }
 
 fn validate_line(v: &V, l: &RawLine, at: Range<usize>) -> R<LineSpec> {
-    let length_m = v.positive(&l.length, Dimension::Length, "line.length")?;
-    let impedance_ohm = v.positive(&l.impedance, Dimension::Resistance, "line.impedance")?;
+    let length_m = v.within(&l.length, Dimension::Length, "line.length", 1e-6, 1e5, "m")?;
+    let impedance_ohm = v.within(
+        &l.impedance,
+        Dimension::Resistance,
+        "line.impedance",
+        0.1,
+        1e5,
+        "Ω",
+    )?;
     let delay_s_per_m = match (&l.delay, &l.velocity_factor) {
-        (Some(d), None) => v.positive(d, Dimension::DelayPerLength, "line.delay")?,
+        (Some(d), None) => {
+            let x = v.positive(d, Dimension::DelayPerLength, "line.delay")?;
+            // Nothing propagates faster than light: 1/c = 3.336 ns/m.
+            if x < 1.0 / C_M_PER_S * (1.0 - 1e-9) {
+                return Err(v.err(
+                    d.span(),
+                    "line.delay",
+                    format!(
+                        "\"{}\" is faster than light (at least 3.336 ns/m)",
+                        d.get_ref()
+                    ),
+                ));
+            }
+            v.within(
+                d,
+                Dimension::DelayPerLength,
+                "line.delay",
+                1e-9,
+                1e-6,
+                "s/m",
+            )?
+        }
         (None, Some(vf)) => {
             let f = *vf.get_ref();
             if !(f > 0.0 && f <= 1.0) {
@@ -135,8 +178,70 @@ fn validate_line(v: &V, l: &RawLine, at: Range<usize>) -> R<LineSpec> {
     })
 }
 
+/// Most arrivals a run may generate (a guard against a mistyped rate).
+pub const MAX_ARRIVALS: f64 = 1e10;
+
+fn check_arrival_count(v: &V, raw: &RawScenario, nodes: &[NodeSpec], duration: Picos) -> R<()> {
+    let per_s: f64 = nodes
+        .iter()
+        .flat_map(|n| &n.traffic)
+        .map(|t| match t.pattern {
+            Pattern::Poisson { rate_per_s } => rate_per_s,
+            Pattern::Periodic { period, .. } => 1.0 / period.as_secs_f64(),
+        })
+        .sum();
+    let total = per_s * duration.as_secs_f64();
+    if total > MAX_ARRIVALS {
+        return Err(v.err(
+            raw.duration.span(),
+            "duration",
+            format!("the traffic would bring {total:.3e} messages in this duration, more than the supported {MAX_ARRIVALS:.0e}"),
+        ));
+    }
+    Ok(())
+}
+
+/// The longest data frame must fit the supported time range.
+fn check_frame_times(v: &V, raw: &RawScenario, frame: &FrameFormat, nodes: &[NodeSpec]) -> R<()> {
+    let longest = nodes
+        .iter()
+        .flat_map(|n| &n.traffic)
+        .map(|t| match t.payload {
+            Payload::Fixed { bits } => bits,
+            Payload::Uniform { max_bits, .. } => max_bits,
+        })
+        .max()
+        .unwrap_or(0);
+    let line_bits = frame.data_line_bits(longest);
+    if line_bits as f64 / frame.bit_rate > MAX_TIME.as_secs_f64() {
+        return Err(v.err(
+            raw.frame.get_ref().bit_rate.span(),
+            "frame.bit_rate",
+            format!("at this bit rate the longest data frame ({line_bits} line bits) would last longer than {MAX_TIME}"),
+        ));
+    }
+    Ok(())
+}
+
 fn validate_frame(v: &V, f: &RawFrame) -> R<FrameFormat> {
-    let bit_rate = v.positive(&f.bit_rate, Dimension::BitRate, "frame.bit_rate")?;
+    // A bit time below 1 ps cannot be represented; 1 bit/s is the slow end.
+    let bit_rate = v.within(
+        &f.bit_rate,
+        Dimension::BitRate,
+        "frame.bit_rate",
+        1.0,
+        1e12,
+        "bit/s",
+    )?;
+    if let Some(o) = &f.overhead_bits {
+        if *o.get_ref() > MAX_FRAME_BITS {
+            return Err(v.err(
+                o.span(),
+                "frame.overhead_bits",
+                format!("at most {MAX_FRAME_BITS} bits are supported"),
+            ));
+        }
+    }
     let encoding = match &f.encoding {
         None => Encoding::Nrz,
         Some(e) => match v.choice(e, "frame.encoding", ENCODINGS)? {
@@ -230,11 +335,11 @@ fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec) -> R<Vec<NodeSpec>>
                 "nodes.count must be at least 1",
             ));
         }
-        if count > 4096 {
+        if count > MAX_NODES as u64 {
             return Err(v.err(
                 r.count.span(),
                 "nodes.count",
-                "at most 4096 generated nodes are supported",
+                format!("at most {MAX_NODES} nodes are supported"),
             ));
         }
         let first = v.qty(&r.first, Dimension::Length, "nodes.first")?;
@@ -246,6 +351,13 @@ fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec) -> R<Vec<NodeSpec>>
             .map(|t| v.time(t, "nodes.turnaround"))
             .transpose()?;
         for k in 0..count {
+            if r.prefix.get_ref().chars().any(char::is_control) {
+                return Err(v.err(
+                    r.prefix.span(),
+                    "nodes.prefix",
+                    "a node name must not contain control characters",
+                ));
+            }
             let name = format!("{}{:0width$}", r.prefix.get_ref(), k + 1);
             let position_m = first + spacing * k as f64;
             if position_m < 0.0 || position_m > line.length_m * (1.0 + 1e-12) {
@@ -283,6 +395,16 @@ fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec) -> R<Vec<NodeSpec>>
             });
         }
     }
+    if pending.len() > MAX_NODES {
+        return Err(v.err(
+            0..0,
+            "node",
+            format!(
+                "at most {MAX_NODES} nodes are supported, this scenario has {}",
+                pending.len()
+            ),
+        ));
+    }
     if pending.len() < 2 {
         return Err(v.err(
             0..0,
@@ -297,7 +419,11 @@ fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec) -> R<Vec<NodeSpec>>
             return Err(v
                 .err(
                     p.name_span.clone(),
-                    &format!("{}.name", p.key),
+                    &if p.key == "nodes" {
+                        "nodes.prefix".to_owned()
+                    } else {
+                        format!("{}.name", p.key)
+                    },
                     format!("duplicate node name \"{}\"", p.name),
                 )
                 .with_hint(format!("the name is first used on line {l}")));
@@ -362,7 +488,7 @@ fn merge_transceiver(
         ))
     };
     let (s, k) = pick(|t| &t.drive_current, "drive_current")?;
-    let drive_current_a = v.positive(&s, Dimension::Current, &k)?;
+    let drive_current_a = v.within(&s, Dimension::Current, &k, 1e-9, 1.0, "A")?;
     let (s, k) = pick(|t| &t.enable_time, "enable_time")?;
     let enable_time = v.time(&s, &k)?;
     let (s, k) = pick(|t| &t.disable_time, "disable_time")?;
@@ -371,6 +497,13 @@ fn merge_transceiver(
     let receiver_delay = v.time(&s, &k)?;
     let (s, k) = pick(|t| &t.load, "load")?;
     let load_f = v.non_negative(&s, Dimension::Capacitance, &k)?;
+    if load_f > 1e-6 {
+        return Err(v.err(
+            s.span(),
+            &k,
+            "a node load above 1 µF is outside the supported range",
+        ));
+    }
     // The receiver class comes from one level: the node's table if it names
     // one, else the defaults.
     let level = match over {
@@ -494,7 +627,15 @@ fn validate_traffic(
     };
     let pk = format!("{key}.payload");
     let size = |s: &S| -> R<u64> {
-        units::parse_bits(s.get_ref()).map_err(|e| v.err(s.span(), &pk, e.message))
+        let bits = units::parse_bits(s.get_ref()).map_err(|e| v.err(s.span(), &pk, e.message))?;
+        if bits > MAX_FRAME_BITS {
+            return Err(v.err(
+                s.span(),
+                &pk,
+                format!("a payload of more than {MAX_FRAME_BITS} bits is not supported"),
+            ));
+        }
+        Ok(bits)
     };
     let payload = match r.payload.get_ref() {
         RawPayload::Fixed(s) => {

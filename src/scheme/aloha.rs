@@ -38,7 +38,13 @@ pub struct Aloha {
 
 impl Aloha {
     pub fn new(spec: AlohaSpec, nodes: usize) -> Self {
-        Aloha { spec, flight: vec![None; nodes], collisions: 0, retries: 0, given_up: 0 }
+        Aloha {
+            spec,
+            flight: vec![None; nodes],
+            collisions: 0,
+            retries: 0,
+            given_up: 0,
+        }
     }
 
     /// The next instant at or after `t` a transmission may start.
@@ -64,7 +70,11 @@ impl Aloha {
             return;
         }
         if let Some(msg) = w.pop_message(node) {
-            self.flight[node] = Some(InFlight { msg, attempts: 0, delivered: false });
+            self.flight[node] = Some(InFlight {
+                msg,
+                attempts: 0,
+                delivered: false,
+            });
             w.set_holding(node, 1);
             let at = self.start_time(w.now());
             self.send(w, node, at);
@@ -90,7 +100,9 @@ impl AccessScheme for Aloha {
     fn on_timer(&mut self, w: &mut World, node: NodeId, tag: u64) {
         match tag {
             OUTCOME => {
-                let f = self.flight[node].as_mut().expect("outcome of a message in flight");
+                let f = self.flight[node]
+                    .as_mut()
+                    .expect("outcome of a message in flight");
                 f.attempts += 1;
                 if f.delivered {
                     self.flight[node] = None;
@@ -143,7 +155,14 @@ impl AccessScheme for Aloha {
             name: "aloha",
             fields: vec![
                 ("slotted", SchemeValue::Count(u64::from(self.spec.slotted))),
-                ("slot_time_s", SchemeValue::Seconds(if self.spec.slotted { self.spec.slot_time.as_secs_f64() } else { 0.0 })),
+                (
+                    "slot_time_s",
+                    SchemeValue::Seconds(if self.spec.slotted {
+                        self.spec.slot_time.as_secs_f64()
+                    } else {
+                        0.0
+                    }),
+                ),
                 ("collisions", SchemeValue::Count(self.collisions)),
                 ("retransmissions", SchemeValue::Count(self.retries)),
                 ("given_up", SchemeValue::Count(self.given_up)),

@@ -10,6 +10,12 @@
 //! `reply_timeout` after the end of its poll, the master polls the next slave
 //! at that instant; a late reply then meets the next poll on the wire.
 //!
+//! A slave answers every intact poll addressed to it, unless it is still busy
+//! with an earlier reply (its enable not yet released): such a poll is
+//! ignored. The master reacts only to the reply to its latest poll; the end
+//! of that reply's activity at its receiver is what it waits for, whether or
+//! not the frames arrive intact.
+//!
 //! Zero-load cycle, with e = enable time, r = receiver delay, T = turnaround,
 //! d(M,i) the wire delay master–slave i, Lp and Le the line bits of a poll and
 //! of an empty reply and tb the bit time:
@@ -37,6 +43,11 @@ pub struct Polling {
     deadline: Picos,
     /// The timeout timer was armed at poll time.
     timeout_armed: bool,
+    /// Bus id of the master's latest poll.
+    current_poll: u64,
+    /// Per node: until when its own reply keeps its enable asserted.
+    busy_until: Vec<Picos>,
+    ignored: u64,
     /// Enable time of the latest poll of `order[0]`.
     cycle_start: Option<Picos>,
     cycles: DurationStat,
@@ -48,11 +59,15 @@ pub struct Polling {
 
 impl Polling {
     pub fn new(spec: PollingSpec) -> Self {
+        let nodes = spec.turnaround.len();
         Polling {
             spec,
             idx: 0,
             deadline: Picos::ZERO,
             timeout_armed: false,
+            current_poll: u64::MAX,
+            busy_until: vec![Picos::ZERO; nodes],
+            ignored: 0,
             cycle_start: None,
             cycles: DurationStat::default(),
             polls: 0,
@@ -79,6 +94,7 @@ impl Polling {
         }
         let poll = FrameOut::control(FrameKind::Poll, Dest::Node(slave), self.spec.request_bits);
         let tx = w.transmit(master, now, &[poll]);
+        self.current_poll = tx.occupancy;
         self.deadline = tx.release + self.spec.reply_timeout;
         debug!(t_ps = now.0, master = %w.spec().nodes[master].name, slave = %w.spec().nodes[slave].name, "poll");
         // If the slave cannot even see the poll before the deadline, the timeout
@@ -95,7 +111,16 @@ impl Polling {
         self.poll(w);
     }
 
-    fn reply(&mut self, w: &mut World, slave: NodeId) {
+    /// The master's latest poll got no reply: unless armed already, its
+    /// timeout fires at the deadline.
+    fn no_reply(&mut self, w: &mut World, poll: u64) {
+        if poll == self.current_poll && !self.timeout_armed {
+            self.timeout_armed = true;
+            w.set_timer(self.spec.master, self.deadline.max(w.now()), TIMEOUT);
+        }
+    }
+
+    fn reply(&mut self, w: &mut World, slave: NodeId, poll: u64) {
         let now = w.now();
         let master = self.spec.master;
         let wait =
@@ -128,14 +153,15 @@ impl Polling {
             }
         }
         let tx = w.finish_tx();
+        self.busy_until[slave] = tx.release;
         debug!(t_ps = now.0, slave = %w.spec().nodes[slave].name, frames = take, enable_ps = tx.enable.0, "reply");
-        let starts_at_master = w.seen_at(slave, master, tx.first_bit);
-        if self.timeout_armed {
-            // The timeout fires regardless (see `poll`); the reply comes late.
+        if poll != self.current_poll || self.timeout_armed {
+            // The master has moved on, or times out regardless: this reply is late.
             return;
         }
+        let starts_at_master = w.seen_at(slave, master, tx.first_bit);
         if starts_at_master > self.deadline {
-            w.set_timer(master, self.deadline.max(now), TIMEOUT);
+            self.no_reply(w, poll);
         } else {
             let master_wait = self.spec.turnaround[master]
                 + sample_latency(&self.spec.response_latency, w.rng(master));
@@ -173,17 +199,23 @@ impl AccessScheme for Polling {
     }
 
     fn on_receive(&mut self, w: &mut World, rx: &Reception) {
-        if rx.kind != FrameKind::Poll || rx.at != self.spec.order[self.idx] {
+        if rx.kind != FrameKind::Poll {
             return;
         }
         if rx.corrupted {
             debug!(t_ps = w.now().0, "poll corrupted at slave; no reply");
-            if !self.timeout_armed {
-                w.set_timer(self.spec.master, self.deadline.max(w.now()), TIMEOUT);
-            }
+            self.no_reply(w, rx.occupancy);
             return;
         }
-        self.reply(w, rx.at);
+        if w.now() < self.busy_until[rx.at] {
+            debug!(t_ps = w.now().0, slave = %w.spec().nodes[rx.at].name, "poll ignored: still busy with a reply");
+            if w.in_window(w.now()) {
+                self.ignored += 1;
+            }
+            self.no_reply(w, rx.occupancy);
+            return;
+        }
+        self.reply(w, rx.at, rx.occupancy);
     }
 
     fn report(&self, _w: &World) -> SchemeReport {
@@ -197,6 +229,7 @@ impl AccessScheme for Polling {
                 ("data_replies", SchemeValue::Count(self.data_replies)),
                 ("empty_replies", SchemeValue::Count(self.empty_replies)),
                 ("timeouts", SchemeValue::Count(self.timeouts)),
+                ("polls_ignored", SchemeValue::Count(self.ignored)),
             ],
         }
     }

@@ -2,7 +2,7 @@
 //! published reference formulas the tests check against.
 #![allow(dead_code)]
 
-use halfwire::spec::Spec;
+use serde_json::Value;
 
 /// Parameters of a polling bus used across tests.
 #[derive(Clone, Debug)]
@@ -133,9 +133,46 @@ prefix = "s"
         )
     }
 
-    pub fn spec(&self) -> Spec {
-        halfwire::scenario::parse_str(&self.toml(), "test.toml").expect("test scenario is valid")
+    /// Run through the built binary; the JSON report.
+    pub fn run(&self) -> Value {
+        run_toml(&self.toml())
     }
+}
+
+/// Write `toml` to a temporary scenario file, run `halfwire run FILE --format
+/// json` with the built binary, and parse the report.
+pub fn run_toml(toml: &str) -> Value {
+    let dir = tempfile::tempdir().expect("temporary folder");
+    let path = dir.path().join("scenario.toml");
+    std::fs::write(&path, toml).expect("scenario written");
+    let out = halfwire(&["run", path.to_str().unwrap(), "--format", "json"]);
+    assert!(
+        out.status.success(),
+        "halfwire failed ({:?}): {}",
+        out.status.code(),
+        String::from_utf8_lossy(&out.stderr)
+    );
+    serde_json::from_slice(&out.stdout).expect("one JSON report on stdout")
+}
+
+/// Run `f` for every item on two threads (this machine has two cores), in order.
+pub fn par_map<T: Sync, R: Send>(items: &[T], f: impl Fn(&T) -> R + Sync) -> Vec<R> {
+    let mid = items.len().div_ceil(2);
+    let (a, b) = items.split_at(mid);
+    std::thread::scope(|s| {
+        let h = s.spawn(|| a.iter().map(&f).collect::<Vec<R>>());
+        let mut rest: Vec<R> = b.iter().map(&f).collect();
+        let mut first = h.join().expect("worker thread");
+        first.append(&mut rest);
+        first
+    })
+}
+
+/// Loaded delay per metre from the handbook formula (Johnson & Graham,
+/// High-Speed Digital Design, 1993): tpd' = tpd0·sqrt(1 + C_d·n / C0), C0 = tpd0 / Z0.
+pub fn loaded_tpd(tpd0: f64, z0: f64, total_load_f: f64, length_m: f64) -> f64 {
+    let c0 = tpd0 / z0;
+    tpd0 * (1.0 + total_load_f / length_m / c0).sqrt()
 }
 
 /// Mean waiting time (arrival to start of service) in a symmetric polling

@@ -5,7 +5,13 @@ use crate::scenario::check::latency;
 use crate::spec::{AccessSpec, AlohaSpec, Latency};
 use crate::units::Picos;
 
-pub const KEYS: &[&str] = &["slotted", "slot_time", "ack_timeout", "backoff", "max_attempts"];
+pub const KEYS: &[&str] = &[
+    "slotted",
+    "slot_time",
+    "ack_timeout",
+    "backoff",
+    "max_attempts",
+];
 
 pub fn validate(c: &Access) -> R<AccessSpec> {
     let (v, a) = (c.v, c.a);
@@ -26,24 +32,44 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
         Some(s) => {
             let t = v.time(s, "access.slot_time")?;
             if t == Picos::ZERO {
-                return Err(v.err(s.span(), "access.slot_time", "slot_time must be greater than zero"));
+                return Err(v.err(
+                    s.span(),
+                    "access.slot_time",
+                    "slot_time must be greater than zero",
+                ));
             }
             t
         }
         None => {
-            let en = c.nodes.iter().map(|n| n.transceiver.enable_time).max().unwrap_or(Picos::ZERO);
-            let dis = c.nodes.iter().map(|n| n.transceiver.disable_time).max().unwrap_or(Picos::ZERO);
+            let en = c
+                .nodes
+                .iter()
+                .map(|n| n.transceiver.enable_time)
+                .max()
+                .unwrap_or(Picos::ZERO);
+            let dis = c
+                .nodes
+                .iter()
+                .map(|n| n.transceiver.disable_time)
+                .max()
+                .unwrap_or(Picos::ZERO);
             en + c.longest_data_frame() + dis + lag
         }
     };
     if !slotted {
         if let Some(s) = &a.slot_time {
-            return Err(v.err(s.span(), "access.slot_time", "slot_time applies only with slotted = true"));
+            return Err(v.err(
+                s.span(),
+                "access.slot_time",
+                "slot_time applies only with slotted = true",
+            ));
         }
     }
     let backoff = match &a.backoff {
         Some(b) => latency(v, b, "access.backoff")?,
-        None => Latency::Exponential { mean: Picos(slot_time.0.max(1) * 10) },
+        None => Latency::Exponential {
+            mean: Picos(slot_time.0.max(1) * 10),
+        },
     };
     Ok(AccessSpec::Aloha(AlohaSpec {
         slotted,

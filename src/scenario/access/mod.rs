@@ -193,12 +193,25 @@ impl<'a> Access<'a> {
     /// receiver delay: how long until every node can know a frame's fate.
     pub fn max_lag(&self) -> Picos {
         let total: f64 = self.nodes.iter().map(|n| n.transceiver.load_f).sum();
-        let (lo, hi) = self.nodes.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), n| {
-            (lo.min(n.position_m), hi.max(n.position_m))
-        });
-        let line = crate::line::LoadedLine::new(self.line.impedance_ohm, self.line.delay_s_per_m, self.line.length_m, total);
+        let (lo, hi) = self
+            .nodes
+            .iter()
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), n| {
+                (lo.min(n.position_m), hi.max(n.position_m))
+            });
+        let line = crate::line::LoadedLine::new(
+            self.line.impedance_ohm,
+            self.line.delay_s_per_m,
+            self.line.length_m,
+            total,
+        );
         let wire = Picos(((hi - lo) * line.delay_s_per_m * 1e12).round() as u64);
-        wire + self.nodes.iter().map(|n| n.transceiver.receiver_delay).max().unwrap_or(Picos::ZERO)
+        wire + self
+            .nodes
+            .iter()
+            .map(|n| n.transceiver.receiver_delay)
+            .max()
+            .unwrap_or(Picos::ZERO)
     }
 
     /// Time on the wire of the longest data frame any source can send.
@@ -216,7 +229,41 @@ impl<'a> Access<'a> {
         self.frame.duration(self.frame.data_line_bits(bits))
     }
 
-    pub fn count(&self, field: &Option<toml::Spanned<u64>>, default: u64) -> u64 {
-        field.as_ref().map(|x| *x.get_ref()).unwrap_or(default)
+    /// The size of a control frame (poll, reply, token) in data bits:
+    /// default `frame.overhead_bits`, and at least one bit, so that every
+    /// hand-over takes time.
+    pub fn control_bits(&self, field: &Option<toml::Spanned<u64>>, key: &str) -> R<u64> {
+        let bits = field
+            .as_ref()
+            .map(|x| *x.get_ref())
+            .unwrap_or(self.frame.overhead_bits);
+        if bits == 0 {
+            let span = field
+                .as_ref()
+                .map(|f| f.span())
+                .unwrap_or(self.span.clone());
+            return Err(self
+                .v
+                .err(
+                    span,
+                    &format!("access.{key}"),
+                    format!("{key} must be at least 1 (a frame without bits takes no time)"),
+                )
+                .with_hint(format!(
+                    "set {key}, or frame.overhead_bits, which is its default"
+                )));
+        }
+        if bits > crate::scenario::validate::MAX_FRAME_BITS {
+            let span = field
+                .as_ref()
+                .map(|f| f.span())
+                .unwrap_or(self.span.clone());
+            return Err(self.v.err(
+                span,
+                &format!("access.{key}"),
+                "a control frame of more than 2^40 bits is not supported",
+            ));
+        }
+        Ok(bits)
     }
 }

@@ -68,7 +68,7 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
     }
     Ok(AccessSpec::Token(TokenSpec {
         order,
-        token_bits: c.count(&a.token_bits, 0),
+        token_bits: c.control_bits(&a.token_bits, "token_bits")?,
         max_per_token: a.max_per_token.as_ref().map(|m| *m.get_ref()).unwrap_or(1),
         token_hold,
         turnaround: c.turnarounds()?,
