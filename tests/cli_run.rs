@@ -368,3 +368,93 @@ fn debug_log_shows_scheme_decisions() {
         "no ANSI codes when stderr is not a terminal"
     );
 }
+
+#[test]
+fn event_log_is_complete_to_the_end_of_the_run() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("all.jsonl");
+    let out = halfwire(&[
+        "run",
+        "scenarios/buoy-link.toml",
+        "--duration",
+        "60 ms",
+        "--events",
+        path.to_str().unwrap(),
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let text = std::fs::read_to_string(&path).unwrap();
+    let count = |k: &str| {
+        text.lines()
+            .filter(|l| l.contains(&format!("\"event\":\"{k}\"")))
+            .count()
+    };
+    assert!(count("driver_enable") > 100);
+    assert_eq!(count("driver_enable"), count("driver_release"));
+    assert_eq!(count("driver_enable"), count("driver_off"));
+    assert_eq!(count("frame_start"), count("frame_end"));
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::PermissionsExt;
+        let mode = std::fs::metadata(&path).unwrap().permissions().mode() & 0o777;
+        assert_eq!(mode, 0o644);
+    }
+}
+
+#[test]
+fn refuses_to_overwrite_the_scenario() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("s.toml");
+    std::fs::copy("scenarios/buoy-link.toml", &path).unwrap();
+    let p = path.to_str().unwrap();
+    let out = halfwire(&["run", p, "--events", p]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("refusing to overwrite"));
+    assert_eq!(
+        std::fs::read_to_string(&path).unwrap(),
+        std::fs::read_to_string("scenarios/buoy-link.toml").unwrap()
+    );
+}
+
+#[test]
+#[cfg(target_os = "linux")]
+fn a_full_stdout_is_an_error_not_a_panic() {
+    let full = std::fs::OpenOptions::new()
+        .write(true)
+        .open("/dev/full")
+        .unwrap();
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_halfwire"))
+        .args(["run", "scenarios/buoy-link.toml", "--duration", "60 ms"])
+        .stdout(full)
+        .output()
+        .unwrap();
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(1), "{err}");
+    assert!(
+        err.contains("cannot write to stdout") && !err.contains("panicked"),
+        "{err}"
+    );
+}
+
+#[test]
+fn a_late_reply_meets_the_next_poll_on_the_wire() {
+    // The sensor's firmware may take up to 50 µs + 120 µs + the reply to
+    // answer, but the logger times out after 100 µs: late replies collide
+    // with the next poll, and a busy sensor ignores polls meanwhile.
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("late.toml");
+    let text = std::fs::read_to_string("scenarios/buoy-link.toml")
+        .unwrap()
+        .replace("reply_timeout = \"1 ms\"", "reply_timeout = \"100 us\"");
+    std::fs::write(&path, text).unwrap();
+    let j = run_json(&["run", path.to_str().unwrap(), "--format", "json"]);
+    assert!(j["scheme"]["timeouts"].as_u64().unwrap() > 0);
+    assert!(j["contention"]["events"].as_u64().unwrap() > 0);
+    // Every contention is between the two different drivers.
+    for e in j["contention"]["first"].as_array().unwrap() {
+        assert_ne!(e["nodes"][0], e["nodes"][1]);
+    }
+}

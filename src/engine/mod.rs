@@ -77,7 +77,7 @@ pub struct Simulation {
 
 /// Events at one instant after which a run counts as stalled: a scenario
 /// whose cycle takes no simulated time would otherwise never end.
-pub const STALL_EVENTS: u64 = 5_000_000;
+pub const STALL_EVENTS: u64 = 1_000_000;
 
 impl Simulation {
     pub fn new(spec: &Spec) -> Self {
@@ -359,6 +359,28 @@ fn add_frame_pieces(w: &mut World, f: &world::FrameRec, corrupted: bool) {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn a_cycle_without_time_is_caught_as_a_stall() {
+        // Validation refuses zero-bit frames; force one past it to check the guard.
+        let text = std::fs::read_to_string(concat!(
+            env!("CARGO_MANIFEST_DIR"),
+            "/scenarios/fruit-grader.toml"
+        ))
+        .unwrap();
+        let mut spec = crate::scenario::parse_str(&text, "fruit-grader.toml").unwrap();
+        if let crate::spec::AccessSpec::Polling(p) = &mut spec.access {
+            p.request_bits = 0;
+            p.reply_timeout = Picos::ZERO;
+        }
+        for n in &mut spec.nodes {
+            n.transceiver.enable_time = Picos::ZERO;
+            n.transceiver.disable_time = Picos::ZERO;
+        }
+        let mut sim = Simulation::new(&spec);
+        sim.run_until(Picos::from_ms(1));
+        assert_eq!(sim.stalled(), Some(Picos::ZERO));
+    }
 
     #[test]
     fn slicing_a_run_changes_nothing() {
