@@ -412,6 +412,9 @@ fn split_number<'a>(t: &'a str, want: &str) -> Result<(Decimal, &'a str), UnitEr
     if digits == 0 {
         bail!("\"{t}\" does not start with a number: expected {want}");
     }
+    if matches!(b.get(i), Some(b'_' | b',')) && b.get(i + 1).is_some_and(u8::is_ascii_digit) {
+        bail!("\"{t}\": write the number without separators, with a decimal point (e.g. \"1000 ns\", \"1.5 ns\")");
+    }
     if matches!(b.get(i), Some(b'e' | b'E')) {
         let exp_negative = b.get(i + 1) == Some(&b'-');
         let start = i + 1 + usize::from(matches!(b.get(i + 1), Some(b'-' | b'+')));

@@ -62,14 +62,13 @@ fn setup(slaves: usize, rho: f64) -> Setup {
 }
 
 fn replicate(s: &Setup, reps: u64) -> (f64, f64) {
-    let ws: Vec<f64> = (1..=reps)
-        .map(|seed| {
-            mean_wait(&Bus {
-                seed,
-                ..s.bus.clone()
-            })
+    let seeds: Vec<u64> = (1..=reps).collect();
+    let ws = par_map(&seeds, |&seed| {
+        mean_wait(&Bus {
+            seed,
+            ..s.bus.clone()
         })
-        .collect();
+    });
     mean_ci(&ws)
 }
 
