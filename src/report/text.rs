@@ -188,6 +188,7 @@ pub fn render(r: &Report, color: bool) -> String {
             crate::scheme::SchemeValue::Seconds(x) => format_seconds(x),
             crate::scheme::SchemeValue::Count(n) => n.to_string(),
             crate::scheme::SchemeValue::Fraction(x) => pct(x),
+            crate::scheme::SchemeValue::Flag(b) => if b { "yes" } else { "no" }.to_owned(),
         };
         let _ = writeln!(o, "  {:<22} {}", k, shown);
     }

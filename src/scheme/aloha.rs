@@ -154,7 +154,7 @@ impl AccessScheme for Aloha {
         SchemeReport {
             name: "aloha",
             fields: vec![
-                ("slotted", SchemeValue::Count(u64::from(self.spec.slotted))),
+                ("slotted", SchemeValue::Flag(self.spec.slotted)),
                 (
                     "slot_time_s",
                     SchemeValue::Seconds(if self.spec.slotted {

@@ -65,6 +65,7 @@ pub enum SchemeValue {
     Seconds(f64),
     Count(u64),
     Fraction(f64),
+    Flag(bool),
 }
 
 /// The scheme's object in the report: its name and named figures.
@@ -83,6 +84,7 @@ impl serde::Serialize for SchemeReport {
             match *v {
                 SchemeValue::Seconds(x) | SchemeValue::Fraction(x) => m.serialize_entry(k, &x)?,
                 SchemeValue::Count(n) => m.serialize_entry(k, &n)?,
+                SchemeValue::Flag(b) => m.serialize_entry(k, &b)?,
             }
         }
         m.end()
