@@ -232,6 +232,7 @@ pub enum AccessSpec {
     Polling(PollingSpec),
     Token(TokenSpec),
     Aloha(AlohaSpec),
+    Csma(CsmaSpec),
 }
 
 impl AccessSpec {
@@ -240,6 +241,7 @@ impl AccessSpec {
             AccessSpec::Polling(_) => "polling",
             AccessSpec::Token(_) => "token",
             AccessSpec::Aloha(_) => "aloha",
+            AccessSpec::Csma(_) => "csma",
         }
     }
 }
@@ -295,6 +297,41 @@ pub struct AlohaSpec {
     pub ack_timeout: Picos,
     /// Delay before a retransmission (rounded up to a slot boundary when slotted).
     pub backoff: Latency,
+    /// Attempts after which a message is dropped; 0 = never.
+    pub max_attempts: u32,
+}
+
+/// What a CSMA node does when it senses the line busy.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum Persistence {
+    /// Reschedule the attempt after a random delay.
+    Non,
+    /// Wait until the line is idle, then send with probability p; otherwise
+    /// wait one slot and try again (p = 1 is 1-persistent).
+    P(f64),
+}
+
+/// Carrier-sense multiple access, optionally with collision detection.
+#[derive(Clone, Debug, PartialEq)]
+pub struct CsmaSpec {
+    pub persistence: Persistence,
+    pub collision_detect: bool,
+    /// From another driver's signal reaching a transmitter to its detection;
+    /// `None` means each node's receiver delay.
+    pub detect_delay: Option<Picos>,
+    /// Jam sent after a detected collision, in line bits.
+    pub jam_bits: u64,
+    /// Backoff unit (collision detection) and p-persistent deferral.
+    pub slot_time: Picos,
+    /// Without collision detection: when the sender learns a frame's fate
+    /// after its end (ideal feedback).
+    pub ack_timeout: Picos,
+    /// Random delay before a rescheduled attempt (non-persistent) or a
+    /// retransmission without collision detection.
+    pub backoff: Latency,
+    /// With collision detection: use `backoff` after a collision instead of
+    /// binary exponential backoff (set when `backoff` is given).
+    pub backoff_given: bool,
     /// Attempts after which a message is dropped; 0 = never.
     pub max_attempts: u32,
 }

@@ -185,6 +185,26 @@ impl Bus {
         })
     }
 
+    /// If the receiver of `node` shows another driver at `t`, until when the
+    /// activity it shows at `t` lasts (signals that reach it later are not
+    /// known to it yet).
+    pub fn sensed_until(&self, line: &LineModel, node: NodeId, t: u64) -> Option<u64> {
+        let rx = self.receiver_delay[node];
+        self.log
+            .iter()
+            .filter(|o| o.node != node)
+            .filter_map(|o| {
+                let lag = line.delay_ps(o.node, node) + rx;
+                (o.a + lag <= t && t < o.b + lag).then_some(o.b + lag)
+            })
+            .max()
+    }
+
+    /// Every occupancy the bus still holds (recent and scheduled ones).
+    pub fn occupancies(&self) -> impl Iterator<Item = &Occupancy> {
+        self.log.iter()
+    }
+
     /// Process every occupancy that is ready (all of them when `finish`).
     pub fn process(&mut self, line: &LineModel, now: u64, finish: bool, trace: &mut Trace) {
         while self.processed < self.log.len() {

@@ -200,7 +200,8 @@ impl Simulation {
             if let Event::Deliver { frame, to } = ev {
                 w.now = w.now.max(t);
                 let f = w.frames[frame as usize];
-                let corrupted = w.bus.is_corrupted(&w.line, f.src, to as usize, f.s, f.e);
+                let corrupted =
+                    f.aborted || w.bus.is_corrupted(&w.line, f.src, to as usize, f.s, f.e);
                 w.trace.push(BusEvent {
                     t: f.e,
                     node: f.src,
@@ -277,7 +278,7 @@ impl Simulation {
     fn on_deliver(&mut self, idx: u32, to: NodeId) {
         let w = &mut self.world;
         let f = w.frames[idx as usize];
-        let corrupted = w.bus.is_corrupted(&w.line, f.src, to, f.s, f.e);
+        let corrupted = f.aborted || w.bus.is_corrupted(&w.line, f.src, to, f.s, f.e);
         let now = w.now;
         let counted = w.in_window(now);
         if counted {

@@ -83,6 +83,8 @@ pub(crate) struct FrameRec {
     /// Deliveries still to happen.
     pub remaining: u32,
     pub corrupted_any: bool,
+    /// Cut short by its sender (collision detected): never delivered intact.
+    pub aborted: bool,
 }
 
 /// A transmission being assembled.
@@ -221,6 +223,66 @@ impl World {
         self.bus.sensed_busy(&self.line, node, self.now.0, true)
     }
 
+    /// If the receiver of `node` shows another driver now, until when the
+    /// activity it shows lasts (a later signal may extend it: sense again then).
+    pub fn carrier_until(&self, node: NodeId) -> Option<Picos> {
+        self.bus
+            .sensed_until(&self.line, node, self.now.0)
+            .map(Picos)
+    }
+
+    /// The transmissions the bus still holds: recent, running and scheduled.
+    pub fn occupancies(&self) -> impl Iterator<Item = &crate::bus::Occupancy> {
+        self.bus.occupancies()
+    }
+
+    /// Stop `node`'s running transmission `occupancy` now: every frame of it
+    /// not yet finished is cut (its destination sees it corrupted when its
+    /// delivery comes due), `jam_bits` line bits of jam follow, then the
+    /// enable is released.
+    pub fn abort_tx(&mut self, node: NodeId, occupancy: u64, jam_bits: u64) -> TxTimes {
+        let now = self.now.0;
+        let enable_time = self.spec.nodes[node].transceiver.enable_time.0;
+        let jam = self.spec.frame.duration(jam_bits).0;
+        let release = now.max(
+            self.bus
+                .occupancies()
+                .find(|o| o.id == occupancy)
+                .map_or(now, |o| o.a + enable_time),
+        ) + jam;
+        let off = release + self.spec.nodes[node].transceiver.disable_time.0;
+        for i in 0..self.frames.len() {
+            let f = self.frames[i];
+            if f.occupancy != occupancy || f.remaining == 0 || f.e <= now {
+                continue;
+            }
+            // Cut: the frame's bits end now; it is delivered (as corrupted) when its
+            // delivery event comes due.
+            let rec = &mut self.frames[i];
+            rec.e = rec.s.max(now);
+            rec.aborted = true;
+        }
+        self.bus.util.add(
+            crate::stats::utilization::Piece::Wasted,
+            release - jam,
+            release,
+        );
+        self.bus.cut_short(occupancy, release, off);
+        self.last_release[node] = release;
+        TxTimes {
+            enable: Picos(
+                self.bus
+                    .occupancies()
+                    .find(|o| o.id == occupancy)
+                    .map_or(now, |o| o.a),
+            ),
+            first_bit: Picos(now),
+            release: Picos(release),
+            off: Picos(off),
+            occupancy,
+        }
+    }
+
     /// Fire `on_timer(node, tag)` at `at` (not in the past).
     pub fn set_timer(&mut self, node: NodeId, at: Picos, tag: u64) {
         debug_assert!(at >= self.now, "timer in the past");
@@ -276,6 +338,7 @@ impl World {
             message: f.message,
             remaining,
             corrupted_any: false,
+            aborted: false,
         };
         let idx = match self.free_frames.pop() {
             Some(i) => {

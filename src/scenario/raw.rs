@@ -82,6 +82,10 @@ pub struct RawAccess {
     pub ack_timeout: Option<S>,
     pub backoff: Option<Spanned<RawLatency>>,
     pub max_attempts: Option<Spanned<u32>>,
+    pub persistence: Option<Spanned<RawPersistence>>,
+    pub collision_detect: Option<Spanned<bool>>,
+    pub detect_delay: Option<S>,
+    pub jam_bits: Option<Spanned<u64>>,
 }
 
 impl RawAccess {
@@ -111,6 +115,10 @@ impl RawAccess {
             ("ack_timeout", sp(&self.ack_timeout)),
             ("backoff", sp(&self.backoff)),
             ("max_attempts", sp(&self.max_attempts)),
+            ("persistence", sp(&self.persistence)),
+            ("collision_detect", sp(&self.collision_detect)),
+            ("detect_delay", sp(&self.detect_delay)),
+            ("jam_bits", sp(&self.jam_bits)),
         ];
         all.into_iter()
             .filter_map(|(k, s)| s.map(|s| (k, s)))
@@ -250,6 +258,35 @@ impl<'de> Deserialize<'de> for RawLatency {
             fn visit_map<A: MapAccess<'de>>(self, map: A) -> Result<Self::Value, A::Error> {
                 let t = RawLatencyTable::deserialize(de::value::MapAccessDeserializer::new(map))?;
                 Ok(RawLatency::Table(t))
+            }
+        }
+        d.deserialize_any(V)
+    }
+}
+
+/// `persistence = "non"`, `1` or a probability such as `0.1`.
+#[derive(Debug)]
+pub enum RawPersistence {
+    Word(String),
+    Number(f64),
+}
+
+impl<'de> Deserialize<'de> for RawPersistence {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        struct V;
+        impl<'de> Visitor<'de> for V {
+            type Value = RawPersistence;
+            fn expecting(&self, f: &mut fmt::Formatter) -> fmt::Result {
+                f.write_str("\"non\", 1, or a probability between 0 and 1")
+            }
+            fn visit_str<E: de::Error>(self, v: &str) -> Result<Self::Value, E> {
+                Ok(RawPersistence::Word(v.to_owned()))
+            }
+            fn visit_i64<E: de::Error>(self, v: i64) -> Result<Self::Value, E> {
+                Ok(RawPersistence::Number(v as f64))
+            }
+            fn visit_f64<E: de::Error>(self, v: f64) -> Result<Self::Value, E> {
+                Ok(RawPersistence::Number(v))
             }
         }
         d.deserialize_any(V)

@@ -9,6 +9,7 @@
 //! every scheme is judged by the same rules.
 
 pub mod aloha;
+pub mod csma;
 pub mod polling;
 pub mod token;
 
@@ -50,6 +51,7 @@ pub fn build(spec: &Spec) -> Box<dyn AccessScheme> {
         AccessSpec::Polling(p) => Box::new(polling::Polling::new(p.clone())),
         AccessSpec::Token(t) => Box::new(token::Token::new(t.clone())),
         AccessSpec::Aloha(a) => Box::new(aloha::Aloha::new(a.clone(), spec.nodes.len())),
+        AccessSpec::Csma(c) => Box::new(csma::Csma::new(c.clone(), spec.nodes.len())),
     }
 }
 

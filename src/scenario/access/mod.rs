@@ -4,6 +4,7 @@
 //! a key that does not apply to the chosen scheme is an error that says so.
 
 mod aloha;
+mod csma;
 mod polling;
 mod token;
 
@@ -15,7 +16,7 @@ use crate::spec::{AccessSpec, FrameFormat, Latency, LineSpec, NodeId, NodeSpec};
 use crate::units::Picos;
 
 /// Values of `access.scheme`.
-pub const SCHEMES: &[&str] = &["polling", "token", "aloha"];
+pub const SCHEMES: &[&str] = &["polling", "token", "aloha", "csma"];
 
 /// Keys every scheme accepts.
 const COMMON: &[&str] = &["scheme", "order", "turnaround", "response_latency"];
@@ -44,7 +45,8 @@ pub fn validate(
     let allowed: &[&str] = match scheme {
         "polling" => polling::KEYS,
         "token" => token::KEYS,
-        _ => aloha::KEYS,
+        "aloha" => aloha::KEYS,
+        _ => csma::KEYS,
     };
     for (key, at) in a.present() {
         if !COMMON.contains(&key) && !allowed.contains(&key) {
@@ -77,7 +79,8 @@ pub fn validate(
     match scheme {
         "polling" => polling::validate(&ctx),
         "token" => token::validate(&ctx),
-        _ => aloha::validate(&ctx),
+        "aloha" => aloha::validate(&ctx),
+        _ => csma::validate(&ctx),
     }
 }
 
