@@ -233,6 +233,7 @@ pub enum AccessSpec {
     Token(TokenSpec),
     Aloha(AlohaSpec),
     Csma(CsmaSpec),
+    Tdma(TdmaSpec),
 }
 
 impl AccessSpec {
@@ -242,6 +243,7 @@ impl AccessSpec {
             AccessSpec::Token(_) => "token",
             AccessSpec::Aloha(_) => "aloha",
             AccessSpec::Csma(_) => "csma",
+            AccessSpec::Tdma(_) => "tdma",
         }
     }
 }
@@ -334,4 +336,52 @@ pub struct CsmaSpec {
     pub backoff_given: bool,
     /// Attempts after which a message is dropped; 0 = never.
     pub max_attempts: u32,
+}
+
+/// A node's clock error.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum Drift {
+    /// Runs fast by this many parts per million (negative: slow).
+    Fixed(f64),
+    /// Drawn once, uniformly within ±ppm, from the node's own stream.
+    Within(f64),
+}
+
+/// One data slot of a TDMA cycle.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Slot {
+    pub owner: NodeId,
+    pub length: Picos,
+}
+
+/// Time-division multiple access with a beacon.
+#[derive(Clone, Debug, PartialEq)]
+pub struct TdmaSpec {
+    pub timekeeper: NodeId,
+    /// Total data bits of the beacon frame.
+    pub beacon_bits: u64,
+    /// Data slots after the beacon, in cycle order.
+    pub slots: Vec<Slot>,
+    /// Idle time at the start of every slot (and of the beacon slot).
+    pub guard: Picos,
+    /// Clock error of every node, indexed by [`NodeId`].
+    pub drift: Vec<Drift>,
+    /// Nodes correct the beacon's arrival for their known wire and receiver delay.
+    pub compensate: bool,
+}
+
+impl TdmaSpec {
+    /// The beacon slot: guard, enable lead-in and beacon bits, in the timekeeper's time.
+    pub fn beacon_slot(&self, frame: &FrameFormat, timekeeper_enable: Picos) -> Picos {
+        self.guard + timekeeper_enable + frame.duration(frame.control_line_bits(self.beacon_bits))
+    }
+
+    /// The whole cycle in the timekeeper's time.
+    pub fn cycle(&self, frame: &FrameFormat, timekeeper_enable: Picos) -> Picos {
+        self.slots
+            .iter()
+            .fold(self.beacon_slot(frame, timekeeper_enable), |acc, s| {
+                acc + s.length
+            })
+    }
 }

@@ -28,6 +28,7 @@ pub enum FrameKind {
     Poll,
     EmptyReply,
     Token,
+    Beacon,
 }
 
 impl FrameKind {
@@ -37,6 +38,7 @@ impl FrameKind {
             FrameKind::Poll => "poll",
             FrameKind::EmptyReply => "empty-reply",
             FrameKind::Token => "token",
+            FrameKind::Beacon => "beacon",
         }
     }
 }

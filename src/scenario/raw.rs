@@ -86,6 +86,22 @@ pub struct RawAccess {
     pub collision_detect: Option<Spanned<bool>>,
     pub detect_delay: Option<S>,
     pub jam_bits: Option<Spanned<u64>>,
+    pub timekeeper: Option<S>,
+    pub beacon_bits: Option<Spanned<u64>>,
+    pub slot_length: Option<S>,
+    pub slots: Option<Spanned<Vec<Spanned<RawSlot>>>>,
+    pub guard: Option<S>,
+    pub drift_ppm: Option<Spanned<f64>>,
+    pub clock_ppm: Option<Spanned<std::collections::BTreeMap<String, f64>>>,
+    pub compensate: Option<Spanned<bool>>,
+}
+
+/// One TDMA slot: `{ node = "s01", length = "10 us" }`.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawSlot {
+    pub node: S,
+    pub length: Option<S>,
 }
 
 impl RawAccess {
@@ -119,6 +135,14 @@ impl RawAccess {
             ("collision_detect", sp(&self.collision_detect)),
             ("detect_delay", sp(&self.detect_delay)),
             ("jam_bits", sp(&self.jam_bits)),
+            ("timekeeper", sp(&self.timekeeper)),
+            ("beacon_bits", sp(&self.beacon_bits)),
+            ("slot_length", sp(&self.slot_length)),
+            ("slots", sp(&self.slots)),
+            ("guard", sp(&self.guard)),
+            ("drift_ppm", sp(&self.drift_ppm)),
+            ("clock_ppm", sp(&self.clock_ppm)),
+            ("compensate", sp(&self.compensate)),
         ];
         all.into_iter()
             .filter_map(|(k, s)| s.map(|s| (k, s)))

@@ -11,6 +11,7 @@
 pub mod aloha;
 pub mod csma;
 pub mod polling;
+pub mod tdma;
 pub mod token;
 
 use rand::Rng;
@@ -52,6 +53,7 @@ pub fn build(spec: &Spec) -> Box<dyn AccessScheme> {
         AccessSpec::Token(t) => Box::new(token::Token::new(t.clone())),
         AccessSpec::Aloha(a) => Box::new(aloha::Aloha::new(a.clone(), spec.nodes.len())),
         AccessSpec::Csma(c) => Box::new(csma::Csma::new(c.clone(), spec.nodes.len())),
+        AccessSpec::Tdma(t) => Box::new(tdma::Tdma::new(t.clone())),
     }
 }
 

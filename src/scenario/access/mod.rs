@@ -6,6 +6,7 @@
 mod aloha;
 mod csma;
 mod polling;
+mod tdma;
 mod token;
 
 use std::ops::Range;
@@ -16,7 +17,7 @@ use crate::spec::{AccessSpec, FrameFormat, Latency, LineSpec, NodeId, NodeSpec};
 use crate::units::Picos;
 
 /// Values of `access.scheme`.
-pub const SCHEMES: &[&str] = &["polling", "token", "aloha", "csma"];
+pub const SCHEMES: &[&str] = &["polling", "token", "tdma", "aloha", "csma"];
 
 /// Keys every scheme accepts.
 const COMMON: &[&str] = &["scheme", "order", "turnaround", "response_latency"];
@@ -46,6 +47,7 @@ pub fn validate(
         "polling" => polling::KEYS,
         "token" => token::KEYS,
         "aloha" => aloha::KEYS,
+        "tdma" => tdma::KEYS,
         _ => csma::KEYS,
     };
     for (key, at) in a.present() {
@@ -80,6 +82,7 @@ pub fn validate(
         "polling" => polling::validate(&ctx),
         "token" => token::validate(&ctx),
         "aloha" => aloha::validate(&ctx),
+        "tdma" => tdma::validate(&ctx),
         _ => csma::validate(&ctx),
     }
 }

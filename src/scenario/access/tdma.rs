@@ -1,0 +1,161 @@
+//! `[access]` for `scheme = "tdma"`.
+
+use super::{Access, R};
+use crate::spec::{AccessSpec, Drift, Slot, TdmaSpec};
+use crate::units::Picos;
+
+pub const KEYS: &[&str] = &[
+    "timekeeper",
+    "beacon_bits",
+    "slot_length",
+    "slots",
+    "guard",
+    "drift_ppm",
+    "clock_ppm",
+    "compensate",
+];
+
+pub fn validate(c: &Access) -> R<AccessSpec> {
+    let (v, a) = (c.v, c.a);
+    let tk_raw = c.required(&a.timekeeper, "timekeeper", "timekeeper = \"<node name>\"")?;
+    let timekeeper = c.find(tk_raw, "access.timekeeper")?;
+    let guard_raw = c.required(&a.guard, "guard", "guard = \"50 ns\"")?;
+    let guard = v.time(guard_raw, "access.guard")?;
+    let equal = a
+        .slot_length
+        .as_ref()
+        .map(|l| v.time(l, "access.slot_length"))
+        .transpose()?;
+    let slots = match (&a.slots, &a.order) {
+        (Some(_), Some(o)) => {
+            return Err(v.err(o.span(), "access.order", "give slots or order, not both"));
+        }
+        (Some(list), None) => {
+            if list.get_ref().is_empty() {
+                return Err(v.err(
+                    list.span(),
+                    "access.slots",
+                    "the cycle has no slots: list at least one",
+                ));
+            }
+            let mut out = Vec::new();
+            for (i, s) in list.get_ref().iter().enumerate() {
+                let key = format!("access.slots[{i}]");
+                let raw = s.get_ref();
+                let owner = c.find(&raw.node, &format!("{key}.node"))?;
+                let length = match (&raw.length, equal) {
+                    (Some(l), _) => v.time(l, &format!("{key}.length"))?,
+                    (None, Some(l)) => l,
+                    (None, None) => {
+                        return Err(v.err(
+                            s.span(),
+                            &key,
+                            "a slot needs a length: give length here or access.slot_length",
+                        ))
+                    }
+                };
+                out.push((owner, length, s.span(), key));
+            }
+            out
+        }
+        (None, _) => {
+            let length = equal.ok_or_else(|| {
+                v.err(
+                    c.span.clone(),
+                    "access.slot_length",
+                    "tdma needs slot_length (equal slots) or a slots list",
+                )
+            })?;
+            c.order(None, "slot order")?
+                .into_iter()
+                .map(|n| {
+                    (
+                        n,
+                        length,
+                        a.slot_length
+                            .as_ref()
+                            .map(|l| l.span())
+                            .unwrap_or(c.span.clone()),
+                        "access.slot_length".to_owned(),
+                    )
+                })
+                .collect()
+        }
+    };
+    let owners: Vec<usize> = slots.iter().map(|s| s.0).collect();
+    c.all_senders_in(&owners, "slot list")?;
+    let spread = a.drift_ppm.as_ref().map(|d| *d.get_ref()).unwrap_or(0.0);
+    if !(0.0..=10_000.0).contains(&spread) {
+        let span = a
+            .drift_ppm
+            .as_ref()
+            .map(|d| d.span())
+            .unwrap_or(c.span.clone());
+        return Err(v.err(
+            span,
+            "access.drift_ppm",
+            "drift_ppm must lie between 0 and 10000",
+        ));
+    }
+    let mut drift = vec![
+        if spread > 0.0 {
+            Drift::Within(spread)
+        } else {
+            Drift::Fixed(0.0)
+        };
+        c.nodes.len()
+    ];
+    if let Some(map) = &a.clock_ppm {
+        for (name, ppm) in map.get_ref() {
+            let id = c.names.iter().position(|n| n == name).ok_or_else(|| {
+                v.err(
+                    map.span(),
+                    &format!("access.clock_ppm.{name}"),
+                    format!("no node is called \"{name}\""),
+                )
+            })?;
+            if !ppm.is_finite() || ppm.abs() > 10_000.0 {
+                return Err(v.err(
+                    map.span(),
+                    &format!("access.clock_ppm.{name}"),
+                    "a clock error must lie within ±10000 ppm",
+                ));
+            }
+            drift[id] = Drift::Fixed(*ppm);
+        }
+    }
+    let longest = c.longest_data_frame();
+    for (owner, length, span, key) in &slots {
+        let en = c.nodes[*owner].transceiver.enable_time;
+        // A fast clock shortens the slot in true time: keep room for the worst drift.
+        let ppm = match drift[*owner] {
+            Drift::Fixed(p) => p.max(0.0),
+            Drift::Within(p) => p,
+        };
+        let nominal = guard + en + longest;
+        let needed = Picos((nominal.0 as f64 * (1.0 + ppm * 1e-6)).ceil() as u64);
+        if *length < needed {
+            return Err(v
+                .err(
+                    span.clone(),
+                    key,
+                    format!(
+                        "the slot of \"{}\" ({length}) cannot hold guard + enable + the longest data frame ({needed})",
+                        c.names[*owner]
+                    ),
+                )
+                .with_hint("lengthen the slot, shorten the guard or the payload"));
+        }
+    }
+    Ok(AccessSpec::Tdma(TdmaSpec {
+        timekeeper,
+        beacon_bits: c.control_bits(&a.beacon_bits, "beacon_bits")?,
+        slots: slots
+            .into_iter()
+            .map(|(owner, length, _, _)| Slot { owner, length })
+            .collect(),
+        guard,
+        drift,
+        compensate: a.compensate.as_ref().is_some_and(|x| *x.get_ref()),
+    }))
+}

@@ -1,0 +1,239 @@
+//! Time-division multiple access with a beacon.
+//!
+//! The timekeeper opens every cycle: after a guard it sends a beacon to all
+//! nodes. Each node resynchronises on the instant its receiver output shows
+//! the end of the beacon, optionally corrected for its known wire and
+//! receiver delay (`compensate`), and counts its slots from there with its
+//! own clock, which runs fast or slow by its drift. Slot k spans local
+//! offsets [O_k, O_k + L_k) after the beacon's end; its owner asserts its
+//! enable at O_k + guard and sends the queued messages that fit before the
+//! slot ends (a message that does not fit waits for the next cycle). Bit
+//! timing is nominal; only slot timing drifts.
+//!
+//! The hand-over from slot k (owner P) to slot k+1 (owner R) is safe when,
+//! in true time, P's disable tail has passed R's position before R enables:
+//!
+//! ```text
+//! guard/(1+ε_R) ≥ disable_P + d(P,R) + O_(k+1)·(1/(1+ε_P) − 1/(1+ε_R))   (+ uncompensated lag difference)
+//! ```
+//!
+//! i.e. guard ≥ disable time + wire delay between consecutive owners + the
+//! clock error accumulated since the beacon (at most about cycle × 2·ppm).
+
+use rand::Rng;
+use tracing::debug;
+
+use super::{AccessScheme, SchemeReport, SchemeValue};
+use crate::engine::{Dest, FrameKind, FrameOut, Reception, World};
+use crate::spec::{Drift, NodeId, TdmaSpec};
+use crate::units::Picos;
+
+const BEACON: u64 = 1;
+const SLOT: u64 = 2;
+
+#[derive(Debug)]
+pub struct Tdma {
+    spec: TdmaSpec,
+    /// Clock rate error of each node (fraction, not ppm).
+    eps: Vec<f64>,
+    /// Local offset of each slot's start after the beacon's end.
+    offset: Vec<Picos>,
+    /// True time at which each slot ends, as its owner computed it this cycle.
+    slot_end: Vec<Picos>,
+    /// Release of the latest beacon (true time).
+    beacon_release: Picos,
+    cycle_local: Picos,
+    beacons: u64,
+    missed: u64,
+    used: u64,
+    overruns: u64,
+}
+
+impl Tdma {
+    pub fn new(spec: TdmaSpec) -> Self {
+        let mut offset = Vec::with_capacity(spec.slots.len());
+        let mut o = Picos::ZERO;
+        for s in &spec.slots {
+            offset.push(o);
+            o += s.length;
+        }
+        let n = spec.slots.len();
+        Tdma {
+            eps: vec![0.0; spec.drift.len()],
+            slot_end: vec![Picos::ZERO; n],
+            offset,
+            spec,
+            beacon_release: Picos::ZERO,
+            cycle_local: Picos::ZERO,
+            beacons: 0,
+            missed: 0,
+            used: 0,
+            overruns: 0,
+        }
+    }
+
+    /// True duration of `local` time on `node`'s clock.
+    fn true_span(&self, node: NodeId, local: Picos) -> Picos {
+        Picos((local.0 as f64 / (1.0 + self.eps[node])).round() as u64)
+    }
+
+    fn schedule_beacon(&self, w: &mut World, cycle: u64) {
+        let tk = self.spec.timekeeper;
+        let local = Picos(cycle * self.cycle_local.0) + self.spec.guard;
+        let at = self.true_span(tk, local).max(w.now());
+        w.set_timer(tk, at, (cycle << 8) | BEACON);
+    }
+
+    /// `node` takes `t_ref` as the end of the beacon: arm its slots.
+    fn resync(&mut self, w: &mut World, node: NodeId, t_ref: Picos) {
+        for k in 0..self.spec.slots.len() {
+            if self.spec.slots[k].owner != node {
+                continue;
+            }
+            let start = t_ref + self.true_span(node, self.offset[k] + self.spec.guard);
+            self.slot_end[k] =
+                t_ref + self.true_span(node, self.offset[k] + self.spec.slots[k].length);
+            w.set_timer(node, start.max(w.now()), ((k as u64) << 8) | SLOT);
+        }
+    }
+
+    fn run_slot(&mut self, w: &mut World, node: NodeId, k: usize) {
+        let end = self.slot_end[k];
+        let now = w.now();
+        let now = now.max(w.driver_free_at(node));
+        let frame = w.spec().frame.clone();
+        let overhead = frame.overhead_bits;
+        let mut cursor = now + w.spec().nodes[node].transceiver.enable_time;
+        let mut sent = 0;
+        while w.queue_len(node) > 0 {
+            let msg = w.pop_message(node).expect("queue checked");
+            let f = FrameOut::data(msg, overhead);
+            let gap = if sent > 0 {
+                frame.interframe_gap
+            } else {
+                Picos::ZERO
+            };
+            let f_end = cursor + gap + frame.duration(frame.encoding.line_bits(f.data_bits));
+            if f_end > end {
+                w.push_front(node, msg);
+                break;
+            }
+            if sent == 0 {
+                w.begin_tx(node, now);
+            }
+            w.count_access_attempt();
+            w.add_frame(f);
+            cursor = f_end;
+            sent += 1;
+        }
+        if sent > 0 {
+            let tx = w.finish_tx();
+            let nominal_end = self.beacon_release + self.offset[k] + self.spec.slots[k].length;
+            if w.in_window(now) {
+                self.used += 1;
+                if tx.release > nominal_end {
+                    self.overruns += 1;
+                }
+            }
+            debug!(t_ps = now.0, node = %w.spec().nodes[node].name, slot = k, frames = sent, "slot");
+        }
+    }
+}
+
+impl AccessScheme for Tdma {
+    fn name(&self) -> &'static str {
+        "tdma"
+    }
+
+    fn default_destination(&self, source: NodeId) -> NodeId {
+        if source == self.spec.timekeeper {
+            super::first_other_node(source)
+        } else {
+            self.spec.timekeeper
+        }
+    }
+
+    fn start(&mut self, w: &mut World) {
+        for node in 0..self.eps.len() {
+            self.eps[node] = match self.spec.drift[node] {
+                Drift::Fixed(ppm) => ppm * 1e-6,
+                Drift::Within(ppm) => w.rng(node).random_range(-ppm..=ppm) * 1e-6,
+            };
+        }
+        let tk = self.spec.timekeeper;
+        self.cycle_local = self
+            .spec
+            .cycle(&w.spec().frame, w.spec().nodes[tk].transceiver.enable_time);
+        self.schedule_beacon(w, 0);
+    }
+
+    fn on_timer(&mut self, w: &mut World, node: NodeId, tag: u64) {
+        let n = tag >> 8;
+        match tag & 0xff {
+            BEACON => {
+                let beacon = FrameOut::control(FrameKind::Beacon, Dest::All, self.spec.beacon_bits);
+                let tx = w.transmit(node, w.now(), &[beacon]);
+                self.beacon_release = tx.release;
+                if w.in_window(w.now()) {
+                    self.beacons += 1;
+                }
+                // The timekeeper knows its own beacon's end exactly.
+                self.resync(w, node, tx.release);
+                self.schedule_beacon(w, n + 1);
+            }
+            SLOT => self.run_slot(w, node, n as usize),
+            _ => unreachable!("tdma sets only its own timers"),
+        }
+    }
+
+    fn on_receive(&mut self, w: &mut World, rx: &Reception) {
+        if rx.kind != FrameKind::Beacon {
+            return;
+        }
+        if rx.corrupted {
+            if w.in_window(w.now()) {
+                self.missed += 1;
+            }
+            return;
+        }
+        let node = rx.at;
+        let lag = if self.spec.compensate {
+            w.line().delay(rx.from, node) + w.spec().nodes[node].transceiver.receiver_delay
+        } else {
+            Picos::ZERO
+        };
+        let t_ref = w.now() - lag;
+        self.resync(w, node, t_ref);
+    }
+
+    fn report(&self, w: &World) -> SchemeReport {
+        let cycle = self.cycle_local.as_secs_f64();
+        let usable: f64 = self
+            .spec
+            .slots
+            .iter()
+            .map(|s| {
+                (s.length - self.spec.guard - w.spec().nodes[s.owner].transceiver.enable_time)
+                    .as_secs_f64()
+            })
+            .sum();
+        SchemeReport {
+            name: "tdma",
+            fields: vec![
+                ("cycle_s", SchemeValue::Seconds(cycle)),
+                (
+                    "guard_s",
+                    SchemeValue::Seconds(self.spec.guard.as_secs_f64()),
+                ),
+                (
+                    "usable_fraction",
+                    SchemeValue::Fraction(if cycle > 0.0 { usable / cycle } else { 0.0 }),
+                ),
+                ("beacons", SchemeValue::Count(self.beacons)),
+                ("beacons_missed", SchemeValue::Count(self.missed)),
+                ("slots_used", SchemeValue::Count(self.used)),
+                ("slot_overruns", SchemeValue::Count(self.overruns)),
+            ],
+        }
+    }
+}

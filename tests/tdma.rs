@@ -1,0 +1,145 @@
+//! TDMA against bounds derived from the documented timing model (see
+//! `src/scheme/tdma.rs`): the guard needed for a hand-over, and throughput
+//! equal to the analytic slot utilisation. Through the built binary.
+
+mod common;
+
+use common::{loaded_tpd, run_toml};
+use serde_json::Value;
+
+/// Timekeeper at 0 m, P at 2 m and R at 9 m (unequal spacing); P owns the
+/// first slot, R the second; both always have a 64-byte message ready.
+fn scenario(guard_ps: u64, slot_p_ps: u64, slot_r_ps: u64, extra: &str) -> String {
+    format!(
+        r#"
+duration = "20 ms"
+warmup = "1 ms"
+[line]
+length = "10 m"
+impedance = "100 ohm"
+delay = "5 ns/m"
+[transceiver]
+drive_current = "11.3 mA"
+enable_time = "7 ns"
+disable_time = "9 ns"
+receiver_delay = "5 ns"
+load = "5 pF"
+receiver = "type2"
+[frame]
+bit_rate = "100 Mbit/s"
+overhead_bits = 48
+interframe_gap = "40 ns"
+[access]
+scheme = "tdma"
+timekeeper = "tk"
+beacon_bits = 32
+guard = "{guard_ps} ps"
+slots = [{{ node = "p", length = "{slot_p_ps} ps" }}, {{ node = "r", length = "{slot_r_ps} ps" }}]
+{extra}
+[[node]]
+name = "tk"
+position = "0 m"
+[[node]]
+name = "p"
+position = "2 m"
+traffic = {{ pattern = "poisson", rate = "1000000/s", payload = "64 B", queue_limit = 100 }}
+[[node]]
+name = "r"
+position = "9 m"
+traffic = {{ pattern = "poisson", rate = "1000000/s", payload = "64 B", queue_limit = 100 }}
+"#
+    )
+}
+
+const EN: f64 = 7e-9;
+const DIS: f64 = 9e-9;
+const DUR: f64 = 5.6e-6; // 560 bits at 100 Mbit/s
+
+fn contention(j: &Value) -> u64 {
+    j["contention"]["events"].as_u64().unwrap()
+}
+
+#[test]
+fn guard_bound_with_clock_error() {
+    // P's clock is exact and its frame fills its slot (L_P = g + e + T), so P
+    // releases exactly at its slot's end, O_R = L_P after the beacon. R's
+    // clock runs 100 ppm fast (ε), so it enables early. With every node
+    // compensating the beacon's delay, R enables at (O_R + g)/(1+ε) and P's
+    // tail reaches R at O_R + disable + d(P,R). Safe iff
+    //   g ≥ (disable + d)(1+ε) + ε(e + T)) / (1 − ε)
+    // — the disable time, the wire delay between consecutive owners and the
+    // clock error accumulated since the beacon.
+    let eps = 100e-6;
+    let tpd = loaded_tpd(5e-9, 100.0, 15e-12, 10.0);
+    let d = (7.0 * tpd * 1e12).round() * 1e-12;
+    let g_star = ((DIS + d) * (1.0 + eps) + eps * (EN + DUR)) / (1.0 - eps);
+    let run = |g: f64| {
+        let g_ps = (g * 1e12).round() as u64;
+        let slot_p = g_ps + 7_000 + 5_600_000;
+        let slot_r = slot_p + 1_000_000;
+        run_toml(&scenario(
+            g_ps,
+            slot_p,
+            slot_r,
+            "compensate = true\nclock_ppm = { r = 100.0 }",
+        ))
+    };
+    let safe = run(g_star + 3e-12); // ±3 ps: each clock conversion is rounded to the picosecond
+    let short = run(g_star - 3e-12);
+    eprintln!(
+        "g* = {:.3} ns; contention {} above, {} below",
+        g_star * 1e9,
+        contention(&safe),
+        contention(&short)
+    );
+    assert_eq!(contention(&safe), 0, "3 ps above the bound: no contention");
+    assert!(contention(&short) > 0, "3 ps below the bound: contention");
+    assert!(safe["frames"]["delivered"].as_u64().unwrap() > 1000);
+    // Without the clock error the same guard is ample; without compensation
+    // the lag difference (R is 7 m further from the timekeeper) helps R here.
+    let exact = run_toml(&scenario(
+        ((DIS + d) * 1e12).round() as u64 + 1_000,
+        ((DIS + d) * 1e12).round() as u64 + 1_000 + 5_607_000,
+        10_000_000,
+        "compensate = true",
+    ));
+    assert_eq!(contention(&exact), 0);
+}
+
+#[test]
+fn throughput_equals_the_slot_utilisation() {
+    // Two frames fit each slot: L = g + e + 2T + ifg + 100 ns slack.
+    let g = 100_000u64;
+    let slot = g + 7_000 + 2 * 5_600_000 + 40_000 + 100_000;
+    let j = run_toml(&scenario(g, slot, slot, ""));
+    // Cycle = beacon slot (g + e + 32 bits) + both slots.
+    let cycle = (g + 7_000 + 320_000 + 2 * slot) as f64 * 1e-12;
+    let expected = 4.0 * DUR / cycle;
+    let carried = j["throughput"]["carried"].as_f64().unwrap();
+    let window = j["simulated_s"].as_f64().unwrap();
+    // Counted by delivery inside the window: at most one cycle off at each edge.
+    let edge = 2.0 * 4.0 * DUR / window;
+    eprintln!("carried {carried:.5}, slot utilisation {expected:.5} ± {edge:.5}");
+    assert!(
+        (carried - expected).abs() <= edge,
+        "carried {carried} vs {expected}"
+    );
+    assert!((j["scheme"]["cycle_s"].as_f64().unwrap() - cycle).abs() < 1e-15);
+    let usable = j["scheme"]["usable_fraction"].as_f64().unwrap();
+    assert!((usable - 2.0 * (slot - g - 7_000) as f64 * 1e-12 / cycle).abs() < 1e-12);
+    assert_eq!(contention(&j), 0);
+}
+
+#[test]
+fn a_slot_too_short_for_a_frame_is_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("t.toml");
+    std::fs::write(&path, scenario(100_000, 1_000_000, 10_000_000, "")).unwrap();
+    let out = common::halfwire(&["run", path.to_str().unwrap()]);
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("access.slots[0]") && err.contains("cannot hold"),
+        "{err}"
+    );
+}
