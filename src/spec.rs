@@ -105,6 +105,8 @@ pub struct TrafficSpec {
     pub payload: Payload,
     /// Destination; `None` means the scheme's default (the master, for polling).
     pub to: Option<NodeId>,
+    /// Identifier (bitwise arbitration: lower wins); also keys per-identifier latency.
+    pub id: Option<u64>,
 }
 
 #[derive(Clone, Debug, PartialEq)]
@@ -234,6 +236,7 @@ pub enum AccessSpec {
     Aloha(AlohaSpec),
     Csma(CsmaSpec),
     Tdma(TdmaSpec),
+    Arbitration(ArbitrationSpec),
 }
 
 impl AccessSpec {
@@ -244,6 +247,7 @@ impl AccessSpec {
             AccessSpec::Aloha(_) => "aloha",
             AccessSpec::Csma(_) => "csma",
             AccessSpec::Tdma(_) => "tdma",
+            AccessSpec::Arbitration(_) => "arbitration",
         }
     }
 }
@@ -384,4 +388,15 @@ impl TdmaSpec {
                 acc + s.length
             })
     }
+}
+
+/// Non-destructive bitwise arbitration on a line with a dominant state.
+#[derive(Clone, Debug, PartialEq)]
+pub struct ArbitrationSpec {
+    /// Identifier length in bits, sent most significant bit first.
+    pub id_bits: u32,
+    /// Bit times the line must be idle before a start bit.
+    pub idle_bits: u32,
+    /// Where in the bit a node samples, as a fraction of the bit time.
+    pub sample_point: f64,
 }

@@ -45,6 +45,9 @@ pub struct Occupancy {
     pub b: u64,
     /// Frames not yet delivered.
     pub pending: u32,
+    /// A dominant-state drive of wired-AND signalling (bitwise arbitration):
+    /// two dominant drives at once are the mechanism, not a fault.
+    pub dominant: bool,
 }
 
 /// A contention event: two occupancies overlapping somewhere on the line.
@@ -113,7 +116,17 @@ impl Bus {
 
     /// Record a new occupancy. `a` must not lie before any processed entry's
     /// processing time (the engine guarantees `a ≥ now`).
-    pub fn insert(&mut self, id: u64, node: NodeId, a: u64, release: u64, b: u64, frames: u32) {
+    #[allow(clippy::too_many_arguments)]
+    pub fn insert(
+        &mut self,
+        id: u64,
+        node: NodeId,
+        a: u64,
+        release: u64,
+        b: u64,
+        frames: u32,
+        dominant: bool,
+    ) {
         let occ = Occupancy {
             id,
             node,
@@ -121,6 +134,7 @@ impl Bus {
             release,
             b,
             pending: frames,
+            dominant,
         };
         let mut at = self.log.len();
         while at > self.processed && self.log[at - 1].a > a {
@@ -238,7 +252,7 @@ impl Bus {
         let k = self.log[idx];
         // Contention against every earlier entry that can still overlap.
         for j in self.log.range(..idx) {
-            if j.b + self.max_delay <= k.a || j.node == k.node {
+            if j.b + self.max_delay <= k.a || j.node == k.node || (j.dominant && k.dominant) {
                 continue;
             }
             let sj = Span {
@@ -303,7 +317,15 @@ impl Bus {
         };
         self.floating
             .feed_occupancy(k.node, k.a, k.b, |i| line.delay_row(i), next);
-        self.util.add(Piece::Occupancy, k.a, k.b);
+        self.util.add(
+            if k.dominant {
+                Piece::Dominant
+            } else {
+                Piece::Occupancy
+            },
+            k.a,
+            k.b,
+        );
         trace.push(BusEvent {
             t: k.a,
             node: k.node,

@@ -298,6 +298,9 @@ impl Simulation {
                     let lat = now.0 - m.arrival;
                     st.latency_all.record(lat);
                     st.latency_node[m.source].record(lat);
+                    if let Some(i) = w.id_index[m.source][usize::from(m.flow)] {
+                        w.stats.latency_id[i as usize].1.record(lat);
+                    }
                 }
             } else {
                 w.stats.frames.control_frames += 1;

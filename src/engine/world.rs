@@ -116,6 +116,8 @@ pub struct World {
     pub(crate) stats: Stats,
     pub(crate) trace: Trace,
     pub(crate) events: u64,
+    /// Per node and traffic source: index into `stats.latency_id`.
+    pub(crate) id_index: Vec<Vec<Option<u32>>>,
     tx: Option<TxBuild>,
     /// Per node: when its latest transmission releases the enable. A
     /// transceiver has one driver, so a new transmission may not start earlier.
@@ -137,7 +139,26 @@ impl World {
             .iter()
             .map(|n| n.queue_limit.unwrap_or(crate::spec::DEFAULT_QUEUE_LIMIT))
             .collect();
+        let mut stats = Stats::new(n);
+        let id_index = spec
+            .nodes
+            .iter()
+            .map(|node| {
+                node.traffic
+                    .iter()
+                    .map(|t| {
+                        t.id.map(|id| {
+                            stats
+                                .latency_id
+                                .push((id, crate::stats::LatencyStats::new()));
+                            (stats.latency_id.len() - 1) as u32
+                        })
+                    })
+                    .collect()
+            })
+            .collect();
         World {
+            id_index,
             line,
             bus,
             now: Picos::ZERO,
@@ -148,7 +169,7 @@ impl World {
             access_rng,
             frames: Vec::with_capacity(64),
             free_frames: Vec::with_capacity(64),
-            stats: Stats::new(n),
+            stats,
             trace,
             events: 0,
             tx: None,
@@ -187,6 +208,23 @@ impl World {
     /// its queue; they count against the node's `queue_limit`.
     pub fn set_holding(&mut self, node: NodeId, messages: usize) {
         self.holding[node] = messages;
+    }
+
+    /// Take the queued message of `node` with the smallest `key` (the oldest
+    /// among equals), e.g. the highest-priority identifier.
+    pub fn pop_message_min_by_key<K: Ord>(
+        &mut self,
+        node: NodeId,
+        key: impl Fn(&Message) -> K,
+    ) -> Option<Message> {
+        let q = &mut self.queues[node];
+        let best = (0..q.len()).min_by_key(|&i| (key(&q[i]), i))?;
+        q.remove(best)
+    }
+
+    /// The smallest `key` among `node`'s queued messages.
+    pub fn queue_min_key<K: Ord>(&self, node: NodeId, key: impl Fn(&Message) -> K) -> Option<K> {
+        self.queues[node].iter().map(key).min()
     }
 
     /// Put a message back at the head of its queue (for retransmission).
@@ -397,8 +435,15 @@ impl World {
         let first_bit = tx.enable + self.spec.nodes[tx.node].transceiver.enable_time.0;
         let release = tx.cursor;
         let off = release + disable;
-        self.bus
-            .insert(tx.occupancy, tx.node, tx.enable, release, off, tx.frames);
+        self.bus.insert(
+            tx.occupancy,
+            tx.node,
+            tx.enable,
+            release,
+            off,
+            tx.frames,
+            false,
+        );
         TxTimes {
             enable: Picos(tx.enable),
             first_bit: Picos(first_bit),
@@ -411,6 +456,49 @@ impl World {
     /// When `node`'s latest transmission releases its enable (its driver is free after that).
     pub fn driver_free_at(&self, node: NodeId) -> Picos {
         Picos(self.last_release[node])
+    }
+
+    /// Drive the dominant state (bitwise arbitration): enable at `enable`
+    /// (not in the past), release at `release`. Returns the occupancy id.
+    pub fn drive_dominant(&mut self, node: NodeId, enable: Picos, release: Picos) -> u64 {
+        let a = enable.max(self.now).0;
+        assert!(
+            a >= self.last_release[node],
+            "scheme error: dominant drive before the previous release"
+        );
+        let release = release.0.max(a);
+        let off = release + self.spec.nodes[node].transceiver.disable_time.0;
+        let id = self.bus.reserve_id();
+        self.bus.insert(id, node, a, release, off, 0, true);
+        self.last_release[node] = release;
+        id
+    }
+
+    /// Keep a dominant drive on until `release` (later than planned).
+    pub fn extend_dominant(&mut self, node: NodeId, occupancy: u64, release: Picos) {
+        let off = release.0 + self.spec.nodes[node].transceiver.disable_time.0;
+        self.bus.cut_short(occupancy, release.0, off);
+        self.last_release[node] = release.0;
+    }
+
+    /// The driver stays on from a dominant drive straight into a frame: the
+    /// drive ends at its release with no disable tail.
+    pub fn continue_from_dominant(&mut self, node: NodeId, occupancy: u64) {
+        let release = self.last_release[node];
+        self.bus.cut_short(occupancy, release, release);
+    }
+
+    /// Is a dominant (or any) drive of another node visible at `node`'s
+    /// receiver output now? The dominant level appears `enable_time` after
+    /// the enable and lasts through the disable time.
+    pub fn dominant_seen(&self, node: NodeId) -> bool {
+        let now = self.now.0;
+        let rx = self.spec.nodes[node].transceiver.receiver_delay.0;
+        self.bus.occupancies().any(|o| {
+            let lag = self.line.delay_ps(o.node, node) + rx;
+            let valid = o.a + self.spec.nodes[o.node].transceiver.enable_time.0;
+            valid + lag <= now && now < o.b + lag
+        })
     }
 
     /// Convenience: one transmission of the given frames.

@@ -75,6 +75,9 @@ pub struct Latency {
     pub all: LatencySummary,
     /// Per source node (the node where the message was queued).
     pub nodes: BTreeMap<String, LatencySummary>,
+    /// Per traffic identifier (hexadecimal), for sources that have one.
+    #[serde(skip_serializing_if = "BTreeMap::is_empty")]
+    pub ids: BTreeMap<String, LatencySummary>,
 }
 
 #[derive(Clone, Debug, Serialize)]
@@ -177,9 +180,15 @@ impl Report {
             .filter(|(_, n)| !n.traffic.is_empty())
             .map(|(i, n)| (n.name.clone(), st.latency_node[i].summary()))
             .collect();
+        let ids = st
+            .latency_id
+            .iter()
+            .map(|(id, l)| (format!("{id:#06x}"), l.summary()))
+            .collect();
         let latency = Latency {
             all: st.latency_all.summary(),
             nodes,
+            ids,
         };
         let c = &w.bus.contention;
         let contention = Contention {

@@ -94,6 +94,9 @@ pub struct RawAccess {
     pub drift_ppm: Option<Spanned<f64>>,
     pub clock_ppm: Option<Spanned<std::collections::BTreeMap<String, f64>>>,
     pub compensate: Option<Spanned<bool>>,
+    pub id_bits: Option<Spanned<u32>>,
+    pub idle_bits: Option<Spanned<u32>>,
+    pub sample_point: Option<Spanned<f64>>,
 }
 
 /// One TDMA slot: `{ node = "s01", length = "10 us" }`.
@@ -143,6 +146,9 @@ impl RawAccess {
             ("drift_ppm", sp(&self.drift_ppm)),
             ("clock_ppm", sp(&self.clock_ppm)),
             ("compensate", sp(&self.compensate)),
+            ("id_bits", sp(&self.id_bits)),
+            ("idle_bits", sp(&self.idle_bits)),
+            ("sample_point", sp(&self.sample_point)),
         ];
         all.into_iter()
             .filter_map(|(k, s)| s.map(|s| (k, s)))
@@ -191,6 +197,7 @@ pub struct RawTraffic {
     pub payload: Spanned<RawPayload>,
     pub to: Option<S>,
     pub queue_limit: Option<Spanned<u64>>,
+    pub id: Option<Spanned<u64>>,
 }
 
 /// `"64 B"` or `["16 B", "64 B"]`.

@@ -62,6 +62,7 @@ pub fn validate(raw: &RawScenario, file: &str, src: &str) -> R<Spec> {
     let frame = validate_frame(&v, raw.frame.get_ref())?;
     let nodes = validate_nodes(&v, raw, &line)?;
     check_frame_times(&v, raw, &frame, &nodes)?;
+    check_unique_ids(&v, raw, &nodes)?;
     check_arrival_count(&v, raw, &nodes, duration)?;
     let access = super::access::validate(
         &v,
@@ -176,6 +177,25 @@ fn validate_line(v: &V, l: &RawLine, at: Range<usize>) -> R<LineSpec> {
         delay_s_per_m,
         termination,
     })
+}
+
+/// Traffic identifiers must be unique across the bus.
+fn check_unique_ids(v: &V, raw: &RawScenario, nodes: &[NodeSpec]) -> R<()> {
+    let mut seen = std::collections::BTreeMap::new();
+    for n in nodes {
+        for t in &n.traffic {
+            if let Some(id) = t.id {
+                if let Some(other) = seen.insert(id, n.name.clone()) {
+                    return Err(v.err(
+                        raw.access.span(),
+                        "traffic.id",
+                        format!("identifier {id} is used by \"{other}\" and \"{}\": identifiers must be unique", n.name),
+                    ));
+                }
+            }
+        }
+    }
+    Ok(())
 }
 
 /// Most arrivals a run may generate (a guard against a mistyped rate).
@@ -692,11 +712,13 @@ fn validate_traffic(
             "queue_limit must be at least 1",
         ));
     }
+    let id = r.id.as_ref().map(|i| *i.get_ref());
     Ok((
         TrafficSpec {
             pattern,
             payload,
             to,
+            id,
         },
         limit,
     ))

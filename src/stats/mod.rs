@@ -37,6 +37,8 @@ pub struct Stats {
     pub latency_all: LatencyStats,
     /// Per source node.
     pub latency_node: Vec<LatencyStats>,
+    /// Per traffic source that carries an identifier: (identifier, stats).
+    pub latency_id: Vec<(u64, LatencyStats)>,
 }
 
 impl Stats {
@@ -49,6 +51,7 @@ impl Stats {
             data_frames_sent: 0,
             latency_all: LatencyStats::new(),
             latency_node: (0..nodes).map(|_| LatencyStats::new()).collect(),
+            latency_id: Vec::new(),
         }
     }
 }

@@ -29,9 +29,13 @@ pub enum Piece {
     Overhead,
     Payload,
     Wasted,
+    /// A dominant drive of bitwise arbitration: overhead, and several at
+    /// once are normal (wired-AND), but not together with a frame's driver.
+    Dominant,
 }
 
 const OCC: u8 = 0;
+const DOM: u8 = 4;
 const LABELS: usize = 3; // Overhead, Payload, Wasted
 
 /// Accumulated time per class, in picoseconds.
@@ -57,6 +61,7 @@ pub struct UtilizationSweep {
     edges: VecDeque<(u64, u8)>,
     last: u64,
     drivers: u32,
+    dominant: u32,
     labels: [u32; LABELS],
     window: (u64, u64),
     pub totals: UtilizationTotals,
@@ -69,6 +74,7 @@ impl UtilizationSweep {
             edges: VecDeque::with_capacity(64),
             last: 0,
             drivers: 0,
+            dominant: 0,
             labels: [0; LABELS],
             window: (start, end),
             totals: UtilizationTotals::default(),
@@ -115,6 +121,12 @@ impl UtilizationSweep {
                 } else {
                     self.drivers += 1;
                 }
+            } else if kind == DOM {
+                if end {
+                    self.dominant -= 1;
+                } else {
+                    self.dominant += 1;
+                }
             } else {
                 let slot = &mut self.labels[(kind - 1) as usize];
                 if end {
@@ -146,9 +158,11 @@ impl UtilizationSweep {
             return;
         }
         let span = to - from;
-        let slot = if self.drivers == 0 {
+        let slot = if self.drivers == 0 && self.dominant == 0 {
             &mut self.totals.idle
-        } else if self.drivers >= 2 || self.labels[2] > 0 {
+        } else if self.drivers == 0 {
+            &mut self.totals.overhead
+        } else if self.drivers >= 2 || self.dominant > 0 || self.labels[2] > 0 {
             &mut self.totals.wasted
         } else if self.labels[1] > 0 {
             &mut self.totals.payload

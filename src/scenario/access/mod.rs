@@ -4,6 +4,7 @@
 //! a key that does not apply to the chosen scheme is an error that says so.
 
 mod aloha;
+mod arbitration;
 mod csma;
 mod polling;
 mod tdma;
@@ -17,7 +18,7 @@ use crate::spec::{AccessSpec, FrameFormat, Latency, LineSpec, NodeId, NodeSpec};
 use crate::units::Picos;
 
 /// Values of `access.scheme`.
-pub const SCHEMES: &[&str] = &["polling", "token", "tdma", "aloha", "csma"];
+pub const SCHEMES: &[&str] = &["polling", "token", "tdma", "aloha", "csma", "arbitration"];
 
 /// Keys every scheme accepts.
 const COMMON: &[&str] = &["scheme", "order", "turnaround", "response_latency"];
@@ -48,6 +49,7 @@ pub fn validate(
         "token" => token::KEYS,
         "aloha" => aloha::KEYS,
         "tdma" => tdma::KEYS,
+        "arbitration" => arbitration::KEYS,
         _ => csma::KEYS,
     };
     for (key, at) in a.present() {
@@ -83,6 +85,7 @@ pub fn validate(
         "token" => token::validate(&ctx),
         "aloha" => aloha::validate(&ctx),
         "tdma" => tdma::validate(&ctx),
+        "arbitration" => arbitration::validate(&ctx),
         _ => csma::validate(&ctx),
     }
 }
