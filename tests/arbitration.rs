@@ -9,9 +9,11 @@ mod common;
 
 use common::{halfwire, loaded_tpd, run_toml};
 
-/// Four nodes on a 30 m line (unequal spacing), periodic messages.
-/// (name, position m, [(id, period µs, jitter µs, payload bytes)])
-const NODES: &[(&str, f64, &[(u64, u64, u64, u64)])] = &[
+/// A periodic message: (identifier, period µs, jitter µs, payload bytes).
+type Flow = (u64, u64, u64, u64);
+
+/// Four nodes on a 30 m line (unequal spacing): (name, position m, messages).
+const NODES: &[(&str, f64, &[Flow])] = &[
     (
         "engine",
         0.0,
