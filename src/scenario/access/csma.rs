@@ -105,8 +105,9 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
     };
     let backoff = match &a.backoff {
         Some(b) => latency(v, b, "access.backoff")?,
+        // Long against a frame, as the classic analyses assume.
         None => Latency::Exponential {
-            mean: Picos(slot_time.0 * 10),
+            mean: Picos((c.longest_data_frame().0 + slot_time.0) * 10),
         },
     };
     let jam_bits = a

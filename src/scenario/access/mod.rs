@@ -225,10 +225,20 @@ impl<'a> Access<'a> {
 
     /// Time on the wire of the longest data frame any source can send.
     pub fn longest_data_frame(&self) -> Picos {
-        let bits = self
-            .nodes
+        (0..self.nodes.len())
+            .map(|n| self.longest_data_frame_of(n))
+            .max()
+            .unwrap_or(Picos::ZERO)
+    }
+
+    /// Time on the wire of the longest data frame node `n` can send (zero without traffic).
+    pub fn longest_data_frame_of(&self, n: NodeId) -> Picos {
+        if self.nodes[n].traffic.is_empty() {
+            return Picos::ZERO;
+        }
+        let bits = self.nodes[n]
+            .traffic
             .iter()
-            .flat_map(|n| &n.traffic)
             .map(|t| match t.payload {
                 crate::spec::Payload::Fixed { bits } => bits,
                 crate::spec::Payload::Uniform { max_bits, .. } => max_bits,

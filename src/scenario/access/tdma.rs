@@ -66,7 +66,23 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
                     "tdma needs slot_length (equal slots) or a slots list",
                 )
             })?;
-            c.order(None, "slot order")?
+            // By default every node that has traffic gets one slot, in position order.
+            let order = if a.order.is_some() {
+                c.order(None, "slot order")?
+            } else {
+                c.order(None, "slot order")?
+                    .into_iter()
+                    .filter(|&n| !c.nodes[n].traffic.is_empty())
+                    .collect()
+            };
+            if order.is_empty() {
+                return Err(v.err(
+                    c.span.clone(),
+                    "access.order",
+                    "no node has traffic, so the cycle would have no slots",
+                ));
+            }
+            order
                 .into_iter()
                 .map(|n| {
                     (
@@ -124,7 +140,6 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
             drift[id] = Drift::Fixed(*ppm);
         }
     }
-    let longest = c.longest_data_frame();
     for (owner, length, span, key) in &slots {
         let en = c.nodes[*owner].transceiver.enable_time;
         // A fast clock shortens the slot in true time: keep room for the worst drift.
@@ -132,7 +147,7 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
             Drift::Fixed(p) => p.max(0.0),
             Drift::Within(p) => p,
         };
-        let nominal = guard + en + longest;
+        let nominal = guard + en + c.longest_data_frame_of(*owner);
         let needed = Picos((nominal.0 as f64 * (1.0 + ppm * 1e-6)).ceil() as u64);
         if *length < needed {
             return Err(v
