@@ -16,46 +16,18 @@ pub const KEYS: &[&str] = &[
 pub fn validate(c: &Access) -> R<AccessSpec> {
     let (v, a) = (c.v, c.a);
     let slotted = a.slotted.as_ref().is_some_and(|s| *s.get_ref());
-    let lag = c.max_lag();
-    let ack_raw = c.required(&a.ack_timeout, "ack_timeout", "ack_timeout = \"2 us\"")?;
-    let ack_timeout = v.time(ack_raw, "access.ack_timeout")?;
-    if ack_timeout < lag {
-        return Err(v.err(
-            ack_raw.span(),
-            "access.ack_timeout",
-            format!("ack_timeout ({ack_timeout}) is shorter than the longest wire plus receiver delay ({lag}): no answer can arrive that soon"),
-        ));
-    }
+    let ack_timeout = match c.ack_timeout()? {
+        Some(t) => t,
+        None => *c.required(&None::<Picos>, "ack_timeout", "ack_timeout = \"2 us\"")?,
+    };
     // Default slot: the longest data frame plus the worst spread in arrival,
     // so that frames sent in different slots never meet.
-    let slot_time = match &a.slot_time {
-        Some(s) => {
-            let t = v.time(s, "access.slot_time")?;
-            if t == Picos::ZERO {
-                return Err(v.err(
-                    s.span(),
-                    "access.slot_time",
-                    "slot_time must be greater than zero",
-                ));
-            }
-            t
-        }
-        None => {
-            let en = c
-                .nodes
-                .iter()
-                .map(|n| n.transceiver.enable_time)
-                .max()
-                .unwrap_or(Picos::ZERO);
-            let dis = c
-                .nodes
-                .iter()
-                .map(|n| n.transceiver.disable_time)
-                .max()
-                .unwrap_or(Picos::ZERO);
-            en + c.longest_data_frame() + dis + lag
-        }
-    };
+    let slot_time = c.slot_time(
+        c.max_time(|n| n.transceiver.enable_time)
+            + c.longest_data_frame()
+            + c.max_time(|n| n.transceiver.disable_time)
+            + c.max_lag(),
+    )?;
     if !slotted {
         if let Some(s) = &a.slot_time {
             return Err(v.err(

@@ -58,50 +58,32 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
         }
     }
     let lag = c.max_lag();
-    let max =
-        |f: fn(&crate::spec::NodeSpec) -> Picos| c.nodes.iter().map(f).max().unwrap_or(Picos::ZERO);
     // Default slot: a round trip plus the transceiver times, rounded up to
     // whole bit times, so that a collision is certain to be seen within it.
-    let slot_time = match &a.slot_time {
-        Some(s) => {
-            let t = v.time(s, "access.slot_time")?;
-            if t == Picos::ZERO {
-                return Err(v.err(
-                    s.span(),
-                    "access.slot_time",
-                    "slot_time must be greater than zero",
-                ));
-            }
-            t
+    let detect = detect_delay.unwrap_or(c.max_time(|n| n.transceiver.receiver_delay));
+    let raw = lag
+        + lag
+        + c.max_time(|n| n.transceiver.enable_time)
+        + c.max_time(|n| n.transceiver.disable_time)
+        + detect;
+    let tb = c.frame.bit_time().0.max(1);
+    let slot_time = c.slot_time(Picos(raw.0.div_ceil(tb).max(1) * tb))?;
+    let ack_timeout = match c.ack_timeout()? {
+        Some(_) if collision_detect => {
+            let span = a
+                .ack_timeout
+                .as_ref()
+                .map(|x| x.span())
+                .unwrap_or(c.span.clone());
+            return Err(v.err(
+                span,
+                "access.ack_timeout",
+                "ack_timeout applies only without collision_detect",
+            ));
         }
-        None => {
-            let detect = detect_delay.unwrap_or(max(|n| n.transceiver.receiver_delay));
-            let raw = lag
-                + lag
-                + max(|n| n.transceiver.enable_time)
-                + max(|n| n.transceiver.disable_time)
-                + detect;
-            let tb = c.frame.bit_time().0.max(1);
-            Picos(raw.0.div_ceil(tb).max(1) * tb)
-        }
-    };
-    let ack_timeout = match &a.ack_timeout {
-        Some(t) => {
-            let x = v.time(t, "access.ack_timeout")?;
-            if x < lag {
-                return Err(v.err(
-                    t.span(),
-                    "access.ack_timeout",
-                    format!("ack_timeout ({x}) is shorter than the longest wire plus receiver delay ({lag}): no answer can arrive that soon"),
-                ));
-            }
-            x
-        }
+        Some(t) => t,
         None if collision_detect => Picos::ZERO,
-        None => {
-            c.required(&a.ack_timeout, "ack_timeout", "ack_timeout = \"2 us\"")?;
-            unreachable!()
-        }
+        None => *c.required(&None::<Picos>, "ack_timeout", "ack_timeout = \"2 us\"")?,
     };
     let backoff = match &a.backoff {
         Some(b) => latency(v, b, "access.backoff")?,

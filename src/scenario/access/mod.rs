@@ -223,6 +223,47 @@ impl<'a> Access<'a> {
             .unwrap_or(Picos::ZERO)
     }
 
+    /// The largest value of a per-node transceiver time.
+    pub fn max_time(&self, f: fn(&NodeSpec) -> Picos) -> Picos {
+        self.nodes.iter().map(f).max().unwrap_or(Picos::ZERO)
+    }
+
+    /// `access.slot_time` if given (> 0), else `default`.
+    pub fn slot_time(&self, default: Picos) -> R<Picos> {
+        match &self.a.slot_time {
+            Some(s) => {
+                let t = self.v.time(s, "access.slot_time")?;
+                if t == Picos::ZERO {
+                    return Err(self.v.err(
+                        s.span(),
+                        "access.slot_time",
+                        "slot_time must be greater than zero",
+                    ));
+                }
+                Ok(t)
+            }
+            None => Ok(default),
+        }
+    }
+
+    /// `access.ack_timeout`, which must leave time for the answer to arrive;
+    /// `None` when absent.
+    pub fn ack_timeout(&self) -> R<Option<Picos>> {
+        let Some(raw) = &self.a.ack_timeout else {
+            return Ok(None);
+        };
+        let t = self.v.time(raw, "access.ack_timeout")?;
+        let lag = self.max_lag();
+        if t < lag {
+            return Err(self.v.err(
+                raw.span(),
+                "access.ack_timeout",
+                format!("ack_timeout ({t}) is shorter than the longest wire plus receiver delay ({lag}): no answer can arrive that soon"),
+            ));
+        }
+        Ok(Some(t))
+    }
+
     /// Time on the wire of the longest data frame any source can send.
     pub fn longest_data_frame(&self) -> Picos {
         (0..self.nodes.len())
