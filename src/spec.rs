@@ -52,6 +52,7 @@ pub struct LineSpec {
     /// Unloaded propagation delay per metre, tpd0.
     pub delay_s_per_m: f64,
     pub termination: Termination,
+    pub bias: Option<Bias>,
 }
 
 /// How the ends of the line are terminated. `None` resistances mean "matched
@@ -72,8 +73,7 @@ pub enum Termination {
 /// Per-node transceiver parameters, after defaults and overrides are merged.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Transceiver {
-    /// Current-mode driver output current.
-    pub drive_current_a: f64,
+    pub driver: Driver,
     /// From driver enable asserted to output valid.
     pub enable_time: Picos,
     /// From enable released to output high-impedance.
@@ -83,6 +83,63 @@ pub struct Transceiver {
     /// Capacitance this node adds to the line (device, connector, stub).
     pub load_f: f64,
     pub receiver: ReceiverClass,
+    /// Receiver input resistance across the pair (infinite when not given).
+    pub input_ohm: f64,
+    /// Driver output transition time (10–90 %), when known.
+    pub transition_time: Option<Picos>,
+    /// Length of the stub from the line to the transceiver.
+    pub stub_m: f64,
+    /// This node's ground offset from the reference node (V).
+    pub ground_offset_v: f64,
+    /// Receiver common-mode range (V), when known.
+    pub common_mode_v: Option<(f64, f64)>,
+    /// The standard family the values came from, if a preset was used.
+    pub family: Option<String>,
+}
+
+/// A differential driver.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum Driver {
+    /// Current mode: V_AB = I · R_eff.
+    Current { amps: f64 },
+    /// Voltage mode (Thevenin): V_AB = V_oc · R_eff / (R_eff + R_out).
+    Voltage {
+        open_circuit_v: f64,
+        output_ohm: f64,
+    },
+}
+
+impl Driver {
+    /// Differential amplitude into `load_ohm`.
+    pub fn amplitude_v(&self, load_ohm: f64) -> f64 {
+        match *self {
+            Driver::Current { amps } => amps * load_ohm,
+            Driver::Voltage {
+                open_circuit_v,
+                output_ohm,
+            } => {
+                if load_ohm.is_infinite() {
+                    open_circuit_v
+                } else {
+                    open_circuit_v * load_ohm / (load_ohm + output_ohm)
+                }
+            }
+        }
+    }
+}
+
+/// TIA-485-A unit load: 12 kΩ (from memory of TIA-485-A).
+pub const UNIT_LOAD_OHM: f64 = 12_000.0;
+
+/// Most unit loads TIA-485-A allows on one bus (from memory of TIA-485-A).
+pub const MAX_UNIT_LOADS: f64 = 32.0;
+
+/// A failsafe bias network: pull-up from A and pull-down from B to a supply, at one point.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Bias {
+    pub supply_v: f64,
+    pub pull_up_ohm: f64,
+    pub pull_down_ohm: f64,
 }
 
 #[derive(Clone, Debug, PartialEq)]

@@ -93,10 +93,9 @@ impl Bus {
             .iter()
             .map(|n| n.transceiver.receiver_delay.0)
             .collect();
-        let hazard = spec
-            .nodes
-            .iter()
-            .map(|n| n.transceiver.receiver.idle_state() == crate::line::IdleState::Undefined)
+        // A receiver is a hazard when the undriven line (biased or not) reads undefined.
+        let hazard = (0..spec.nodes.len())
+            .map(|i| line.idle_state(spec, i) == crate::line::IdleState::Undefined)
             .collect();
         Bus {
             log: VecDeque::with_capacity(64),

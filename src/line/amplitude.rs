@@ -58,7 +58,16 @@ impl Ends {
 
 /// Differential amplitude of a current-mode driver: V = I · R.
 pub fn current_mode_v(current_a: f64, load_ohm: f64) -> f64 {
-    current_a * load_ohm
+    crate::spec::Driver::Current { amps: current_a }.amplitude_v(load_ohm)
+}
+
+/// Differential amplitude of a voltage-mode driver: V = V_oc · R / (R + R_out).
+pub fn voltage_mode_v(open_circuit_v: f64, output_ohm: f64, load_ohm: f64) -> f64 {
+    crate::spec::Driver::Voltage {
+        open_circuit_v,
+        output_ohm,
+    }
+    .amplitude_v(load_ohm)
 }
 
 #[cfg(test)]
@@ -74,6 +83,16 @@ mod tests {
         assert!((v - 0.339).abs() < 1e-12 && v > 0.300);
         // LVDS, common practice: 3.5 mA into 100 Ω gives 350 mV.
         assert!((current_mode_v(3.5e-3, 100.0) - 0.350).abs() < 1e-12);
+    }
+
+    #[test]
+    fn voltage_mode_divider() {
+        // Thevenin source into a load: V = V_oc·R/(R + R_out). A 3.3 V source
+        // behind 50 Ω into 54 Ω (the TIA-485-A test load, from memory) gives
+        // 1.713 V, above the 1.5 V minimum; a stiff source gives V_oc.
+        let v = voltage_mode_v(3.3, 50.0, 54.0);
+        assert!((v - 3.3 * 54.0 / 104.0).abs() < 1e-12 && v > 1.5);
+        assert_eq!(voltage_mode_v(1.5, 0.0, 54.0), 1.5);
     }
 
     #[test]

@@ -5,6 +5,7 @@
 //! budget share it, so both report the same figures.
 
 pub mod amplitude;
+pub mod family;
 pub mod loaded;
 pub mod receiver;
 
@@ -31,8 +32,16 @@ pub struct LineModel {
     pub max_node_delay: Picos,
     /// Step amplitude each node's driver produces (V).
     pub amplitude_v: Vec<f64>,
-    /// The impedance each node's driver sees (Ω).
+    /// The impedance each node's driver sees when it switches (Ω).
     pub drive_load_ohm: Vec<f64>,
+    /// The settled (DC) load across the pair: terminations ∥ receiver inputs ∥ bias network (Ω).
+    pub dc_load_ohm: f64,
+    /// Settled amplitude each node's driver produces (V).
+    pub amplitude_dc_v: Vec<f64>,
+    /// Differential voltage of the undriven line (the bias network's, or 0 V).
+    pub idle_v: f64,
+    /// Unit loads on the bus (TIA-485-A unit load, 12 kΩ).
+    pub unit_loads: f64,
 }
 
 impl LineModel {
@@ -67,8 +76,38 @@ impl LineModel {
             .nodes
             .iter()
             .zip(&drive_load_ohm)
-            .map(|(node, r)| amplitude::current_mode_v(node.transceiver.drive_current_a, *r))
+            .map(|(node, r)| node.transceiver.driver.amplitude_v(*r))
             .collect();
+        let inputs = spec.nodes.iter().fold(f64::INFINITY, |acc, n| {
+            loaded::parallel(acc, n.transceiver.input_ohm)
+        });
+        // The undriven network across the pair: terminations ∥ receiver inputs.
+        let network = loaded::parallel(ends.dc_load_ohm(), inputs);
+        let (idle_v, bias_ohm) = match spec.line.bias {
+            // Pull-up and pull-down in series through the supply (an AC ground)
+            // form a divider with the network: V = V_s·R_p / (R_up + R_down + R_p).
+            Some(b) => {
+                let series = b.pull_up_ohm + b.pull_down_ohm;
+                let v = if network.is_infinite() {
+                    b.supply_v
+                } else {
+                    b.supply_v * network / (series + network)
+                };
+                (v, series)
+            }
+            None => (0.0, f64::INFINITY),
+        };
+        let dc_load_ohm = loaded::parallel(network, bias_ohm);
+        let amplitude_dc_v = spec
+            .nodes
+            .iter()
+            .map(|n| n.transceiver.driver.amplitude_v(dc_load_ohm))
+            .collect();
+        let unit_loads = spec
+            .nodes
+            .iter()
+            .map(|n| crate::spec::UNIT_LOAD_OHM / n.transceiver.input_ohm)
+            .sum();
         LineModel {
             loaded,
             ends,
@@ -79,6 +118,10 @@ impl LineModel {
             max_node_delay: Picos(max),
             amplitude_v,
             drive_load_ohm,
+            dc_load_ohm,
+            amplitude_dc_v,
+            idle_v,
+            unit_loads,
         }
     }
 
@@ -98,6 +141,19 @@ impl LineModel {
     #[inline]
     pub fn delay_row(&self, a: NodeId) -> &[u64] {
         &self.delays[a * self.n..(a + 1) * self.n]
+    }
+
+    /// What `node`'s receiver reads on the undriven line.
+    pub fn idle_state(&self, spec: &Spec, node: NodeId) -> IdleState {
+        spec.nodes[node].transceiver.receiver.read(self.idle_v)
+    }
+
+    /// Reflection coefficients at the near and far ends against the loaded impedance.
+    pub fn reflections(&self) -> (f64, f64) {
+        (
+            loaded::reflection(self.ends.near_ohm, self.loaded.impedance_ohm),
+            loaded::reflection(self.ends.far_ohm, self.loaded.impedance_ohm),
+        )
     }
 
     /// The smallest driver amplitude on the bus and the node that produces it.

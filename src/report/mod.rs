@@ -209,11 +209,9 @@ impl Report {
                 })
                 .collect(),
         };
-        let hazard: Vec<String> = spec
-            .nodes
-            .iter()
-            .filter(|n| n.transceiver.receiver.idle_state() == IdleState::Undefined)
-            .map(|n| n.name.clone())
+        let hazard: Vec<String> = (0..spec.nodes.len())
+            .filter(|&i| line.idle_state(spec, i) == IdleState::Undefined)
+            .map(|i| spec.nodes[i].name.clone())
             .collect();
         let ft = w.bus.floating.totals;
         let floating = Floating {

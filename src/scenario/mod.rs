@@ -5,6 +5,7 @@ pub(crate) mod check;
 pub mod error;
 pub mod keypath;
 pub mod raw;
+mod transceiver;
 pub mod validate;
 
 pub use error::ScenarioError;

@@ -34,12 +34,33 @@ pub struct RawLine {
     pub delay: Option<S>,
     pub velocity_factor: Option<Spanned<f64>>,
     pub termination: Option<S>,
+    pub bias: Option<Spanned<RawBias>>,
+}
+
+/// `[line.bias]`: pull-up and pull-down resistors to a supply.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawBias {
+    pub supply: S,
+    pub pull_up: S,
+    pub pull_down: S,
 }
 
 #[derive(Debug, Default, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct RawTransceiver {
+    pub family: Option<S>,
+    pub driver: Option<S>,
     pub drive_current: Option<S>,
+    pub output_voltage: Option<S>,
+    pub output_resistance: Option<S>,
+    pub min_output: Option<Spanned<Vec<S>>>,
+    pub input_resistance: Option<S>,
+    pub unit_loads: Option<Spanned<f64>>,
+    pub transition_time: Option<S>,
+    pub stub_length: Option<S>,
+    pub ground_offset: Option<S>,
+    pub common_mode: Option<Spanned<Vec<S>>>,
     pub enable_time: Option<S>,
     pub disable_time: Option<S>,
     pub receiver_delay: Option<S>,

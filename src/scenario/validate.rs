@@ -8,7 +8,6 @@ use std::ops::Range;
 
 use super::check::{unknown_node, MAX_TIME, R, V};
 use super::raw::*;
-use crate::line::ReceiverClass;
 use crate::spec::*;
 use crate::units::{self, Dimension, Picos};
 use toml::Spanned;
@@ -23,7 +22,6 @@ pub const MAX_FRAME_BITS: u64 = 1 << 40;
 const C_M_PER_S: f64 = 299_792_458.0;
 
 const ENCODINGS: &[&str] = &["nrz", "8b10b", "uart-8n1", "manchester"];
-const RECEIVERS: &[&str] = &["type1", "type2", "lvds", "tia485"];
 const PATTERNS: &[&str] = &["poisson", "periodic"];
 const TERMINATIONS: &[&str] = &["both-ends", "far-end", "none"];
 
@@ -171,7 +169,47 @@ fn validate_line(v: &V, l: &RawLine, at: Range<usize>) -> R<LineSpec> {
             }
         }
     };
+    let bias = match &l.bias {
+        None => None,
+        Some(b) => {
+            if termination == Termination::Unterminated {
+                return Err(v.err(
+                    b.span(),
+                    "line.bias",
+                    "a bias network needs terminations to bias against: this line has termination = \"none\"",
+                ));
+            }
+            let r = b.get_ref();
+            Some(Bias {
+                supply_v: v.within(
+                    &r.supply,
+                    Dimension::Voltage,
+                    "line.bias.supply",
+                    0.1,
+                    100.0,
+                    "V",
+                )?,
+                pull_up_ohm: v.within(
+                    &r.pull_up,
+                    Dimension::Resistance,
+                    "line.bias.pull_up",
+                    1.0,
+                    1e9,
+                    "Ω",
+                )?,
+                pull_down_ohm: v.within(
+                    &r.pull_down,
+                    Dimension::Resistance,
+                    "line.bias.pull_down",
+                    1.0,
+                    1e9,
+                    "Ω",
+                )?,
+            })
+        }
+    };
     Ok(LineSpec {
+        bias,
         length_m,
         impedance_ohm,
         delay_s_per_m,
@@ -322,7 +360,7 @@ fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec) -> R<Vec<NodeSpec>>
                 "a node name must not be empty",
             ));
         }
-        let transceiver = merge_transceiver(
+        let transceiver = super::transceiver::resolve(
             v,
             defaults,
             n.transceiver.as_ref(),
@@ -396,7 +434,7 @@ fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec) -> R<Vec<NodeSpec>>
                     ),
                 ));
             }
-            let transceiver = merge_transceiver(
+            let transceiver = super::transceiver::resolve(
                 v,
                 defaults,
                 r.transceiver.as_ref(),
@@ -484,99 +522,6 @@ fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec) -> R<Vec<NodeSpec>>
         });
     }
     Ok(out)
-}
-
-fn merge_transceiver(
-    v: &V,
-    defaults: &RawTransceiver,
-    over: Option<&RawTransceiver>,
-    key: &str,
-    node: &str,
-    at: Range<usize>,
-) -> R<Transceiver> {
-    let pick = |get: fn(&RawTransceiver) -> &Option<S>, name: &str| -> R<(S, String)> {
-        if let Some(o) = over.and_then(|o| get(o).as_ref()) {
-            return Ok((o.clone(), format!("{key}.transceiver.{name}")));
-        }
-        if let Some(d) = get(defaults).as_ref() {
-            return Ok((d.clone(), format!("transceiver.{name}")));
-        }
-        Err(v.err(
-            at.clone(),
-            &format!("transceiver.{name}"),
-            format!("node \"{node}\" has no transceiver.{name}: set it in [transceiver] or in the node's own transceiver table"),
-        ))
-    };
-    let (s, k) = pick(|t| &t.drive_current, "drive_current")?;
-    let drive_current_a = v.within(&s, Dimension::Current, &k, 1e-9, 1.0, "A")?;
-    let (s, k) = pick(|t| &t.enable_time, "enable_time")?;
-    let enable_time = v.time(&s, &k)?;
-    let (s, k) = pick(|t| &t.disable_time, "disable_time")?;
-    let disable_time = v.time(&s, &k)?;
-    let (s, k) = pick(|t| &t.receiver_delay, "receiver_delay")?;
-    let receiver_delay = v.time(&s, &k)?;
-    let (s, k) = pick(|t| &t.load, "load")?;
-    let load_f = v.non_negative(&s, Dimension::Capacitance, &k)?;
-    if load_f > 1e-6 {
-        return Err(v.err(
-            s.span(),
-            &k,
-            "a node load above 1 µF is outside the supported range",
-        ));
-    }
-    // The receiver class comes from one level: the node's table if it names
-    // one, else the defaults.
-    let level = match over {
-        Some(o) if o.receiver.is_some() || o.thresholds.is_some() => {
-            (o, format!("{key}.transceiver"))
-        }
-        _ => (defaults, "transceiver".to_owned()),
-    };
-    let receiver = receiver_class(v, level.0, &level.1, node, at)?;
-    Ok(Transceiver {
-        drive_current_a,
-        enable_time,
-        disable_time,
-        receiver_delay,
-        load_f,
-        receiver,
-    })
-}
-
-fn receiver_class(
-    v: &V,
-    t: &RawTransceiver,
-    key: &str,
-    node: &str,
-    at: Range<usize>,
-) -> R<ReceiverClass> {
-    match (&t.receiver, &t.thresholds) {
-        (Some(r), None) => Ok(match v.choice(r, &format!("{key}.receiver"), RECEIVERS)? {
-            "type1" => ReceiverClass::type1(),
-            "type2" => ReceiverClass::type2(),
-            "lvds" => ReceiverClass::lvds(),
-            _ => ReceiverClass::tia485(),
-        }),
-        (None, Some(th)) => {
-            let k = format!("{key}.thresholds");
-            let list = th.get_ref();
-            if list.len() != 2 {
-                return Err(v.err(th.span(), &k, "thresholds takes two voltages: [low, high], e.g. [\"-200 mV\", \"200 mV\"]"));
-            }
-            let low = v.qty(&list[0], Dimension::Voltage, &k)?;
-            let high = v.qty(&list[1], Dimension::Voltage, &k)?;
-            if low > high {
-                return Err(v.err(th.span(), &k, "the low threshold must not exceed the high threshold"));
-            }
-            Ok(ReceiverClass { name: "custom".into(), low_v: low, high_v: high })
-        }
-        (Some(r), Some(_)) => Err(v.err(r.span(), &format!("{key}.receiver"), "give receiver or thresholds, not both")),
-        (None, None) => Err(v.err(
-            at,
-            "transceiver.receiver",
-            format!("node \"{node}\" has no receiver class: set receiver = \"type1\", \"type2\", \"lvds\", \"tia485\" or thresholds = [low, high]"),
-        )),
-    }
 }
 
 fn validate_traffic(

@@ -1,0 +1,308 @@
+//! Resolving a node's transceiver: its own table, then `[transceiver]`,
+//! then the family preset, key by key.
+
+use std::ops::Range;
+
+use toml::Spanned;
+
+use super::check::{R, V};
+use super::raw::{RawTransceiver, S};
+use crate::line::family::{self, Family};
+use crate::line::ReceiverClass;
+use crate::spec::{Driver, Transceiver, UNIT_LOAD_OHM};
+use crate::units::Dimension;
+
+const RECEIVERS: &[&str] = &["type1", "type2", "lvds", "tia485"];
+const DRIVERS: &[&str] = &["current", "voltage"];
+
+/// Where a key's value came from.
+struct Levels<'a> {
+    v: &'a V<'a>,
+    over: Option<&'a RawTransceiver>,
+    defaults: &'a RawTransceiver,
+    key: &'a str,
+    node: &'a str,
+    at: Range<usize>,
+    family: Option<Family>,
+}
+
+impl<'a> Levels<'a> {
+    /// The node's value, else the default, with the key path it came from.
+    fn get<T: Clone>(
+        &self,
+        f: fn(&RawTransceiver) -> &Option<T>,
+        name: &str,
+    ) -> Option<(T, String)> {
+        if let Some(o) = self.over.and_then(|o| f(o).as_ref()) {
+            return Some((o.clone(), format!("{}.transceiver.{name}", self.key)));
+        }
+        f(self.defaults)
+            .as_ref()
+            .map(|d| (d.clone(), format!("transceiver.{name}")))
+    }
+
+    fn missing(&self, name: &str, what: &str) -> super::error::ScenarioError {
+        let msg = match &self.family {
+            Some(f) => format!(
+                "node \"{}\" has no transceiver.{name}: the {} family leaves {what} to the part, so set it in [transceiver] or the node's table",
+                self.node, f.name
+            ),
+            None => format!(
+                "node \"{}\" has no transceiver.{name}: set it in [transceiver] or in the node's own transceiver table",
+                self.node
+            ),
+        };
+        self.v
+            .err(self.at.clone(), &format!("transceiver.{name}"), msg)
+    }
+
+    fn time(&self, f: fn(&RawTransceiver) -> &Option<S>, name: &str) -> R<crate::units::Picos> {
+        match self.get(f, name) {
+            Some((s, k)) => self.v.time(&s, &k),
+            None => Err(self.missing(name, "timing")),
+        }
+    }
+}
+
+pub fn resolve(
+    v: &V,
+    defaults: &RawTransceiver,
+    over: Option<&RawTransceiver>,
+    key: &str,
+    node: &str,
+    at: Range<usize>,
+) -> R<Transceiver> {
+    let mut l = Levels {
+        v,
+        over,
+        defaults,
+        key,
+        node,
+        at,
+        family: None,
+    };
+    if let Some((name, k)) = l.get(|t| &t.family, "family") {
+        let chosen = v.choice(&name, &k, family::NAMES)?;
+        l.family = family::lookup(chosen);
+    }
+    let driver = driver(&l)?;
+    let enable_time = l.time(|t| &t.enable_time, "enable_time")?;
+    let disable_time = l.time(|t| &t.disable_time, "disable_time")?;
+    let receiver_delay = l.time(|t| &t.receiver_delay, "receiver_delay")?;
+    let load_f = match l.get(|t| &t.load, "load") {
+        Some((s, k)) => {
+            let x = v.non_negative(&s, Dimension::Capacitance, &k)?;
+            if x > 1e-6 {
+                return Err(v.err(
+                    s.span(),
+                    &k,
+                    "a node load above 1 µF is outside the supported range",
+                ));
+            }
+            x
+        }
+        None => return Err(l.missing("load", "the node's capacitance")),
+    };
+    let receiver = receiver(&l)?;
+    let input_ohm = match (
+        l.get(|t| &t.input_resistance, "input_resistance"),
+        l.get(|t| &t.unit_loads, "unit_loads"),
+    ) {
+        (Some((s, k)), None) => v.within(&s, Dimension::Resistance, &k, 1.0, 1e9, "Ω")?,
+        (None, Some((u, k))) => {
+            let x = *u.get_ref();
+            if !(x > 0.0 && x <= 1000.0) {
+                return Err(v.err(u.span(), &k, "unit_loads must lie in (0, 1000]"));
+            }
+            UNIT_LOAD_OHM / x
+        }
+        (Some((s, k)), Some(_)) => {
+            return Err(v.err(
+                s.span(),
+                &k,
+                "give input_resistance or unit_loads, not both",
+            ));
+        }
+        (None, None) => l.family.as_ref().map_or(f64::INFINITY, |f| f.input_ohm),
+    };
+    let transition_time = match l.get(|t| &t.transition_time, "transition_time") {
+        Some((s, k)) => Some(v.time(&s, &k)?),
+        None => l.family.as_ref().and_then(|f| f.transition_time),
+    };
+    let stub_m = match l.get(|t| &t.stub_length, "stub_length") {
+        Some((s, k)) => v.non_negative(&s, Dimension::Length, &k)?,
+        None => 0.0,
+    };
+    let ground_offset_v = match l.get(|t| &t.ground_offset, "ground_offset") {
+        Some((s, k)) => v.qty(&s, Dimension::Voltage, &k)?,
+        None => 0.0,
+    };
+    let common_mode_v = match l.get(|t| &t.common_mode, "common_mode") {
+        Some((list, k)) => Some(pair(
+            v,
+            &list,
+            &k,
+            "common_mode takes two voltages: [low, high]",
+        )?),
+        None => l.family.as_ref().and_then(|f| f.common_mode_v),
+    };
+    Ok(Transceiver {
+        driver,
+        enable_time,
+        disable_time,
+        receiver_delay,
+        load_f,
+        receiver,
+        input_ohm,
+        transition_time,
+        stub_m,
+        ground_offset_v,
+        common_mode_v,
+        family: l.family.as_ref().map(|f| f.name.to_owned()),
+    })
+}
+
+fn pair(v: &V, list: &Spanned<Vec<S>>, key: &str, msg: &str) -> R<(f64, f64)> {
+    if list.get_ref().len() != 2 {
+        return Err(v.err(list.span(), key, msg));
+    }
+    let a = v.qty(&list.get_ref()[0], Dimension::Voltage, key)?;
+    let b = v.qty(&list.get_ref()[1], Dimension::Voltage, key)?;
+    if a > b {
+        return Err(v.err(
+            list.span(),
+            key,
+            "the low value must not exceed the high value",
+        ));
+    }
+    Ok((a, b))
+}
+
+fn driver(l: &Levels) -> R<Driver> {
+    let v = l.v;
+    let current = l.get(|t| &t.drive_current, "drive_current");
+    let voc = l.get(|t| &t.output_voltage, "output_voltage");
+    let min = l.get(|t| &t.min_output, "min_output");
+    let rout = match l.get(|t| &t.output_resistance, "output_resistance") {
+        Some((s, k)) => Some(v.non_negative(&s, Dimension::Resistance, &k)?),
+        None => None,
+    };
+    let kind = match l.get(|t| &t.driver, "driver") {
+        Some((s, k)) => v.choice(&s, &k, DRIVERS)?,
+        None if current.is_some() => "current",
+        None if voc.is_some() || min.is_some() => "voltage",
+        None => match l.family.as_ref().map(|f| f.driver) {
+            Some(Driver::Current { .. }) => "current",
+            Some(Driver::Voltage { .. }) => "voltage",
+            None => {
+                return Err(l.v.err(
+                    l.at.clone(),
+                    "transceiver.drive_current",
+                    format!(
+                        "node \"{}\" has no driver: set drive_current (current mode), output_voltage or min_output (voltage mode), or a family",
+                        l.node
+                    ),
+                ))
+            }
+        },
+    };
+    if kind == "current" {
+        return match current {
+            Some((s, k)) => Ok(Driver::Current {
+                amps: v.within(&s, Dimension::Current, &k, 1e-9, 1.0, "A")?,
+            }),
+            None => match l.family.as_ref().map(|f| f.driver) {
+                Some(d @ Driver::Current { .. }) => Ok(d),
+                _ => Err(l.missing("drive_current", "the drive current")),
+            },
+        };
+    }
+    match (voc, min) {
+        (Some((s, k)), None) => {
+            let oc = v.within(&s, Dimension::Voltage, &k, 1e-3, 100.0, "V")?;
+            Ok(Driver::Voltage {
+                open_circuit_v: oc,
+                output_ohm: rout.unwrap_or(0.0),
+            })
+        }
+        (None, Some((list, k))) => {
+            // "At least V into R_test": with output resistance R_out the
+            // open-circuit voltage is V·(R_test + R_out)/R_test; without it, a stiff source.
+            let items = list.get_ref();
+            if items.len() != 2 {
+                return Err(v.err(
+                    list.span(),
+                    &k,
+                    "min_output takes a voltage and its test load: [\"1.5 V\", \"54 ohm\"]",
+                ));
+            }
+            let volts = v.qty(&items[0], Dimension::Voltage, &k)?;
+            let test = v.qty(&items[1], Dimension::Resistance, &k)?;
+            if volts <= 0.0 || test <= 0.0 {
+                return Err(v.err(
+                    list.span(),
+                    &k,
+                    "min_output needs a positive voltage and test load",
+                ));
+            }
+            let r = rout.unwrap_or(0.0);
+            Ok(Driver::Voltage {
+                open_circuit_v: volts * (test + r) / test,
+                output_ohm: r,
+            })
+        }
+        (Some((s, k)), Some(_)) => {
+            Err(v.err(s.span(), &k, "give output_voltage or min_output, not both"))
+        }
+        (None, None) => match l.family.as_ref().map(|f| f.driver) {
+            Some(Driver::Voltage {
+                open_circuit_v,
+                output_ohm,
+            }) => {
+                let r = rout.unwrap_or(output_ohm);
+                // The preset's figure is a minimum into 54 Ω: keep it with a given R_out.
+                Ok(Driver::Voltage {
+                    open_circuit_v: open_circuit_v * (54.0 + r) / 54.0,
+                    output_ohm: r,
+                })
+            }
+            _ => Err(l.missing("output_voltage", "the driver's output")),
+        },
+    }
+}
+
+fn receiver(l: &Levels) -> R<ReceiverClass> {
+    let v = l.v;
+    // The class comes from one level: the node's table if it names one, else the defaults.
+    let (t, key) = match l.over {
+        Some(o) if o.receiver.is_some() || o.thresholds.is_some() => {
+            (o, format!("{}.transceiver", l.key))
+        }
+        _ => (l.defaults, "transceiver".to_owned()),
+    };
+    match (&t.receiver, &t.thresholds) {
+        (Some(r), None) => Ok(match v.choice(r, &format!("{key}.receiver"), RECEIVERS)? {
+            "type1" => ReceiverClass::type1(),
+            "type2" => ReceiverClass::type2(),
+            "lvds" => ReceiverClass::lvds(),
+            _ => ReceiverClass::tia485(),
+        }),
+        (None, Some(th)) => {
+            let k = format!("{key}.thresholds");
+            let (low, high) = pair(v, th, &k, "thresholds takes two voltages: [low, high], e.g. [\"-200 mV\", \"200 mV\"]")?;
+            Ok(ReceiverClass { name: "custom".into(), low_v: low, high_v: high })
+        }
+        (Some(r), Some(_)) => Err(v.err(r.span(), &format!("{key}.receiver"), "give receiver or thresholds, not both")),
+        (None, None) => match &l.family {
+            Some(f) => Ok(f.receiver.clone()),
+            None => Err(v.err(
+                l.at.clone(),
+                "transceiver.receiver",
+                format!(
+                    "node \"{}\" has no receiver class: set receiver = \"type1\", \"type2\", \"lvds\", \"tia485\", thresholds = [low, high], or a family",
+                    l.node
+                ),
+            )),
+        },
+    }
+}
