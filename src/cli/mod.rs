@@ -1,5 +1,6 @@
 //! Command-line interface: one file per command.
 
+mod budget;
 mod output;
 mod run;
 
@@ -19,6 +20,8 @@ struct Cli {
 enum Command {
     /// Simulate a scenario and report throughput, latency, contention and floating-line windows.
     Run(run::RunArgs),
+    /// Check the line electrically and compute the minimum safe turnaround of every hand-over.
+    Budget(budget::BudgetArgs),
 }
 
 /// A failure the command reports: a message and its exit status.
@@ -68,6 +71,7 @@ pub fn main() -> ExitCode {
     init_tracing(console::colors_enabled_stderr());
     let result = match cli.command {
         Command::Run(args) => run::run(args),
+        Command::Budget(args) => budget::budget(args),
     };
     match result {
         Ok(code) => ExitCode::from(code),

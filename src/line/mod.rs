@@ -6,6 +6,7 @@
 
 pub mod amplitude;
 pub mod family;
+pub mod figures;
 pub mod loaded;
 pub mod receiver;
 

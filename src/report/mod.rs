@@ -12,6 +12,7 @@ use std::collections::BTreeMap;
 use serde::Serialize;
 
 use crate::engine::World;
+pub use crate::line::figures::LineFigures;
 use crate::line::IdleState;
 use crate::scheme::SchemeReport;
 use crate::stats::LatencySummary;
@@ -116,20 +117,6 @@ pub struct Utilization {
 }
 
 #[derive(Clone, Debug, Serialize)]
-pub struct LineFigures {
-    pub loaded_impedance_ohm: f64,
-    pub loaded_delay_s_per_m: f64,
-    pub end_to_end_delay_s: f64,
-    pub load_ratio: f64,
-    pub worst_amplitude_v: f64,
-    pub worst_amplitude_node: String,
-    /// Smallest receiver margin against the worst amplitude (V); negative fails.
-    pub worst_margin_v: f64,
-    pub worst_margin_node: String,
-    pub bit_time_s: f64,
-}
-
-#[derive(Clone, Debug, Serialize)]
 pub struct Warning {
     pub code: &'static str,
     #[serde(skip_serializing_if = "Option::is_none")]
@@ -231,27 +218,8 @@ impl Report {
             idle: u.idle as f64 / whole,
             wasted: u.wasted as f64 / whole,
         };
-        let (amp_node, amp) = line.worst_amplitude();
-        let (margin_node, margin) = spec
-            .nodes
-            .iter()
-            .enumerate()
-            .map(|(i, n)| (i, n.transceiver.receiver.margin_v(amp)))
-            .fold(
-                (0, f64::INFINITY),
-                |acc, x| if x.1 < acc.1 { x } else { acc },
-            );
-        let line_fig = LineFigures {
-            loaded_impedance_ohm: line.loaded.impedance_ohm,
-            loaded_delay_s_per_m: line.loaded.delay_s_per_m,
-            end_to_end_delay_s: line.end_to_end.as_secs_f64(),
-            load_ratio: line.loaded.load_ratio(),
-            worst_amplitude_v: amp,
-            worst_amplitude_node: spec.nodes[amp_node].name.clone(),
-            worst_margin_v: margin,
-            worst_margin_node: spec.nodes[margin_node].name.clone(),
-            bit_time_s: 1.0 / spec.frame.bit_rate,
-        };
+        let line_fig = crate::line::figures::line_figures(spec, line);
+        let amp = line_fig.worst_amplitude_v;
         let warnings = warnings(w, amp, &contention, &floating, &frames);
         Report {
             schema: SCHEMA,

@@ -1,0 +1,211 @@
+//! The smallest turnaround (guard, slot or bit time) each hand-over of the
+//! scheme needs so that no two drivers ever overlap anywhere on the line.
+//!
+//! A responder R enabling after a releasing driver P overlaps it worst at
+//! R's own position, where P's disable tail arrives last (see the bus's
+//! contention geometry). R's receiver shows P's last bit d(P,R) + r_R after
+//! P releases and R enables T_R later, while P's tail reaches R d(P,R) +
+//! disable_P after the release: the wire delay cancels, and
+//! T_R ≥ disable_P − r_R is necessary and sufficient.
+
+use serde::Serialize;
+
+use crate::line::LineModel;
+use crate::spec::{AccessSpec, Drift, NodeId, Spec};
+use crate::units::Picos;
+
+/// One hand-over and its minimum.
+#[derive(Clone, Debug, Serialize)]
+pub struct Handover {
+    pub from: String,
+    pub to: String,
+    /// "turnaround" | "guard" | "slot" | "bit".
+    pub kind: &'static str,
+    pub min_turnaround_s: f64,
+    /// What the scenario sets, and whether it is enough.
+    pub configured_s: f64,
+    pub ok: bool,
+    #[serde(skip)]
+    pub min: Picos,
+    #[serde(skip)]
+    pub responder: Option<NodeId>,
+}
+
+fn turnaround(spec: &Spec, p: NodeId, r: NodeId, configured: Picos) -> Handover {
+    let dis = spec.nodes[p].transceiver.disable_time;
+    let rx = spec.nodes[r].transceiver.receiver_delay;
+    let min = dis.saturating_sub(rx);
+    Handover {
+        from: spec.nodes[p].name.clone(),
+        to: spec.nodes[r].name.clone(),
+        kind: "turnaround",
+        min_turnaround_s: min.as_secs_f64(),
+        configured_s: configured.as_secs_f64(),
+        ok: configured >= min,
+        min,
+        responder: Some(r),
+    }
+}
+
+/// Every hand-over the scheme makes, worst (largest minimum) first.
+pub fn handovers(spec: &Spec, line: &LineModel) -> Vec<Handover> {
+    let mut out = Vec::new();
+    match &spec.access {
+        AccessSpec::Polling(p) => {
+            let mut seen = std::collections::BTreeSet::new();
+            for &s in &p.order {
+                if seen.insert(s) {
+                    out.push(turnaround(spec, p.master, s, p.turnaround[s]));
+                    out.push(turnaround(spec, s, p.master, p.turnaround[p.master]));
+                }
+            }
+        }
+        AccessSpec::Token(t) => {
+            for (i, &n) in t.order.iter().enumerate() {
+                let next = t.order[(i + 1) % t.order.len()];
+                out.push(turnaround(spec, n, next, t.turnaround[next]));
+            }
+        }
+        AccessSpec::Tdma(t) => out.extend(tdma(spec, line, t)),
+        AccessSpec::Csma(c) => {
+            if c.collision_detect {
+                let min = csma_slot(spec, line, c.detect_delay);
+                out.push(whole_bus("slot", min, c.slot_time));
+            }
+        }
+        AccessSpec::Aloha(a) => {
+            if a.slotted {
+                let longest = longest_frame(spec);
+                let en = spec
+                    .nodes
+                    .iter()
+                    .map(|n| n.transceiver.enable_time)
+                    .max()
+                    .unwrap_or(Picos::ZERO);
+                let dis = spec
+                    .nodes
+                    .iter()
+                    .map(|n| n.transceiver.disable_time)
+                    .max()
+                    .unwrap_or(Picos::ZERO);
+                out.push(whole_bus(
+                    "slot",
+                    en + longest + dis + max_lag(spec, line),
+                    a.slot_time,
+                ));
+            }
+        }
+        AccessSpec::Arbitration(a) => {
+            let min = crate::scheme::arbitration::min_bit_time(spec, a, line);
+            out.push(whole_bus("bit", min, spec.frame.bit_time()));
+        }
+    }
+    out.sort_by_key(|h| std::cmp::Reverse(h.min));
+    out
+}
+
+fn whole_bus(kind: &'static str, min: Picos, configured: Picos) -> Handover {
+    Handover {
+        from: "any".into(),
+        to: "any".into(),
+        kind,
+        min_turnaround_s: min.as_secs_f64(),
+        configured_s: configured.as_secs_f64(),
+        ok: configured >= min,
+        min,
+        responder: None,
+    }
+}
+
+fn max_lag(spec: &Spec, line: &LineModel) -> Picos {
+    line.max_node_delay
+        + spec
+            .nodes
+            .iter()
+            .map(|n| n.transceiver.receiver_delay)
+            .max()
+            .unwrap_or(Picos::ZERO)
+}
+
+fn longest_frame(spec: &Spec) -> Picos {
+    let bits = spec
+        .nodes
+        .iter()
+        .flat_map(|n| &n.traffic)
+        .map(|t| match t.payload {
+            crate::spec::Payload::Fixed { bits } => bits,
+            crate::spec::Payload::Uniform { max_bits, .. } => max_bits,
+        })
+        .max()
+        .unwrap_or(0);
+    spec.frame.duration(spec.frame.data_line_bits(bits))
+}
+
+/// The CSMA/CD slot: a collision is seen everywhere within a round trip
+/// plus the transceiver times and the detection delay.
+fn csma_slot(spec: &Spec, line: &LineModel, detect: Option<Picos>) -> Picos {
+    let max = |f: fn(&crate::spec::NodeSpec) -> Picos| {
+        spec.nodes.iter().map(f).max().unwrap_or(Picos::ZERO)
+    };
+    let lag = max_lag(spec, line);
+    let detect = detect.unwrap_or(max(|n| n.transceiver.receiver_delay));
+    let raw = lag
+        + lag
+        + max(|n| n.transceiver.enable_time)
+        + max(|n| n.transceiver.disable_time)
+        + detect;
+    let tb = spec.frame.bit_time().0.max(1);
+    Picos(raw.0.div_ceil(tb).max(1) * tb)
+}
+
+/// TDMA: guard for every slot boundary, with the worst clock errors (the
+/// releasing owner slow, the next one fast) and, without compensation, the
+/// difference of the two owners' beacon lags. See `scheme/tdma.rs`.
+fn tdma(spec: &Spec, line: &LineModel, t: &crate::spec::TdmaSpec) -> Vec<Handover> {
+    let ppm = |n: NodeId| match t.drift[n] {
+        Drift::Fixed(p) => p.abs() * 1e-6,
+        Drift::Within(p) => p * 1e-6,
+    };
+    let tk = t.timekeeper;
+    let lag = |n: NodeId| {
+        if t.compensate || n == tk {
+            0.0
+        } else {
+            (line.delay(tk, n) + spec.nodes[n].transceiver.receiver_delay).as_secs_f64()
+        }
+    };
+    // Owners in cycle order, with each slot's offset after the beacon's end;
+    // the timekeeper's next beacon closes the cycle.
+    let mut chain: Vec<(NodeId, f64)> = vec![(tk, 0.0)];
+    let mut o = 0.0;
+    for s in &t.slots {
+        chain.push((s.owner, o));
+        o += s.length.as_secs_f64();
+    }
+    chain.push((tk, o));
+    let mut out = Vec::new();
+    for pair in chain.windows(2) {
+        let (p, _) = pair[0];
+        let (r, o_r) = pair[1];
+        if p == r {
+            continue;
+        }
+        let (ep, er) = (ppm(p), ppm(r));
+        let dis = spec.nodes[p].transceiver.disable_time.as_secs_f64();
+        let d = line.delay(p, r).as_secs_f64();
+        let clock = o_r * (1.0 / (1.0 - ep) - 1.0 / (1.0 + er));
+        let need = ((1.0 + er) * (dis + d + clock - (lag(r) - lag(p)))).max(0.0);
+        let min = Picos((need * 1e12).ceil() as u64);
+        out.push(Handover {
+            from: spec.nodes[p].name.clone(),
+            to: spec.nodes[r].name.clone(),
+            kind: "guard",
+            min_turnaround_s: min.as_secs_f64(),
+            configured_s: t.guard.as_secs_f64(),
+            ok: t.guard >= min,
+            min,
+            responder: Some(r),
+        });
+    }
+    out
+}

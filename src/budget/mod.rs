@@ -1,0 +1,154 @@
+//! The electrical and timing budget: a static analysis of a scenario, with
+//! no traffic simulated. Its line figures are the run report's (one
+//! implementation in `line::figures`).
+
+pub mod checks;
+pub mod handover;
+
+use std::collections::BTreeMap;
+
+use serde::Serialize;
+
+use crate::line::figures::{self, LineFigures, NodeFigures};
+use crate::line::LineModel;
+use crate::spec::Spec;
+pub use checks::BudgetWarning;
+pub use handover::Handover;
+
+/// Version tag of the budget's JSON.
+pub const SCHEMA: &str = "halfwire-budget/1";
+
+/// Settings of the analysis.
+#[derive(Clone, Copy, Debug)]
+pub struct Options {
+    /// A stub is short while its round-trip delay stays within this fraction
+    /// of the transition time (published values range from 1/2 to 1/20).
+    pub stub_fraction: f64,
+}
+
+impl Default for Options {
+    fn default() -> Self {
+        Options { stub_fraction: 0.5 }
+    }
+}
+
+#[derive(Clone, Debug, Serialize)]
+pub struct Limits {
+    /// From the edges (unit interval ≥ 2 × transition time) and the stubs.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub max_bit_rate_bit_s: Option<f64>,
+    /// Largest node count at this node density that meets the amplitude and loading checks.
+    pub max_nodes: usize,
+    pub unit_loads: f64,
+    pub unit_load_limit: f64,
+}
+
+#[derive(Clone, Debug, Serialize)]
+pub struct Budget {
+    pub schema: &'static str,
+    pub scenario: String,
+    pub scheme: &'static str,
+    pub line: LineFigures,
+    pub nodes: BTreeMap<String, NodeFigures>,
+    pub limits: Limits,
+    pub handovers: Vec<Handover>,
+    pub warnings: Vec<BudgetWarning>,
+}
+
+impl Budget {
+    pub fn compute(spec: &Spec, options: Options) -> Budget {
+        let line = LineModel::new(spec);
+        let nodes = (0..spec.nodes.len())
+            .map(|i| {
+                (
+                    spec.nodes[i].name.clone(),
+                    figures::node_figures(spec, &line, i),
+                )
+            })
+            .collect();
+        let limits = Limits {
+            max_bit_rate_bit_s: checks::max_bit_rate(spec, options.stub_fraction),
+            max_nodes: checks::max_nodes(spec),
+            unit_loads: line.unit_loads,
+            unit_load_limit: crate::spec::MAX_UNIT_LOADS,
+        };
+        let handovers = handover::handovers(spec, &line);
+        let warnings = checks::warnings(spec, &line, &handovers, options);
+        Budget {
+            schema: SCHEMA,
+            scenario: spec.name.clone(),
+            scheme: spec.access.name(),
+            line: figures::line_figures(spec, &line),
+            nodes,
+            limits,
+            handovers,
+            warnings,
+        }
+    }
+}
+
+/// `--verify`: the scenario run with every hand-over at its computed minimum,
+/// and with the worst one 1 ps below it. Response latencies are zeroed, so
+/// that the turnaround alone decides.
+#[derive(Clone, Debug, Serialize)]
+pub struct Verification {
+    pub at_minimum_contention: u64,
+    pub below_minimum_contention: u64,
+    pub lowered: String,
+}
+
+/// `None` when the scheme has no per-node hand-over to vary.
+pub fn verify(spec: &Spec, handovers: &[Handover]) -> Option<Verification> {
+    use crate::spec::{AccessSpec, Latency};
+    use crate::units::Picos;
+    let worst = handovers.first()?;
+    let set = |spec: &mut Spec, delta: i64| -> Option<()> {
+        match &mut spec.access {
+            AccessSpec::Polling(p) => {
+                p.response_latency = Latency::Fixed(Picos::ZERO);
+                apply(&mut p.turnaround, handovers, worst, delta)
+            }
+            AccessSpec::Token(t) => {
+                t.response_latency = Latency::Fixed(Picos::ZERO);
+                apply(&mut t.turnaround, handovers, worst, delta)
+            }
+            AccessSpec::Tdma(t) => {
+                let g = handovers.iter().map(|h| h.min).max()?;
+                t.guard = Picos((g.0 as i64 + delta).max(0) as u64);
+                Some(())
+            }
+            _ => None,
+        }
+    };
+    let mut at = spec.clone();
+    set(&mut at, 0)?;
+    let mut below = spec.clone();
+    set(&mut below, -1)?;
+    let run = |s: &Spec| crate::simulate(s).contention.events;
+    Some(Verification {
+        at_minimum_contention: run(&at),
+        below_minimum_contention: run(&below),
+        lowered: format!("{} → {}", worst.from, worst.to),
+    })
+}
+
+/// Set each responder's turnaround to the largest minimum it needs; move
+/// the worst hand-over's responder by `delta` picoseconds.
+fn apply(
+    turnaround: &mut [crate::units::Picos],
+    handovers: &[Handover],
+    worst: &Handover,
+    delta: i64,
+) -> Option<()> {
+    use crate::units::Picos;
+    for t in turnaround.iter_mut() {
+        *t = Picos::ZERO;
+    }
+    for h in handovers {
+        let r = h.responder?;
+        turnaround[r] = turnaround[r].max(h.min);
+    }
+    let r = worst.responder?;
+    turnaround[r] = Picos((turnaround[r].0 as i64 + delta).max(0) as u64);
+    Some(())
+}

@@ -1,0 +1,162 @@
+//! `halfwire budget`: the electrical and timing budget of a scenario.
+
+use std::fmt::Write;
+use std::path::PathBuf;
+
+use clap::Args;
+use halfwire::budget::{self, Budget, Options};
+use halfwire::units::{format_seconds, format_si};
+
+use super::output::print_stdout;
+use super::run::Format;
+use super::Failure;
+
+#[derive(Debug, Args)]
+pub struct BudgetArgs {
+    /// Scenario file (TOML).
+    pub file: PathBuf,
+    /// Output format on stdout.
+    #[arg(long, value_enum, default_value_t = Format::Text)]
+    pub format: Format,
+    /// Run the scenario with every hand-over at its minimum and 1 ps below it.
+    #[arg(long)]
+    pub verify: bool,
+    /// Fraction of the transition time a stub's round trip may take.
+    #[arg(long, default_value_t = 0.5, value_name = "FRACTION")]
+    pub stub_fraction: f64,
+}
+
+pub fn budget(args: BudgetArgs) -> Result<u8, Failure> {
+    if !(args.stub_fraction > 0.0 && args.stub_fraction <= 1.0) {
+        return Err(Failure::input("--stub-fraction must lie in (0, 1]"));
+    }
+    let spec = halfwire::scenario::load(&args.file)?;
+    let b = Budget::compute(
+        &spec,
+        Options {
+            stub_fraction: args.stub_fraction,
+        },
+    );
+    let verification = if args.verify {
+        let v = budget::verify(&spec, &b.handovers);
+        if v.is_none() {
+            return Err(Failure::input(format!(
+                "--verify varies per-node turnarounds or the TDMA guard; scheme \"{}\" has neither",
+                spec.access.name()
+            )));
+        }
+        v
+    } else {
+        None
+    };
+    let out = match args.format {
+        Format::Json => {
+            let mut v = serde_json::to_value(&b).expect("serializable");
+            if let Some(ver) = &verification {
+                v["verify"] = serde_json::to_value(ver).expect("serializable");
+            }
+            let mut s = serde_json::to_string_pretty(&v).expect("serializable");
+            s.push('\n');
+            s
+        }
+        Format::Text => render(&b, verification.as_ref()),
+    };
+    print_stdout(&out)?;
+    Ok(0)
+}
+
+fn render(b: &Budget, ver: Option<&budget::Verification>) -> String {
+    let mut o = String::new();
+    let l = &b.line;
+    let _ = writeln!(o, "halfwire budget: {}  ({} scheme)", b.scenario, b.scheme);
+    let _ = writeln!(o);
+    let _ = writeln!(o, "Line");
+    let _ = writeln!(
+        o,
+        "  loaded impedance {}   loaded delay {}/m   end to end {}   load ratio {:.3}",
+        format_si(l.loaded_impedance_ohm, "Ω"),
+        format_seconds(l.loaded_delay_s_per_m),
+        format_seconds(l.end_to_end_delay_s),
+        l.load_ratio
+    );
+    let _ = writeln!(
+        o,
+        "  reflection near {:+.3}  far {:+.3}   DC load {}   idle line {}   unit loads {:.2} of {}",
+        l.reflection_near,
+        l.reflection_far,
+        format_si(l.dc_load_ohm, "Ω"),
+        format_si(l.idle_v, "V"),
+        b.limits.unit_loads,
+        b.limits.unit_load_limit
+    );
+    let _ = writeln!(o);
+    let _ = writeln!(
+        o,
+        "  {:<14} {:>12} {:>12} {:>12} {:>12} {:>10}",
+        "node", "step", "settled", "drive load", "margin", "idle"
+    );
+    let mut nodes: Vec<_> = b.nodes.iter().collect();
+    nodes.sort_by(|a, c| a.1.margin_v.total_cmp(&c.1.margin_v));
+    for (name, n) in nodes {
+        let _ = writeln!(
+            o,
+            "  {:<14} {:>12} {:>12} {:>12} {:>12} {:>10}",
+            name,
+            format_si(n.amplitude_step_v, "V"),
+            format_si(n.amplitude_dc_v, "V"),
+            format_si(n.drive_load_ohm, "Ω"),
+            format_si(n.margin_v, "V"),
+            format!("{:?}", n.idle_state).to_lowercase()
+        );
+    }
+    let _ = writeln!(o);
+    let _ = writeln!(o, "Limits");
+    if let Some(r) = b.limits.max_bit_rate_bit_s {
+        let _ = writeln!(
+            o,
+            "  max bit rate (edges and stubs) {}",
+            format_si(r, "bit/s")
+        );
+    }
+    let _ = writeln!(o, "  max nodes at this density {}", b.limits.max_nodes);
+    let _ = writeln!(o);
+    let _ = writeln!(o, "Hand-overs (worst first)");
+    let _ = writeln!(
+        o,
+        "  {:<14} {:<14} {:<11} {:>12} {:>12}",
+        "from", "to", "kind", "minimum", "set"
+    );
+    for h in &b.handovers {
+        let _ = writeln!(
+            o,
+            "  {:<14} {:<14} {:<11} {:>12} {:>12}{}",
+            h.from,
+            h.to,
+            h.kind,
+            format_seconds(h.min_turnaround_s),
+            format_seconds(h.configured_s),
+            if h.ok { "" } else { "  too short" }
+        );
+    }
+    if let Some(v) = ver {
+        let _ = writeln!(o);
+        let _ = writeln!(
+            o,
+            "Verify: {} contention events at the minima, {} with {} 1 ps below",
+            v.at_minimum_contention, v.below_minimum_contention, v.lowered
+        );
+    }
+    if !b.warnings.is_empty() {
+        let _ = writeln!(o);
+        let _ = writeln!(o, "Warnings");
+        for w in &b.warnings {
+            let who = w
+                .node
+                .as_deref()
+                .map(|n| format!(" [{n}]"))
+                .unwrap_or_default();
+            let _ = writeln!(o, "  {}{}: {}", w.code, who, w.message);
+        }
+    }
+    o
+}
