@@ -1,0 +1,372 @@
+//! `halfwire budget` through the built binary, against hand calculations
+//! from the handbook formulas and common-practice values.
+
+mod common;
+
+use common::halfwire;
+use serde_json::Value;
+
+fn budget(toml: &str, extra: &[&str]) -> Value {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("b.toml");
+    std::fs::write(&path, toml).unwrap();
+    let mut args = vec!["budget", path.to_str().unwrap(), "--format", "json"];
+    args.extend_from_slice(extra);
+    let out = halfwire(&args);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    serde_json::from_slice(&out.stdout).unwrap()
+}
+
+fn refused(toml: &str) -> String {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("b.toml");
+    std::fs::write(&path, toml).unwrap();
+    let out = halfwire(&["budget", path.to_str().unwrap()]);
+    assert_eq!(out.status.code(), Some(2));
+    String::from_utf8_lossy(&out.stderr).into_owned()
+}
+
+/// A bus: `line` and `transceiver` bodies, nodes at the given positions.
+fn bus(line: &str, transceiver: &str, access: &str, positions: &[f64]) -> String {
+    let mut nodes = String::new();
+    for (i, x) in positions.iter().enumerate() {
+        nodes += &format!("[[node]]\nname = \"n{i}\"\nposition = \"{x} m\"\n");
+    }
+    format!(
+        "duration = \"200 us\"\n[line]\n{line}\n[transceiver]\n{transceiver}\n[frame]\nbit_rate = \"100 Mbit/s\"\noverhead_bits = 48\n[access]\n{access}\n{nodes}"
+    )
+}
+
+const TIMING: &str = "enable_time = \"7 ns\"\ndisable_time = \"9 ns\"\nreceiver_delay = \"5 ns\"";
+const POLL: &str =
+    "scheme = \"polling\"\nmaster = \"n0\"\nturnaround = \"20 ns\"\nreply_timeout = \"5 us\"";
+
+fn close(a: f64, b: f64, rel: f64) -> bool {
+    ((a - b) / b).abs() < rel
+}
+
+#[test]
+fn loaded_line_three_hand_worked_cases() {
+    // Johnson & Graham (1993): Z' = Z0/sqrt(1 + C_d·n/C0), tpd' = tpd0·sqrt(1 + C_d·n/C0), C0 = tpd0/Z0.
+    let cases = [
+        // Z0, tpd0 (ns/m), length, nodes, load (pF) → Z', tpd' (ns/m)
+        (100.0, 5.0, 1.0, 40, 5.0, 44.7214, 11.1803), // C_d/(C0·d) = 4 (reference-sheet example)
+        (120.0, 5.0, 2.0, 4, 62.5, 60.0, 10.0),       // C_d·n = 3·C0: Z0/2 (heavy load)
+        (90.0, 6.0, 3.0, 10, 6.0, 78.9352, 6.8411), // by hand: C0 = 66.67 pF/m, C_d·n = 20 pF/m, ratio 0.3, k = sqrt(1.3) = 1.14018
+    ];
+    for (z0, tpd, len, n, load, z_exp, t_exp) in cases {
+        let positions: Vec<f64> = (0..n).map(|i| len * i as f64 / (n - 1) as f64).collect();
+        let line =
+            format!("length = \"{len} m\"\nimpedance = \"{z0} ohm\"\ndelay = \"{tpd} ns/m\"");
+        let tx = format!(
+            "drive_current = \"11.3 mA\"\nload = \"{load} pF\"\nreceiver = \"type2\"\n{TIMING}"
+        );
+        let b = budget(&bus(&line, &tx, POLL, &positions), &[]);
+        let l = &b["line"];
+        assert!(
+            close(l["loaded_impedance_ohm"].as_f64().unwrap(), z_exp, 1e-5),
+            "{z0}: {l}"
+        );
+        assert!(
+            close(
+                l["loaded_delay_s_per_m"].as_f64().unwrap(),
+                t_exp * 1e-9,
+                1e-5
+            ),
+            "{z0}: {l}"
+        );
+        assert!(close(
+            l["end_to_end_delay_s"].as_f64().unwrap(),
+            t_exp * 1e-9 * len,
+            1e-4
+        ));
+    }
+}
+
+#[test]
+fn amplitudes_against_common_practice() {
+    let tx = |drive: &str| format!("{drive}\nload = \"0 pF\"\nreceiver = \"type2\"\n{TIMING}");
+    // Point to point, far end terminated, unloaded 50 Ω line: the near-end
+    // driver sees 50 Ω. 11.3 mA → 565 mV (multipoint LVDS, common practice).
+    let b = budget(
+        &bus("length = \"1 m\"\nimpedance = \"50 ohm\"\ndelay = \"5 ns/m\"\ntermination = \"far-end\"", &tx("drive_current = \"11.3 mA\""), POLL, &[0.0, 1.0]),
+        &[],
+    );
+    assert!(close(
+        b["nodes"]["n0"]["amplitude_step_v"].as_f64().unwrap(),
+        0.565,
+        1e-9
+    ));
+    // Both ends 60 Ω on a 60 Ω line: 30 Ω everywhere, 339 mV > 300 mV.
+    let b = budget(
+        &bus(
+            "length = \"1 m\"\nimpedance = \"60 ohm\"\ndelay = \"5 ns/m\"",
+            &tx("drive_current = \"11.3 mA\""),
+            POLL,
+            &[0.0, 0.5, 1.0],
+        ),
+        &[],
+    );
+    for n in ["n0", "n1", "n2"] {
+        let a = b["nodes"][n]["amplitude_step_v"].as_f64().unwrap();
+        assert!(close(a, 0.339, 1e-9) && a > 0.300);
+        assert!(close(
+            b["nodes"][n]["amplitude_dc_v"].as_f64().unwrap(),
+            0.339,
+            1e-9
+        ));
+    }
+    // LVDS (common practice): 3.5 mA into 100 Ω = 350 mV, from the family preset.
+    let lvds = format!("family = \"lvds\"\nload = \"0 pF\"\n{TIMING}");
+    let b = budget(&bus("length = \"1 m\"\nimpedance = \"100 ohm\"\ndelay = \"5 ns/m\"\ntermination = \"far-end\"", &lvds, POLL, &[0.0, 1.0]), &[]);
+    assert!(close(
+        b["nodes"]["n0"]["amplitude_step_v"].as_f64().unwrap(),
+        0.350,
+        1e-9
+    ));
+    // A voltage-mode driver (3.3 V behind 50 Ω) into 54 Ω (two 108 Ω ends):
+    // 3.3·54/104 = 1.713 V, above TIA-485-A's 1.5 V minimum (from memory).
+    let b = budget(
+        &bus(
+            "length = \"1 m\"\nimpedance = \"120 ohm\"\ndelay = \"5 ns/m\"\ntermination = \"108 ohm\"",
+            &tx("output_voltage = \"3.3 V\"\noutput_resistance = \"50 ohm\""),
+            POLL,
+            &[0.0, 1.0],
+        ),
+        &[],
+    );
+    let dc = b["nodes"]["n0"]["amplitude_dc_v"].as_f64().unwrap();
+    assert!(close(
+        b["line"]["dc_load_ohm"].as_f64().unwrap(),
+        54.0,
+        1e-9
+    ));
+    assert!(close(dc, 3.3 * 54.0 / 104.0, 1e-9) && dc >= 1.5, "{dc}");
+}
+
+#[test]
+fn failsafe_bias_sets_the_idle_state() {
+    // Common practice for TIA-485 idle biasing: V_AB = V_s·R_p/(2·R_b + R_p).
+    // 5 V, R_b = 720 Ω, R_p = 120 ∥ 120 = 60 Ω → exactly 200 mV.
+    let line = |rb: u32| {
+        format!("length = \"10 m\"\nimpedance = \"120 ohm\"\ndelay = \"5 ns/m\"\ntermination = \"120 ohm\"\n[line.bias]\nsupply = \"5 V\"\npull_up = \"{rb} ohm\"\npull_down = \"{rb} ohm\"")
+    };
+    let tx = |rx: &str| {
+        format!("drive_current = \"11.3 mA\"\nload = \"0 pF\"\nreceiver = \"{rx}\"\n{TIMING}")
+    };
+    let b = budget(&bus(&line(720), &tx("tia485"), POLL, &[0.0, 10.0]), &[]);
+    assert!(close(b["line"]["idle_v"].as_f64().unwrap(), 0.200, 1e-12));
+    // The bias adds 1440 Ω across the pair: DC load 60 ∥ 1440 = 57.6 Ω.
+    assert!(close(
+        b["line"]["dc_load_ohm"].as_f64().unwrap(),
+        57.6,
+        1e-9
+    ));
+    // 200 mV is not above ±200 mV: still undefined there; 680 Ω gives 211 mV.
+    assert_eq!(b["nodes"]["n1"]["idle_state"], "undefined");
+    let b = budget(&bus(&line(680), &tx("tia485"), POLL, &[0.0, 10.0]), &[]);
+    assert!(close(
+        b["line"]["idle_v"].as_f64().unwrap(),
+        5.0 * 60.0 / 1420.0,
+        1e-12
+    ));
+    assert_eq!(b["nodes"]["n1"]["idle_state"], "high");
+    // The same 211 mV against type-1 (±50 mV) and type-2 (50/150 mV) thresholds.
+    for rx in ["type1", "type2"] {
+        let b = budget(&bus(&line(680), &tx(rx), POLL, &[0.0, 10.0]), &[]);
+        assert_eq!(b["nodes"]["n1"]["idle_state"], "high", "{rx}");
+    }
+    // Without the bias a type-1 receiver reads the idle line as undefined;
+    // the run then counts floating windows, and with the bias it counts none.
+    let plain = bus(
+        "length = \"10 m\"\nimpedance = \"120 ohm\"\ndelay = \"5 ns/m\"\ntermination = \"120 ohm\"",
+        &tx("type1"),
+        POLL,
+        &[0.0, 10.0],
+    );
+    assert!(
+        common::run_toml(&plain)["floating"]["windows"]
+            .as_u64()
+            .unwrap()
+            > 0
+    );
+    assert_eq!(
+        common::run_toml(&bus(&line(680), &tx("type1"), POLL, &[0.0, 10.0]))["floating"]["windows"],
+        0
+    );
+}
+
+#[test]
+fn edges_limit_the_bit_rate() {
+    // Common practice: unit interval ≥ 2 × transition time; a 1 ns edge
+    // (the multipoint-LVDS minimum) allows 500 Mbit/s.
+    let tx = format!("family = \"mlvds\"\nreceiver = \"type2\"\nload = \"5 pF\"\n{TIMING}");
+    let b = budget(
+        &bus(
+            "length = \"1 m\"\nimpedance = \"100 ohm\"\ndelay = \"5 ns/m\"",
+            &tx,
+            POLL,
+            &[0.0, 1.0],
+        ),
+        &[],
+    );
+    assert!(close(
+        b["limits"]["max_bit_rate_bit_s"].as_f64().unwrap(),
+        500e6,
+        1e-12
+    ));
+    // A 2-inch stub at 1 ns edges is within half the transition time at
+    // 4.9 ns/m (common practice: 2 inches at 1 ns); a 4-inch one is not.
+    let stub = |len: &str| format!("{tx}\nstub_length = \"{len}\"");
+    let line = "length = \"1 m\"\nimpedance = \"100 ohm\"\ndelay = \"4.9 ns/m\"";
+    let ok = budget(&bus(line, &stub("2 in"), POLL, &[0.0, 1.0]), &[]);
+    assert!(ok["warnings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .all(|w| w["code"] != "stub-too-long"));
+    let long = budget(&bus(line, &stub("4 in"), POLL, &[0.0, 1.0]), &[]);
+    assert!(long["warnings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .any(|w| w["code"] == "stub-too-long"));
+}
+
+#[test]
+fn turnaround_minima_agree_with_the_run() {
+    // Unequal spacing; slaves turn off slowly (25 ns) and the master quickly (9 ns).
+    let positions = [0.0, 0.7, 2.9, 3.1, 6.0];
+    let line = "length = \"6 m\"\nimpedance = \"100 ohm\"\ndelay = \"5 ns/m\"";
+    let tx = "drive_current = \"11.3 mA\"\nload = \"5 pF\"\nreceiver = \"type2\"\nenable_time = \"7 ns\"\ndisable_time = \"25 ns\"\nreceiver_delay = \"5 ns\"";
+    let mut text = bus(line, tx, POLL, &positions);
+    text = text.replace("[[node]]\nname = \"n0\"\nposition = \"0 m\"\n", "[[node]]\nname = \"n0\"\nposition = \"0 m\"\n[node.transceiver]\ndisable_time = \"9 ns\"\n");
+    let b = budget(&text, &["--verify"]);
+    let h = &b["handovers"][0];
+    // Worst: slave → master, disable 25 ns − receiver delay 5 ns.
+    assert_eq!(h["to"], "n0");
+    assert!(close(h["min_turnaround_s"].as_f64().unwrap(), 20e-9, 1e-12));
+    assert_eq!(b["verify"]["at_minimum_contention"], 0);
+    assert!(b["verify"]["below_minimum_contention"].as_u64().unwrap() > 0);
+    // The same on a token ring.
+    let ring = text.replace(
+        POLL,
+        "scheme = \"token\"\ntoken_bits = 24\nturnaround = \"50 ns\"",
+    );
+    let b = budget(&ring, &["--verify"]);
+    assert_eq!(b["verify"]["at_minimum_contention"], 0);
+    assert!(b["verify"]["below_minimum_contention"].as_u64().unwrap() > 0);
+}
+
+#[test]
+fn tdma_guard_minimum_matches_the_derivation() {
+    // The pair of tests/tdma.rs: P (2 m) fills its slot, R (9 m) runs 100
+    // ppm fast, compensation on: g* = ((dis + d)(1+ε) + ε(e + T))/(1 − ε),
+    // which the run confirms to 3 ps there. The budget's guard for P → R
+    // takes the worst clocks on both sides, here ε_P = 0, so it must equal
+    // (1+ε)(dis + d + O_R(1 − 1/(1+ε))) with O_R = L_P.
+    let eps: f64 = 100e-6;
+    let toml = r#"
+duration = "1 ms"
+[line]
+length = "10 m"
+impedance = "100 ohm"
+delay = "5 ns/m"
+[transceiver]
+drive_current = "11.3 mA"
+enable_time = "7 ns"
+disable_time = "9 ns"
+receiver_delay = "5 ns"
+load = "5 pF"
+receiver = "type2"
+[frame]
+bit_rate = "100 Mbit/s"
+overhead_bits = 48
+[access]
+scheme = "tdma"
+timekeeper = "tk"
+beacon_bits = 32
+guard = "50 ns"
+slots = [{ node = "p", length = "5657 ns" }, { node = "r", length = "8 us" }]
+compensate = true
+clock_ppm = { r = 100.0 }
+[[node]]
+name = "tk"
+position = "0 m"
+[[node]]
+name = "p"
+position = "2 m"
+traffic = { pattern = "periodic", period = "100 us", payload = "64 B" }
+[[node]]
+name = "r"
+position = "9 m"
+traffic = { pattern = "periodic", period = "100 us", payload = "64 B" }
+"#;
+    let b = budget(toml, &[]);
+    let pr = b["handovers"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|h| h["from"] == "p" && h["to"] == "r")
+        .unwrap()
+        .clone();
+    let d = (7.0 * common::loaded_tpd(5e-9, 100.0, 15e-12, 10.0) * 1e12).round() * 1e-12;
+    let o_r = 5657e-9;
+    let expected = (1.0 + eps) * (9e-9 + d + o_r * (1.0 - 1.0 / (1.0 + eps)));
+    assert!(
+        (pr["min_turnaround_s"].as_f64().unwrap() - expected).abs() < 2e-12,
+        "{pr} vs {expected}"
+    );
+}
+
+#[test]
+fn bad_budget_inputs() {
+    let line = "length = \"1 m\"\nimpedance = \"100 ohm\"\ndelay = \"5 ns/m\"";
+    // A preset without timing: the standard does not give it.
+    let err = refused(&bus(
+        line,
+        "family = \"mlvds\"\nload = \"5 pF\"",
+        POLL,
+        &[0.0, 1.0],
+    ));
+    assert!(
+        err.contains("enable_time") && err.contains("mlvds family leaves timing to the part"),
+        "{err}"
+    );
+    // Negative resistance.
+    let tx =
+        format!("drive_current = \"11.3 mA\"\nload = \"5 pF\"\nreceiver = \"type2\"\n{TIMING}");
+    let err = refused(&bus(
+        &format!("{line}\ntermination = \"-100 ohm\""),
+        &tx,
+        POLL,
+        &[0.0, 1.0],
+    ));
+    assert!(
+        err.contains("line.termination") && err.contains("negative resistance"),
+        "{err}"
+    );
+    // A bias on a line without terminations.
+    let err = refused(&bus(
+        &format!("{line}\ntermination = \"none\"\n[line.bias]\nsupply = \"5 V\"\npull_up = \"680 ohm\"\npull_down = \"680 ohm\""),
+        &tx,
+        POLL,
+        &[0.0, 1.0],
+    ));
+    assert!(
+        err.contains("line.bias") && err.contains("terminations"),
+        "{err}"
+    );
+    // An unknown family, with a hint.
+    let err = refused(&bus(
+        line,
+        &format!("{tx}\nfamily = \"mlvd\""),
+        POLL,
+        &[0.0, 1.0],
+    ));
+    assert!(err.contains("did you mean \"mlvds\"?"), "{err}");
+}
