@@ -25,6 +25,8 @@ pub struct Spec {
     pub duration: Picos,
     /// Simulated time excluded from the statistics (measured window is `warmup..duration`).
     pub warmup: Picos,
+    /// Which value of each transceiver time range the run uses.
+    pub timing: Timing,
     pub line: LineSpec,
     pub frame: FrameFormat,
     pub nodes: Vec<NodeSpec>,
@@ -40,6 +42,33 @@ impl Spec {
     /// Look a node up by name.
     pub fn node_id(&self, name: &str) -> Option<NodeId> {
         self.nodes.iter().position(|n| n.name == name)
+    }
+}
+
+/// Which value of a transceiver time range a run uses.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Timing {
+    /// The middle of each range.
+    Typical,
+    /// The hand-over worst case: longest enable and disable, shortest receiver delay.
+    Worst,
+    /// Drawn uniformly within each range, per node, from its own stream.
+    Random,
+}
+
+/// A time that may be a range.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct TimeRange {
+    pub min: Picos,
+    pub max: Picos,
+}
+
+impl TimeRange {
+    pub fn fixed(t: Picos) -> Self {
+        TimeRange { min: t, max: t }
+    }
+    pub fn typical(&self) -> Picos {
+        Picos(self.min.0 + (self.max.0 - self.min.0) / 2)
     }
 }
 
@@ -74,12 +103,16 @@ pub enum Termination {
 #[derive(Clone, Debug, PartialEq)]
 pub struct Transceiver {
     pub driver: Driver,
-    /// From driver enable asserted to output valid.
+    /// From driver enable asserted to output valid (the value this run uses).
     pub enable_time: Picos,
-    /// From enable released to output high-impedance.
+    /// From enable released to output high-impedance (the value this run uses).
     pub disable_time: Picos,
-    /// From the line at this node's position to the receiver output.
+    /// From the line at this node's position to the receiver output (the value this run uses).
     pub receiver_delay: Picos,
+    /// The ranges the three times were given as (equal ends for a single value).
+    pub enable_range: TimeRange,
+    pub disable_range: TimeRange,
+    pub receiver_range: TimeRange,
     /// Capacitance this node adds to the line (device, connector, stub).
     pub load_f: f64,
     pub receiver: ReceiverClass,

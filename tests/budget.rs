@@ -370,3 +370,71 @@ fn bad_budget_inputs() {
     ));
     assert!(err.contains("did you mean \"mlvds\"?"), "{err}");
 }
+
+#[test]
+fn time_ranges_take_the_worst_case() {
+    // Disable 5–12 ns, receiver delay 3–6 ns: the minimum turnaround is the
+    // slowest turn-off against the fastest receiver, 12 − 3 = 9 ns, and the
+    // run at that corner confirms it to the picosecond.
+    let line = "length = \"4 m\"\nimpedance = \"100 ohm\"\ndelay = \"5 ns/m\"";
+    let tx = "drive_current = \"11.3 mA\"\nload = \"5 pF\"\nreceiver = \"type2\"\nenable_time = [\"5 ns\", \"8 ns\"]\ndisable_time = [\"5 ns\", \"12 ns\"]\nreceiver_delay = [\"3 ns\", \"6 ns\"]";
+    let b = budget(&bus(line, tx, POLL, &[0.0, 1.5, 4.0]), &["--verify"]);
+    assert!(close(
+        b["handovers"][0]["min_turnaround_s"].as_f64().unwrap(),
+        9e-9,
+        1e-12
+    ));
+    assert_eq!(b["verify"]["at_minimum_contention"], 0);
+    assert!(b["verify"]["below_minimum_contention"].as_u64().unwrap() > 0);
+    // `timing` picks the run's values: worst-case, typical or random.
+    let run = |mode: &str| {
+        common::run_toml(&format!(
+            "timing = \"{mode}\"\n{}",
+            bus(line, tx, POLL, &[0.0, 1.5, 4.0])
+                .replace("turnaround = \"20 ns\"", "turnaround = \"7 ns\"")
+        ))
+    };
+    // A 7 ns turnaround: at the worst corner (12 ns off, 3 ns receiver) it
+    // overlaps; at the typical values (8.5 ns off, 4.5 ns receiver) it does not.
+    assert!(run("worst")["contention"]["events"].as_u64().unwrap() > 0);
+    assert_eq!(run("typical")["contention"]["events"], 0);
+    let a = run("random");
+    let b2 = run("random");
+    assert_eq!(
+        a["contention"], b2["contention"],
+        "random draws are reproducible"
+    );
+    // A range whose min exceeds its max is refused.
+    let err = refused(&bus(
+        line,
+        &tx.replace("[\"5 ns\", \"12 ns\"]", "[\"12 ns\", \"5 ns\"]"),
+        POLL,
+        &[0.0, 4.0],
+    ));
+    assert!(
+        err.contains("transceiver.disable_time") && err.contains("exceeds its max"),
+        "{err}"
+    );
+}
+
+#[test]
+fn limits_on_the_command_line() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("b.toml");
+    let tx = format!("family = \"mlvds\"\nreceiver = \"type2\"\nload = \"5 pF\"\n{TIMING}");
+    std::fs::write(
+        &path,
+        bus(
+            "length = \"1 m\"\nimpedance = \"100 ohm\"\ndelay = \"5 ns/m\"",
+            &tx,
+            POLL,
+            &[0.0, 1.0],
+        ),
+    )
+    .unwrap();
+    let out = halfwire(&["budget", path.to_str().unwrap(), "--max-rate"]);
+    assert!(String::from_utf8_lossy(&out.stdout).starts_with("500000000 bit/s"));
+    let out = halfwire(&["budget", path.to_str().unwrap(), "--max-nodes"]);
+    let n: usize = String::from_utf8_lossy(&out.stdout).trim().parse().unwrap();
+    assert!(n > 2);
+}

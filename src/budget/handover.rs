@@ -32,8 +32,10 @@ pub struct Handover {
 }
 
 fn turnaround(spec: &Spec, p: NodeId, r: NodeId, configured: Picos) -> Handover {
-    let dis = spec.nodes[p].transceiver.disable_time;
-    let rx = spec.nodes[r].transceiver.receiver_delay;
+    // Worst case: the releasing driver turns off as slowly, and the
+    // responder's receiver reacts as fast, as their ranges allow.
+    let dis = spec.nodes[p].transceiver.disable_range.max;
+    let rx = spec.nodes[r].transceiver.receiver_range.min;
     let min = dis.saturating_sub(rx);
     Handover {
         from: spec.nodes[p].name.clone(),
@@ -171,7 +173,8 @@ fn tdma(spec: &Spec, line: &LineModel, t: &crate::spec::TdmaSpec) -> Vec<Handove
         if t.compensate || n == tk {
             0.0
         } else {
-            (line.delay(tk, n) + spec.nodes[n].transceiver.receiver_delay).as_secs_f64()
+            // The smallest lag helps the next owner least.
+            (line.delay(tk, n) + spec.nodes[n].transceiver.receiver_range.min).as_secs_f64()
         }
     };
     // Owners in cycle order, with each slot's offset after the beacon's end;
@@ -191,7 +194,7 @@ fn tdma(spec: &Spec, line: &LineModel, t: &crate::spec::TdmaSpec) -> Vec<Handove
             continue;
         }
         let (ep, er) = (ppm(p), ppm(r));
-        let dis = spec.nodes[p].transceiver.disable_time.as_secs_f64();
+        let dis = spec.nodes[p].transceiver.disable_range.max.as_secs_f64();
         let d = line.delay(p, r).as_secs_f64();
         let clock = o_r * (1.0 / (1.0 - ep) - 1.0 / (1.0 + er));
         let need = ((1.0 + er) * (dis + d + clock - (lag(r) - lag(p)))).max(0.0);

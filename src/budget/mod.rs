@@ -87,9 +87,9 @@ impl Budget {
     }
 }
 
-/// `--verify`: the scenario run with every hand-over at its computed minimum,
-/// and with the worst one 1 ps below it. Response latencies are zeroed, so
-/// that the turnaround alone decides.
+/// `--verify`: the scenario run at the worst-case corner of its time ranges
+/// with every hand-over at its computed minimum, and with the worst one 1 ps
+/// below it. Response latencies are zeroed, so that the turnaround alone decides.
 #[derive(Clone, Debug, Serialize)]
 pub struct Verification {
     pub at_minimum_contention: u64,
@@ -120,9 +120,18 @@ pub fn verify(spec: &Spec, handovers: &[Handover]) -> Option<Verification> {
             _ => None,
         }
     };
-    let mut at = spec.clone();
+    // The minima are worst-case over the time ranges: run at that corner.
+    let mut worst_case = spec.clone();
+    worst_case.timing = crate::spec::Timing::Worst;
+    for n in &mut worst_case.nodes {
+        let t = &mut n.transceiver;
+        t.enable_time = t.enable_range.max;
+        t.disable_time = t.disable_range.max;
+        t.receiver_delay = t.receiver_range.min;
+    }
+    let mut at = worst_case.clone();
     set(&mut at, 0)?;
-    let mut below = spec.clone();
+    let mut below = worst_case;
     set(&mut below, -1)?;
     let run = |s: &Spec| crate::simulate(s).contention.events;
     Some(Verification {

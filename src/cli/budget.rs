@@ -24,6 +24,12 @@ pub struct BudgetArgs {
     /// Fraction of the transition time a stub's round trip may take.
     #[arg(long, default_value_t = 0.5, value_name = "FRACTION")]
     pub stub_fraction: f64,
+    /// Print only the largest node count (at this node density) that meets every amplitude and loading check.
+    #[arg(long, conflicts_with_all = ["max_rate", "verify"])]
+    pub max_nodes: bool,
+    /// Print only the highest bit rate the edges and stubs allow.
+    #[arg(long, conflicts_with = "verify")]
+    pub max_rate: bool,
 }
 
 pub fn budget(args: BudgetArgs) -> Result<u8, Failure> {
@@ -37,6 +43,22 @@ pub fn budget(args: BudgetArgs) -> Result<u8, Failure> {
             stub_fraction: args.stub_fraction,
         },
     );
+    if args.max_nodes {
+        print_stdout(&format!("{}\n", b.limits.max_nodes))?;
+        return Ok(0);
+    }
+    if args.max_rate {
+        return match b.limits.max_bit_rate_bit_s {
+            Some(r) => {
+                print_stdout(&format!("{r:.0} bit/s ({})\n", format_si(r, "bit/s")))?;
+                Ok(0)
+            }
+            None => Err(Failure::input(format!(
+                "{}: no transceiver gives a transition_time, so no rate limit follows from the edges",
+                args.file.display()
+            ))),
+        };
+    }
     let verification = if args.verify {
         let v = budget::verify(&spec, &b.handovers);
         if v.is_none() {

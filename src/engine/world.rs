@@ -125,7 +125,20 @@ pub struct World {
 }
 
 impl World {
-    pub(crate) fn new(spec: Spec, trace: Trace) -> Self {
+    pub(crate) fn new(mut spec: Spec, trace: Trace) -> Self {
+        if spec.timing == crate::spec::Timing::Random {
+            // Each node's times are drawn once, within their ranges, from its own stream.
+            use rand::Rng;
+            for node in &mut spec.nodes {
+                let mut rng = super::rng::stream(spec.seed, &node.name, "timing");
+                let t = &mut node.transceiver;
+                let mut draw =
+                    |r: crate::spec::TimeRange| Picos(rng.random_range(r.min.0..=r.max.0));
+                t.enable_time = draw(t.enable_range);
+                t.disable_time = draw(t.disable_range);
+                t.receiver_delay = draw(t.receiver_range);
+            }
+        }
         let line = LineModel::new(&spec);
         let bus = Bus::new(&spec, &line);
         let n = spec.nodes.len();

@@ -18,6 +18,7 @@ pub struct RawScenario {
     pub seed: Option<Spanned<u64>>,
     pub duration: S,
     pub warmup: Option<S>,
+    pub timing: Option<S>,
     pub line: Spanned<RawLine>,
     pub transceiver: Option<RawTransceiver>,
     pub frame: Spanned<RawFrame>,
@@ -61,9 +62,9 @@ pub struct RawTransceiver {
     pub stub_length: Option<S>,
     pub ground_offset: Option<S>,
     pub common_mode: Option<Spanned<Vec<S>>>,
-    pub enable_time: Option<S>,
-    pub disable_time: Option<S>,
-    pub receiver_delay: Option<S>,
+    pub enable_time: Option<Spanned<RawTime>>,
+    pub disable_time: Option<Spanned<RawTime>>,
+    pub receiver_delay: Option<Spanned<RawTime>>,
     pub load: Option<S>,
     pub receiver: Option<S>,
     pub thresholds: Option<Spanned<Vec<S>>>,
@@ -339,6 +340,36 @@ impl<'de> Deserialize<'de> for RawPersistence {
             }
             fn visit_f64<E: de::Error>(self, v: f64) -> Result<Self::Value, E> {
                 Ok(RawPersistence::Number(v))
+            }
+        }
+        d.deserialize_any(V)
+    }
+}
+
+/// A transceiver time: `"7 ns"` or a range `["5 ns", "9 ns"]`.
+#[derive(Clone, Debug)]
+pub enum RawTime {
+    One(String),
+    Range(Vec<S>),
+}
+
+impl<'de> Deserialize<'de> for RawTime {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        struct V;
+        impl<'de> Visitor<'de> for V {
+            type Value = RawTime;
+            fn expecting(&self, f: &mut fmt::Formatter) -> fmt::Result {
+                f.write_str("a time such as \"7 ns\" or a range such as [\"5 ns\", \"9 ns\"]")
+            }
+            fn visit_str<E: de::Error>(self, v: &str) -> Result<Self::Value, E> {
+                Ok(RawTime::One(v.to_owned()))
+            }
+            fn visit_seq<A: SeqAccess<'de>>(self, mut seq: A) -> Result<Self::Value, A::Error> {
+                let mut out = Vec::new();
+                while let Some(x) = seq.next_element()? {
+                    out.push(x);
+                }
+                Ok(RawTime::Range(out))
             }
         }
         d.deserialize_any(V)

@@ -6,10 +6,10 @@ use std::ops::Range;
 use toml::Spanned;
 
 use super::check::{R, V};
-use super::raw::{RawTransceiver, S};
+use super::raw::{RawTime, RawTransceiver, S};
 use crate::line::family::{self, Family};
 use crate::line::ReceiverClass;
-use crate::spec::{Driver, Transceiver, UNIT_LOAD_OHM};
+use crate::spec::{Driver, TimeRange, Timing, Transceiver, UNIT_LOAD_OHM};
 use crate::units::Dimension;
 
 const RECEIVERS: &[&str] = &["type1", "type2", "lvds", "tia485"];
@@ -56,15 +56,42 @@ impl<'a> Levels<'a> {
             .err(self.at.clone(), &format!("transceiver.{name}"), msg)
     }
 
-    fn time(&self, f: fn(&RawTransceiver) -> &Option<S>, name: &str) -> R<crate::units::Picos> {
-        match self.get(f, name) {
-            Some((s, k)) => self.v.time(&s, &k),
-            None => Err(self.missing(name, "timing")),
+    fn time(
+        &self,
+        f: fn(&RawTransceiver) -> &Option<Spanned<RawTime>>,
+        name: &str,
+    ) -> R<TimeRange> {
+        let Some((raw, k)) = self.get(f, name) else {
+            return Err(self.missing(name, "timing"));
+        };
+        match raw.get_ref() {
+            RawTime::One(s) => Ok(TimeRange::fixed(
+                self.v.time(&Spanned::new(raw.span(), s.clone()), &k)?,
+            )),
+            RawTime::Range(list) => {
+                if list.len() != 2 {
+                    return Err(self.v.err(
+                        raw.span(),
+                        &k,
+                        "a time range takes two times: [min, max]",
+                    ));
+                }
+                let (min, max) = (self.v.time(&list[0], &k)?, self.v.time(&list[1], &k)?);
+                if min > max {
+                    return Err(self.v.err(
+                        raw.span(),
+                        &k,
+                        format!("the range's min ({min}) exceeds its max ({max})"),
+                    ));
+                }
+                Ok(TimeRange { min, max })
+            }
         }
     }
 }
 
 pub fn resolve(
+    timing: Timing,
     v: &V,
     defaults: &RawTransceiver,
     over: Option<&RawTransceiver>,
@@ -86,9 +113,19 @@ pub fn resolve(
         l.family = family::lookup(chosen);
     }
     let driver = driver(&l)?;
-    let enable_time = l.time(|t| &t.enable_time, "enable_time")?;
-    let disable_time = l.time(|t| &t.disable_time, "disable_time")?;
-    let receiver_delay = l.time(|t| &t.receiver_delay, "receiver_delay")?;
+    let enable_range = l.time(|t| &t.enable_time, "enable_time")?;
+    let disable_range = l.time(|t| &t.disable_time, "disable_time")?;
+    let receiver_range = l.time(|t| &t.receiver_delay, "receiver_delay")?;
+    // Random draws happen in the engine, from each node's own stream; the
+    // spec carries the typical values meanwhile.
+    let (enable_time, disable_time, receiver_delay) = match timing {
+        Timing::Worst => (enable_range.max, disable_range.max, receiver_range.min),
+        Timing::Typical | Timing::Random => (
+            enable_range.typical(),
+            disable_range.typical(),
+            receiver_range.typical(),
+        ),
+    };
     let load_f = match l.get(|t| &t.load, "load") {
         Some((s, k)) => {
             let x = v.non_negative(&s, Dimension::Capacitance, &k)?;
@@ -151,6 +188,9 @@ pub fn resolve(
         enable_time,
         disable_time,
         receiver_delay,
+        enable_range,
+        disable_range,
+        receiver_range,
         load_f,
         receiver,
         input_ohm,

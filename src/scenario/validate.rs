@@ -56,9 +56,17 @@ pub fn validate(raw: &RawScenario, file: &str, src: &str) -> R<Spec> {
             format!("warmup ({warmup}) must be shorter than duration ({duration})"),
         ));
     }
+    let timing = match &raw.timing {
+        None => Timing::Typical,
+        Some(t) => match v.choice(t, "timing", &["typical", "worst", "random"])? {
+            "worst" => Timing::Worst,
+            "random" => Timing::Random,
+            _ => Timing::Typical,
+        },
+    };
     let line = validate_line(&v, raw.line.get_ref(), raw.line.span())?;
     let frame = validate_frame(&v, raw.frame.get_ref())?;
-    let nodes = validate_nodes(&v, raw, &line)?;
+    let nodes = validate_nodes(&v, raw, &line, timing)?;
     check_frame_times(&v, raw, &frame, &nodes)?;
     check_unique_ids(&v, raw, &nodes)?;
     check_arrival_count(&v, raw, &nodes, duration)?;
@@ -75,6 +83,7 @@ pub fn validate(raw: &RawScenario, file: &str, src: &str) -> R<Spec> {
         seed,
         duration,
         warmup,
+        timing,
         line,
         frame,
         nodes,
@@ -328,7 +337,7 @@ struct Pending<'r> {
     turnaround: Option<Picos>,
 }
 
-fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec) -> R<Vec<NodeSpec>> {
+fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec, timing: Timing) -> R<Vec<NodeSpec>> {
     let defaults = raw.transceiver.as_ref();
     let empty = RawTransceiver::default();
     let defaults = defaults.unwrap_or(&empty);
@@ -361,6 +370,7 @@ fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec) -> R<Vec<NodeSpec>>
             ));
         }
         let transceiver = super::transceiver::resolve(
+            timing,
             v,
             defaults,
             n.transceiver.as_ref(),
@@ -435,6 +445,7 @@ fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec) -> R<Vec<NodeSpec>>
                 ));
             }
             let transceiver = super::transceiver::resolve(
+                timing,
                 v,
                 defaults,
                 r.transceiver.as_ref(),
