@@ -171,13 +171,26 @@ fn render(b: &Budget, ver: Option<&budget::Verification>) -> String {
     if !b.warnings.is_empty() {
         let _ = writeln!(o);
         let _ = writeln!(o, "Warnings");
-        for w in &b.warnings {
-            let who = w
-                .node
-                .as_deref()
-                .map(|n| format!(" [{n}]"))
-                .unwrap_or_default();
+        // Warnings that say the same of several nodes share one line.
+        let mut i = 0;
+        while i < b.warnings.len() {
+            let w = &b.warnings[i];
+            let mut names: Vec<&str> = w.node.as_deref().into_iter().collect();
+            let mut j = i + 1;
+            while j < b.warnings.len()
+                && b.warnings[j].code == w.code
+                && b.warnings[j].message == w.message
+            {
+                names.extend(b.warnings[j].node.as_deref());
+                j += 1;
+            }
+            let who = match names.len() {
+                0 => String::new(),
+                1..=4 => format!(" [{}]", names.join(", ")),
+                n => format!(" [{}, … {} nodes]", names[..3].join(", "), n),
+            };
             let _ = writeln!(o, "  {}{}: {}", w.code, who, w.message);
+            i = j;
         }
     }
     o
