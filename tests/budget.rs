@@ -438,3 +438,41 @@ fn limits_on_the_command_line() {
     let n: usize = String::from_utf8_lossy(&out.stdout).trim().parse().unwrap();
     assert!(n > 2);
 }
+
+#[test]
+fn floating_window_bound_agrees_with_the_run() {
+    // Type-1 receivers (idle undefined), unequal spacing. With every
+    // turnaround at its floating-window bound for a 60 ns limit, the run's
+    // longest window is the limit; 1 ns longer turnarounds exceed it.
+    let positions = [0.0, 0.6, 2.5, 3.1];
+    let line = "length = \"4 m\"\nimpedance = \"100 ohm\"\ndelay = \"5 ns/m\"";
+    let tx = "drive_current = \"11.3 mA\"\nload = \"5 pF\"\nreceiver = \"type1\"\nenable_time = \"7 ns\"\ndisable_time = \"9 ns\"\nreceiver_delay = \"5 ns\"";
+    let text = bus(line, tx, POLL, &positions);
+    let b = budget(&text, &["--float-limit", "60 ns"]);
+    // Each responder's turnaround: the smallest bound over the hand-overs it answers.
+    let mut bound = std::collections::BTreeMap::<String, f64>::new();
+    for h in b["handovers"].as_array().unwrap() {
+        let max = h["max_turnaround_for_float_s"].as_f64().unwrap();
+        let e = bound
+            .entry(h["to"].as_str().unwrap().to_owned())
+            .or_insert(f64::INFINITY);
+        *e = e.min(max);
+    }
+    let with = |extra_ps: i64| {
+        let mut t = text.replace("turnaround = \"20 ns\"", "turnaround = \"1 s\"");
+        for (name, max) in &bound {
+            let ps = (max * 1e12).round() as i64 + extra_ps;
+            t = t.replace(
+                &format!("name = \"{name}\"\n"),
+                &format!("name = \"{name}\"\nturnaround = \"{ps} ps\"\n"),
+            );
+        }
+        common::run_toml(&t.replace("turnaround = \"1 s\"", "turnaround = \"20 ns\""))
+    };
+    let at = with(0);
+    let longest = at["floating"]["longest_s"].as_f64().unwrap();
+    assert!((longest - 60e-9).abs() < 2e-12, "longest window {longest}");
+    assert_eq!(at["contention"]["events"], 0);
+    let over = with(1000);
+    assert!(over["floating"]["longest_s"].as_f64().unwrap() > 60.5e-9);
+}

@@ -252,6 +252,38 @@ pub fn warnings(
             );
         }
     }
+    // No turnaround can avoid both an overlap and a too-long floating window.
+    for h in handovers {
+        if let Some(max) = h.max_turnaround_for_float_s {
+            if max < h.min_turnaround_s {
+                warn(
+                    &mut out,
+                    "float-limit-unreachable",
+                    Some(&h.to),
+                    format!(
+                        "{} → {}: avoiding overlap needs at least {}, but the floating-window limit allows at most {}",
+                        h.from,
+                        h.to,
+                        crate::units::format_seconds(h.min_turnaround_s),
+                        crate::units::format_seconds(max)
+                    ),
+                );
+            } else if h.configured_s > max {
+                warn(
+                    &mut out,
+                    "float-limit-exceeded",
+                    Some(&h.to),
+                    format!(
+                        "{} → {}: a {} turnaround leaves the line floating longer than the limit allows (at most {})",
+                        h.from,
+                        h.to,
+                        crate::units::format_seconds(h.configured_s),
+                        crate::units::format_seconds(max)
+                    ),
+                );
+            }
+        }
+    }
     // Hand-overs the scenario sets too short.
     for h in handovers {
         if !h.ok {

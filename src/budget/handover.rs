@@ -25,6 +25,11 @@ pub struct Handover {
     /// What the scenario sets, and whether it is enough.
     pub configured_s: f64,
     pub ok: bool,
+    /// With a floating-window limit: the longest turnaround that keeps every
+    /// window at an undefined-idle receiver within it (`None`: no such
+    /// receiver, or no limit asked for).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub max_turnaround_for_float_s: Option<f64>,
     #[serde(skip)]
     pub min: Picos,
     #[serde(skip)]
@@ -44,13 +49,33 @@ fn turnaround(spec: &Spec, p: NodeId, r: NodeId, configured: Picos) -> Handover 
         min_turnaround_s: min.as_secs_f64(),
         configured_s: configured.as_secs_f64(),
         ok: configured >= min,
+        max_turnaround_for_float_s: None,
         min,
         responder: Some(r),
     }
 }
 
-/// Every hand-over the scheme makes, worst (largest minimum) first.
-pub fn handovers(spec: &Spec, line: &LineModel) -> Vec<Handover> {
+/// The longest turnaround of hand-over P → R that keeps the undriven gap at
+/// every hazard receiver j within `limit`. The gap at j lasts
+/// T_R + r_R − disable_P + d(P,R) + d(R,j) − d(P,j), so
+/// T_R ≤ limit − r_R + disable_P − max_j [d(P,R) + d(R,j) − d(P,j)]
+/// (best case over the time ranges: the shortest disable, the longest
+/// receiver delay, since this is an upper bound).
+pub fn float_max(spec: &Spec, line: &LineModel, p: NodeId, r: NodeId, limit: Picos) -> Option<f64> {
+    let worst = (0..spec.nodes.len())
+        .filter(|&j| line.idle_state(spec, j) == crate::line::IdleState::Undefined)
+        .map(|j| {
+            (line.delay(p, r) + line.delay(r, j)).as_secs_f64() - line.delay(p, j).as_secs_f64()
+        })
+        .reduce(f64::max)?;
+    let dis = spec.nodes[p].transceiver.disable_range.min.as_secs_f64();
+    let rx = spec.nodes[r].transceiver.receiver_range.max.as_secs_f64();
+    Some(limit.as_secs_f64() - rx + dis - worst)
+}
+
+/// Every hand-over the scheme makes, worst (largest minimum) first; with
+/// `float_limit`, turnaround hand-overs also get their floating-window bound.
+pub fn handovers(spec: &Spec, line: &LineModel, float_limit: Option<Picos>) -> Vec<Handover> {
     let mut out = Vec::new();
     match &spec.access {
         AccessSpec::Polling(p) => {
@@ -102,6 +127,15 @@ pub fn handovers(spec: &Spec, line: &LineModel) -> Vec<Handover> {
             out.push(whole_bus("bit", min, spec.frame.bit_time()));
         }
     }
+    if let Some(limit) = float_limit {
+        for h in &mut out {
+            if h.kind == "turnaround" {
+                let p = spec.node_id(&h.from).expect("hand-over names a node");
+                let r = h.responder.expect("turnarounds have a responder");
+                h.max_turnaround_for_float_s = float_max(spec, line, p, r, limit);
+            }
+        }
+    }
     out.sort_by_key(|h| std::cmp::Reverse(h.min));
     out
 }
@@ -114,6 +148,7 @@ fn whole_bus(kind: &'static str, min: Picos, configured: Picos) -> Handover {
         min_turnaround_s: min.as_secs_f64(),
         configured_s: configured.as_secs_f64(),
         ok: configured >= min,
+        max_turnaround_for_float_s: None,
         min,
         responder: None,
     }
@@ -206,6 +241,7 @@ fn tdma(spec: &Spec, line: &LineModel, t: &crate::spec::TdmaSpec) -> Vec<Handove
             min_turnaround_s: min.as_secs_f64(),
             configured_s: t.guard.as_secs_f64(),
             ok: t.guard >= min,
+            max_turnaround_for_float_s: None,
             min,
             responder: Some(r),
         });

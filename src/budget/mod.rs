@@ -24,11 +24,16 @@ pub struct Options {
     /// A stub is short while its round-trip delay stays within this fraction
     /// of the transition time (published values range from 1/2 to 1/20).
     pub stub_fraction: f64,
+    /// Longest floating-line window tolerated at undefined-idle receivers.
+    pub float_limit: Option<crate::units::Picos>,
 }
 
 impl Default for Options {
     fn default() -> Self {
-        Options { stub_fraction: 0.5 }
+        Options {
+            stub_fraction: 0.5,
+            float_limit: None,
+        }
     }
 }
 
@@ -72,7 +77,7 @@ impl Budget {
             unit_loads: line.unit_loads,
             unit_load_limit: crate::spec::MAX_UNIT_LOADS,
         };
-        let handovers = handover::handovers(spec, &line);
+        let handovers = handover::handovers(spec, &line, options.float_limit);
         let warnings = checks::warnings(spec, &line, &handovers, options);
         Budget {
             schema: SCHEMA,

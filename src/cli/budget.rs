@@ -24,6 +24,10 @@ pub struct BudgetArgs {
     /// Fraction of the transition time a stub's round trip may take.
     #[arg(long, default_value_t = 0.5, value_name = "FRACTION")]
     pub stub_fraction: f64,
+    /// Longest floating-line window to tolerate at receivers without failsafe
+    /// (e.g. "20 ns"): adds each turnaround's upper bound.
+    #[arg(long, value_name = "TIME")]
+    pub float_limit: Option<String>,
     /// Print only the largest node count (at this node density) that meets every amplitude and loading check.
     #[arg(long, conflicts_with_all = ["max_rate", "verify"])]
     pub max_nodes: bool,
@@ -36,11 +40,20 @@ pub fn budget(args: BudgetArgs) -> Result<u8, Failure> {
     if !(args.stub_fraction > 0.0 && args.stub_fraction <= 1.0) {
         return Err(Failure::input("--stub-fraction must lie in (0, 1]"));
     }
+    let float_limit = args
+        .float_limit
+        .as_deref()
+        .map(|t| {
+            halfwire::units::parse_time(t)
+                .map_err(|e| Failure::input(format!("--float-limit: {e}")))
+        })
+        .transpose()?;
     let spec = halfwire::scenario::load(&args.file)?;
     let b = Budget::compute(
         &spec,
         Options {
             stub_fraction: args.stub_fraction,
+            float_limit,
         },
     );
     if args.max_nodes {
@@ -159,6 +172,16 @@ fn render(b: &Budget, ver: Option<&budget::Verification>) -> String {
             format_seconds(h.configured_s),
             if h.ok { "" } else { "  too short" }
         );
+        if let Some(max) = h.max_turnaround_for_float_s {
+            let _ = writeln!(
+                o,
+                "  {:<14} {:<14} {:<11} {:>12}",
+                "",
+                "",
+                "  float max",
+                format_seconds(max)
+            );
+        }
     }
     if let Some(v) = ver {
         let _ = writeln!(o);
