@@ -476,3 +476,121 @@ fn floating_window_bound_agrees_with_the_run() {
     let over = with(1000);
     assert!(over["floating"]["longest_s"].as_f64().unwrap() > 60.5e-9);
 }
+
+#[test]
+fn run_and_budget_agree_on_every_shared_figure() {
+    for entry in std::fs::read_dir("scenarios").unwrap() {
+        let path = entry.unwrap().path();
+        if path.extension().and_then(|e| e.to_str()) != Some("toml") {
+            continue;
+        }
+        let p = path.to_str().unwrap();
+        let run: Value =
+            serde_json::from_slice(&halfwire(&["run", p, "--format", "json"]).stdout).unwrap();
+        let b: Value =
+            serde_json::from_slice(&halfwire(&["budget", p, "--format", "json"]).stdout).unwrap();
+        assert_eq!(run["line"], b["line"], "{p}");
+    }
+}
+
+#[test]
+fn termination_per_end_and_current_ranges() {
+    // Near end open, far end 100 Ω on a 100 Ω line: the near-end driver sees
+    // Z' = 100 Ω, Γ_near = +1 (open), Γ_far = 0. A drive-current range counts
+    // with its weakest value: 3.0 mA → 300 mV.
+    let line = "length = \"1 m\"\nimpedance = \"100 ohm\"\ndelay = \"5 ns/m\"\ntermination = { far = \"100 ohm\" }";
+    let tx = format!(
+        "drive_current = [\"3.0 mA\", \"4.5 mA\"]\nload = \"0 pF\"\nreceiver = \"lvds\"\n{TIMING}"
+    );
+    let b = budget(&bus(line, &tx, POLL, &[0.0, 1.0]), &[]);
+    assert_eq!(b["line"]["reflection_near"], 1.0);
+    assert_eq!(b["line"]["reflection_far"], 0.0);
+    assert!(close(
+        b["nodes"]["n0"]["amplitude_step_v"].as_f64().unwrap(),
+        0.300,
+        1e-9
+    ));
+    // 120 Ω at both ends of a 100 Ω line: Γ = 20/220 = +0.0909 at each.
+    let line = "length = \"1 m\"\nimpedance = \"100 ohm\"\ndelay = \"5 ns/m\"\ntermination = { near = \"120 ohm\", far = \"120 ohm\" }";
+    let b = budget(&bus(line, &tx, POLL, &[0.0, 1.0]), &[]);
+    assert!(close(
+        b["line"]["reflection_near"].as_f64().unwrap(),
+        20.0 / 220.0,
+        1e-12
+    ));
+    assert!(
+        b["limits"]["max_bit_rate_bit_s"].is_null(),
+        "no transition time given"
+    );
+}
+
+#[test]
+fn tdma_guard_minimum_holds_in_the_run() {
+    // P fills its slot (L_P = g + e + T), R's clock runs 100 ppm fast: at the
+    // budget's minimum guard the run shows no contention, a little below it does.
+    let scenario = |g_ps: u64| {
+        format!(
+            r#"
+duration = "20 ms"
+[line]
+length = "10 m"
+impedance = "100 ohm"
+delay = "5 ns/m"
+[transceiver]
+drive_current = "11.3 mA"
+enable_time = "7 ns"
+disable_time = "9 ns"
+receiver_delay = "5 ns"
+load = "5 pF"
+receiver = "type2"
+[frame]
+bit_rate = "100 Mbit/s"
+overhead_bits = 48
+[access]
+scheme = "tdma"
+timekeeper = "tk"
+beacon_bits = 32
+guard = "{g_ps} ps"
+slots = [{{ node = "p", length = "{lp} ps" }}, {{ node = "r", length = "8 us" }}]
+compensate = true
+clock_ppm = {{ r = 100.0 }}
+[[node]]
+name = "tk"
+position = "0 m"
+[[node]]
+name = "p"
+position = "2 m"
+traffic = {{ pattern = "poisson", rate = "1000000/s", payload = "64 B", queue_limit = 10 }}
+[[node]]
+name = "r"
+position = "9 m"
+traffic = {{ pattern = "poisson", rate = "1000000/s", payload = "64 B", queue_limit = 10 }}
+"#,
+            lp = g_ps + 7_000 + 5_600_000
+        )
+    };
+    // The budget's P → R minimum depends on the guard (through O_R = L_P):
+    // iterate to the fixed point g = min(g).
+    let mut g = 45_000u64;
+    for _ in 0..5 {
+        let b = budget(&scenario(g), &[]);
+        let h = b["handovers"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|h| h["from"] == "p" && h["to"] == "r")
+            .unwrap()
+            .clone();
+        g = (h["min_turnaround_s"].as_f64().unwrap() * 1e12).round() as u64;
+    }
+    let at = common::run_toml(&scenario(g + 2));
+    let below = common::run_toml(&scenario(g - 3));
+    assert_eq!(
+        at["contention"]["events"], 0,
+        "at the minimum guard {g} ps (+2 ps rounding)"
+    );
+    assert!(
+        below["contention"]["events"].as_u64().unwrap() > 0,
+        "below the minimum guard"
+    );
+}

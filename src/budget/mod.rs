@@ -40,7 +40,7 @@ impl Default for Options {
 #[derive(Clone, Debug, Serialize)]
 pub struct Limits {
     /// From the edges (unit interval ≥ 2 × transition time) and the stubs.
-    #[serde(skip_serializing_if = "Option::is_none")]
+    /// `null` when no transceiver gives a transition time.
     pub max_bit_rate_bit_s: Option<f64>,
     /// Largest node count at this node density that meets the amplitude and loading checks.
     pub max_nodes: usize,

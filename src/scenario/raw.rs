@@ -34,7 +34,7 @@ pub struct RawLine {
     pub impedance: S,
     pub delay: Option<S>,
     pub velocity_factor: Option<Spanned<f64>>,
-    pub termination: Option<S>,
+    pub termination: Option<Spanned<RawTermination>>,
     pub bias: Option<Spanned<RawBias>>,
 }
 
@@ -52,7 +52,7 @@ pub struct RawBias {
 pub struct RawTransceiver {
     pub family: Option<S>,
     pub driver: Option<S>,
-    pub drive_current: Option<S>,
+    pub drive_current: Option<Spanned<RawTime>>,
     pub output_voltage: Option<S>,
     pub output_resistance: Option<S>,
     pub min_output: Option<Spanned<Vec<S>>>,
@@ -346,7 +346,43 @@ impl<'de> Deserialize<'de> for RawPersistence {
     }
 }
 
-/// A transceiver time: `"7 ns"` or a range `["5 ns", "9 ns"]`.
+/// `termination = "both-ends"` (a word or a resistance) or `{ near = …, far = … }`.
+#[derive(Debug)]
+pub enum RawTermination {
+    Word(String),
+    Ends(RawEnds),
+}
+
+/// Each end: a resistance or `"matched"`; a missing end is open.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawEnds {
+    pub near: Option<S>,
+    pub far: Option<S>,
+}
+
+impl<'de> Deserialize<'de> for RawTermination {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        struct V;
+        impl<'de> Visitor<'de> for V {
+            type Value = RawTermination;
+            fn expecting(&self, f: &mut fmt::Formatter) -> fmt::Result {
+                f.write_str("\"both-ends\", \"far-end\", \"none\", a resistance, or { near = ..., far = ... }")
+            }
+            fn visit_str<E: de::Error>(self, v: &str) -> Result<Self::Value, E> {
+                Ok(RawTermination::Word(v.to_owned()))
+            }
+            fn visit_map<A: MapAccess<'de>>(self, map: A) -> Result<Self::Value, A::Error> {
+                Ok(RawTermination::Ends(RawEnds::deserialize(
+                    de::value::MapAccessDeserializer::new(map),
+                )?))
+            }
+        }
+        d.deserialize_any(V)
+    }
+}
+
+/// A transceiver time (or current): `"7 ns"` or a range `["5 ns", "9 ns"]`.
 #[derive(Clone, Debug)]
 pub enum RawTime {
     One(String),

@@ -248,9 +248,35 @@ fn driver(l: &Levels) -> R<Driver> {
     };
     if kind == "current" {
         return match current {
-            Some((s, k)) => Ok(Driver::Current {
-                amps: v.within(&s, Dimension::Current, &k, 1e-9, 1.0, "A")?,
-            }),
+            // A range counts with its weakest value: amplitudes are worst-case.
+            Some((raw, k)) => {
+                let amps = match raw.get_ref() {
+                    RawTime::One(s) => v.within(
+                        &Spanned::new(raw.span(), s.clone()),
+                        Dimension::Current,
+                        &k,
+                        1e-9,
+                        1.0,
+                        "A",
+                    )?,
+                    RawTime::Range(list) => {
+                        if list.len() != 2 {
+                            return Err(v.err(
+                                raw.span(),
+                                &k,
+                                "a current range takes two values: [min, max]",
+                            ));
+                        }
+                        let lo = v.within(&list[0], Dimension::Current, &k, 1e-9, 1.0, "A")?;
+                        let hi = v.within(&list[1], Dimension::Current, &k, 1e-9, 1.0, "A")?;
+                        if lo > hi {
+                            return Err(v.err(raw.span(), &k, "the range's min exceeds its max"));
+                        }
+                        lo
+                    }
+                };
+                Ok(Driver::Current { amps })
+            }
             None => match l.family.as_ref().map(|f| f.driver) {
                 Some(d @ Driver::Current { .. }) => Ok(d),
                 _ => Err(l.missing("drive_current", "the drive current")),

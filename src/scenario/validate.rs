@@ -155,28 +155,52 @@ fn validate_line(v: &V, l: &RawLine, at: Range<usize>) -> R<LineSpec> {
             near_ohm: None,
             far_ohm: None,
         },
-        Some(t) => {
-            let s = t.get_ref().trim();
-            match s {
-                "both-ends" => Termination::BothEnds {
-                    near_ohm: None,
-                    far_ohm: None,
-                },
-                "far-end" => Termination::FarEnd { far_ohm: None },
-                "none" => Termination::Unterminated,
-                _ if s.starts_with(|c: char| c.is_ascii_digit() || c == '-' || c == '.') => {
-                    let r = v.positive(t, Dimension::Resistance, "line.termination")?;
-                    Termination::BothEnds {
-                        near_ohm: Some(r),
-                        far_ohm: Some(r),
+        Some(t) => match t.get_ref() {
+            RawTermination::Word(word) => {
+                let word = word.trim();
+                let spanned = Spanned::new(t.span(), word.to_owned());
+                match word {
+                    "both-ends" => Termination::BothEnds {
+                        near_ohm: None,
+                        far_ohm: None,
+                    },
+                    "far-end" => Termination::FarEnd { far_ohm: None },
+                    "none" => Termination::Unterminated,
+                    _ if word.starts_with(|c: char| c.is_ascii_digit() || c == '-' || c == '.') => {
+                        let r = v.positive(&spanned, Dimension::Resistance, "line.termination")?;
+                        Termination::BothEnds {
+                            near_ohm: Some(r),
+                            far_ohm: Some(r),
+                        }
+                    }
+                    _ => {
+                        v.choice(&spanned, "line.termination", TERMINATIONS)?;
+                        unreachable!()
                     }
                 }
-                _ => {
-                    v.choice(t, "line.termination", TERMINATIONS)?;
-                    unreachable!()
+            }
+            RawTermination::Ends(ends) => {
+                let end = |e: &Option<S>, key: &str| -> R<Option<Option<f64>>> {
+                    match e {
+                        None => Ok(None),
+                        Some(s) if s.get_ref().trim() == "matched" => Ok(Some(None)),
+                        Some(s) => Ok(Some(Some(v.positive(s, Dimension::Resistance, key)?))),
+                    }
+                };
+                match (end(&ends.near, "line.termination.near")?, end(&ends.far, "line.termination.far")?) {
+                    (Some(near_ohm), Some(far_ohm)) => Termination::BothEnds { near_ohm, far_ohm },
+                    (None, Some(far_ohm)) => Termination::FarEnd { far_ohm },
+                    (None, None) => Termination::Unterminated,
+                    (Some(_), None) => {
+                        return Err(v.err(
+                            t.span(),
+                            "line.termination",
+                            "terminate the far end (multidrop) or both ends; a near end alone is not supported",
+                        ))
+                    }
                 }
             }
-        }
+        },
     };
     let bias = match &l.bias {
         None => None,
