@@ -10,6 +10,7 @@
 
 pub mod budget;
 pub mod bus;
+pub mod check;
 pub mod engine;
 pub mod line;
 pub mod report;

@@ -31,6 +31,61 @@ pub struct Spec {
     pub frame: FrameFormat,
     pub nodes: Vec<NodeSpec>,
     pub access: AccessSpec,
+    /// Requirements on the report (`[[expect]]`), checked by `halfwire check`.
+    pub expect: Vec<Expectation>,
+}
+
+/// A comparison of an expectation.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Op {
+    Lt,
+    Le,
+    Eq,
+    Ge,
+    Gt,
+}
+
+impl Op {
+    pub fn symbol(self) -> &'static str {
+        match self {
+            Op::Lt => "<",
+            Op::Le => "<=",
+            Op::Eq => "==",
+            Op::Ge => ">=",
+            Op::Gt => ">",
+        }
+    }
+    pub fn holds(self, measured: f64, required: f64) -> bool {
+        match self {
+            Op::Lt => measured < required,
+            Op::Le => measured <= required,
+            Op::Eq => measured == required,
+            Op::Ge => measured >= required,
+            Op::Gt => measured > required,
+        }
+    }
+}
+
+/// An expectation as written; its metric path and value unit are checked
+/// against the report by `halfwire check`, with the positions kept here.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Expectation {
+    pub metric: String,
+    pub op: Op,
+    /// The value as written: a string with a unit, or a number.
+    pub value: ExpectValue,
+    pub message: Option<String>,
+    /// Require the bound at the 95 % confidence limit (with replications).
+    pub confidence: bool,
+    /// 1-based line and column of the metric and of the value, for errors.
+    pub metric_at: (usize, usize),
+    pub value_at: (usize, usize),
+}
+
+#[derive(Clone, Debug, PartialEq)]
+pub enum ExpectValue {
+    Text(String),
+    Number(f64),
 }
 
 impl Spec {

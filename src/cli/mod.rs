@@ -1,6 +1,8 @@
 //! Command-line interface: one file per command.
 
 mod budget;
+mod check;
+mod diff;
 mod output;
 mod run;
 
@@ -22,6 +24,10 @@ enum Command {
     Run(run::RunArgs),
     /// Check the line electrically and compute the minimum safe turnaround of every hand-over.
     Budget(budget::BudgetArgs),
+    /// Run scenario files and check their [[expect]] requirements (exit 1 if any fails).
+    Check(check::CheckArgs),
+    /// Compare two JSON reports metric by metric (exit 1 on a regression beyond tolerance).
+    Diff(diff::DiffArgs),
 }
 
 /// A failure the command reports: a message and its exit status.
@@ -72,6 +78,8 @@ pub fn main() -> ExitCode {
     let result = match cli.command {
         Command::Run(args) => run::run(args),
         Command::Budget(args) => budget::budget(args),
+        Command::Check(args) => check::check(args),
+        Command::Diff(args) => diff::diff(args),
     };
     match result {
         Ok(code) => ExitCode::from(code),

@@ -25,6 +25,18 @@ pub struct RawScenario {
     pub access: Spanned<RawAccess>,
     pub node: Option<Vec<Spanned<RawNode>>>,
     pub nodes: Option<Spanned<RawNodeRow>>,
+    pub expect: Option<Vec<Spanned<RawExpect>>>,
+}
+
+/// `[[expect]]`: a requirement on a report metric.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawExpect {
+    pub metric: S,
+    pub op: S,
+    pub value: Spanned<toml::Value>,
+    pub message: Option<S>,
+    pub confidence: Option<Spanned<bool>>,
 }
 
 #[derive(Debug, Deserialize)]

@@ -78,7 +78,9 @@ pub fn validate(raw: &RawScenario, file: &str, src: &str) -> R<Spec> {
         &line,
         &frame,
     )?;
+    let expect = validate_expectations(&v, raw)?;
     Ok(Spec {
+        expect,
         name,
         seed,
         duration,
@@ -248,6 +250,44 @@ fn validate_line(v: &V, l: &RawLine, at: Range<usize>) -> R<LineSpec> {
         delay_s_per_m,
         termination,
     })
+}
+
+fn validate_expectations(v: &V, raw: &RawScenario) -> R<Vec<Expectation>> {
+    let mut out = Vec::new();
+    for (i, e) in raw.expect.iter().flatten().enumerate() {
+        let key = format!("expect[{i}]");
+        let e = e.get_ref();
+        let op = match v.choice(&e.op, &format!("{key}.op"), &["<", "<=", "==", ">=", ">"])? {
+            "<" => Op::Lt,
+            "<=" => Op::Le,
+            "==" => Op::Eq,
+            ">=" => Op::Ge,
+            _ => Op::Gt,
+        };
+        let value = match e.value.get_ref() {
+            toml::Value::String(s) => ExpectValue::Text(s.clone()),
+            toml::Value::Integer(n) => ExpectValue::Number(*n as f64),
+            toml::Value::Float(x) => ExpectValue::Number(*x),
+            _ => {
+                return Err(v.err(
+                    e.value.span(),
+                    &format!("{key}.value"),
+                    "an expectation's value is a number or a quantity with a unit, e.g. \"150 us\"",
+                ))
+            }
+        };
+        let at = |span: Range<usize>| super::error::line_col(v.src, span.start);
+        out.push(Expectation {
+            metric: e.metric.get_ref().clone(),
+            op,
+            value,
+            message: e.message.as_ref().map(|m| m.get_ref().clone()),
+            confidence: e.confidence.as_ref().is_some_and(|c| *c.get_ref()),
+            metric_at: at(e.metric.span()),
+            value_at: at(e.value.span()),
+        });
+    }
+    Ok(out)
 }
 
 /// Traffic identifiers must be unique across the bus.

@@ -1,0 +1,223 @@
+//! `halfwire check`: run scenario files and evaluate their expectations.
+
+use std::fmt::Write;
+use std::path::{Path, PathBuf};
+
+use clap::Args;
+use halfwire::check::{self, Outcome};
+use halfwire::spec::Spec;
+
+use super::output::{check_writable, print_stdout, AtomicFile};
+use super::run::Format;
+use super::Failure;
+
+#[derive(Debug, Args)]
+pub struct CheckArgs {
+    /// Scenario files and/or folders (searched recursively for *.toml).
+    #[arg(required = true)]
+    pub paths: Vec<PathBuf>,
+    /// Output format on stdout.
+    #[arg(long, value_enum, default_value_t = Format::Text)]
+    pub format: Format,
+    /// Also write JUnit XML (one test case per expectation, one suite per scenario).
+    #[arg(long, value_name = "FILE")]
+    pub junit: Option<PathBuf>,
+    /// Scenarios run at once (default: the number of cores).
+    #[arg(long)]
+    pub jobs: Option<usize>,
+}
+
+/// One scenario's result.
+#[derive(Debug, serde::Serialize)]
+pub struct ScenarioResult {
+    pub file: String,
+    pub name: String,
+    pub outcomes: Vec<Outcome>,
+    pub wall_s: f64,
+}
+
+fn collect(paths: &[PathBuf]) -> Result<Vec<PathBuf>, Failure> {
+    fn walk(dir: &Path, out: &mut Vec<PathBuf>) -> std::io::Result<()> {
+        let mut entries: Vec<_> = std::fs::read_dir(dir)?.collect::<Result<_, _>>()?;
+        entries.sort_by_key(|e| e.path());
+        for e in entries {
+            let p = e.path();
+            if p.is_dir() {
+                walk(&p, out)?;
+            } else if p.extension().and_then(|x| x.to_str()) == Some("toml") {
+                out.push(p);
+            }
+        }
+        Ok(())
+    }
+    let mut out = Vec::new();
+    for p in paths {
+        if p.is_dir() {
+            walk(p, &mut out).map_err(|e| Failure::input(format!("{}: cannot read the folder: {e}", p.display())))?;
+        } else if p.exists() {
+            out.push(p.clone());
+        } else {
+            return Err(Failure::input(format!("{}: no such file or folder", p.display())));
+        }
+    }
+    if out.is_empty() {
+        return Err(Failure::input(format!(
+            "no scenario files (*.toml) in {}",
+            paths.iter().map(|p| p.display().to_string()).collect::<Vec<_>>().join(", ")
+        )));
+    }
+    Ok(out)
+}
+
+/// Run one scenario and evaluate its expectations (all validation first).
+fn prepare(path: &Path) -> Result<(Spec, Vec<check::Resolved>), Failure> {
+    let spec = halfwire::scenario::load(path)?;
+    // The metric names a report of this scenario has: from a run of no length.
+    let mut probe = spec.clone();
+    probe.warmup = halfwire::units::Picos::ZERO;
+    probe.duration = halfwire::units::Picos(1);
+    let metrics = check::flatten(&serde_json::to_value(halfwire::simulate(&probe)).expect("serializable"));
+    let resolved = check::resolve(&path.display().to_string(), &spec.expect, &metrics)?;
+    Ok((spec, resolved))
+}
+
+pub fn check(args: CheckArgs) -> Result<u8, Failure> {
+    let files = collect(&args.paths)?;
+    if let Some(j) = &args.junit {
+        check_writable(j, &files.iter().map(PathBuf::as_path).collect::<Vec<_>>())?;
+    }
+    // Validate everything before running anything.
+    let mut work = Vec::new();
+    for f in &files {
+        let (spec, resolved) = prepare(f)?;
+        work.push((f.clone(), spec, resolved));
+    }
+    let jobs = args.jobs.unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |n| n.get())).max(1);
+    let results = run_all(&work, jobs);
+    let failed: usize = results.iter().map(|r| r.outcomes.iter().filter(|o| !o.pass).count()).sum();
+    let total: usize = results.iter().map(|r| r.outcomes.len()).sum();
+    if let Some(path) = &args.junit {
+        let mut f = AtomicFile::create(path)?;
+        f.write(junit(&results).as_bytes())?;
+        f.commit()?;
+    }
+    let out = match args.format {
+        Format::Json => {
+            let v = serde_json::json!({ "scenarios": results, "expectations": total, "failed": failed });
+            let mut s = serde_json::to_string_pretty(&v).expect("serializable");
+            s.push('\n');
+            s
+        }
+        Format::Text => render(&results, total, failed),
+    };
+    print_stdout(&out)?;
+    Ok(if failed > 0 { 1 } else { 0 })
+}
+
+/// Run the scenarios on `jobs` threads; results in file order whatever the
+/// finishing order, so the output never depends on `jobs`.
+fn run_all(work: &[(PathBuf, Spec, Vec<check::Resolved>)], jobs: usize) -> Vec<ScenarioResult> {
+    let next = std::sync::atomic::AtomicUsize::new(0);
+    let slots: Vec<std::sync::Mutex<Option<ScenarioResult>>> = work.iter().map(|_| std::sync::Mutex::new(None)).collect();
+    std::thread::scope(|s| {
+        for _ in 0..jobs.min(work.len()) {
+            s.spawn(|| loop {
+                let i = next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+                let Some((file, spec, resolved)) = work.get(i) else { break };
+                let started = std::time::Instant::now();
+                let report = serde_json::to_value(halfwire::simulate(spec)).expect("serializable");
+                let metrics = check::flatten(&report);
+                let outcomes = resolved.iter().map(|r| check::evaluate(r, &metrics, None)).collect();
+                *slots[i].lock().expect("no poisoned slot") = Some(ScenarioResult {
+                    file: file.display().to_string(),
+                    name: spec.name.clone(),
+                    outcomes,
+                    wall_s: started.elapsed().as_secs_f64(),
+                });
+            });
+        }
+    });
+    slots.into_iter().map(|m| m.into_inner().expect("no poisoned slot").expect("every scenario ran")).collect()
+}
+
+fn render(results: &[ScenarioResult], total: usize, failed: usize) -> String {
+    let mut o = String::new();
+    for r in results {
+        let _ = writeln!(o, "{} ({})", r.file, r.name);
+        if r.outcomes.is_empty() {
+            let _ = writeln!(o, "  (no expectations)");
+        }
+        for x in &r.outcomes {
+            let verdict = if x.pass { "pass" } else { "FAIL" };
+            let _ = write!(
+                o,
+                "  {verdict}  {} = {}  (required {} {})",
+                x.metric,
+                check::show(&x.metric, x.measured),
+                x.op,
+                check::show(&x.metric, x.required)
+            );
+            if let Some(m) = &x.message {
+                let _ = write!(o, "  {m}");
+            }
+            let _ = writeln!(o);
+        }
+    }
+    let _ = writeln!(o);
+    let _ = writeln!(o, "{} scenarios, {} expectations: {} passed, {} failed", results.len(), total, total - failed, failed);
+    o
+}
+
+fn junit(results: &[ScenarioResult]) -> String {
+    use quick_xml::events::{BytesDecl, BytesEnd, BytesStart, BytesText, Event};
+    let mut w = quick_xml::Writer::new_with_indent(Vec::new(), b' ', 2);
+    let total: usize = results.iter().map(|r| r.outcomes.len()).sum();
+    let failed: usize = results.iter().map(|r| r.outcomes.iter().filter(|o| !o.pass).count()).sum();
+    let _ = w.write_event(Event::Decl(BytesDecl::new("1.0", Some("UTF-8"), None)));
+    let mut root = BytesStart::new("testsuites");
+    root.push_attribute(("name", "halfwire check"));
+    root.push_attribute(("tests", total.to_string().as_str()));
+    root.push_attribute(("failures", failed.to_string().as_str()));
+    let _ = w.write_event(Event::Start(root));
+    for r in results {
+        let fails = r.outcomes.iter().filter(|o| !o.pass).count();
+        let mut suite = BytesStart::new("testsuite");
+        suite.push_attribute(("name", r.name.as_str()));
+        suite.push_attribute(("file", r.file.as_str()));
+        suite.push_attribute(("tests", r.outcomes.len().to_string().as_str()));
+        suite.push_attribute(("failures", fails.to_string().as_str()));
+        suite.push_attribute(("time", format!("{:.3}", r.wall_s).as_str()));
+        let _ = w.write_event(Event::Start(suite));
+        for x in &r.outcomes {
+            let name = format!("{} {} {}", x.metric, x.op, check::show(&x.metric, x.required));
+            let mut case = BytesStart::new("testcase");
+            case.push_attribute(("name", name.as_str()));
+            case.push_attribute(("classname", r.name.as_str()));
+            if x.pass {
+                let _ = w.write_event(Event::Empty(case));
+            } else {
+                let _ = w.write_event(Event::Start(case));
+                let detail = format!(
+                    "{} measured {}, required {} {}{}",
+                    x.metric,
+                    check::show(&x.metric, x.measured),
+                    x.op,
+                    check::show(&x.metric, x.required),
+                    x.message.as_deref().map(|m| format!(": {m}")).unwrap_or_default()
+                );
+                let mut failure = BytesStart::new("failure");
+                failure.push_attribute(("message", detail.as_str()));
+                let _ = w.write_event(Event::Start(failure));
+                let _ = w.write_event(Event::Text(BytesText::new(&detail)));
+                let _ = w.write_event(Event::End(BytesEnd::new("failure")));
+                let _ = w.write_event(Event::End(BytesEnd::new("testcase")));
+            }
+        }
+        let _ = w.write_event(Event::End(BytesEnd::new("testsuite")));
+    }
+    let _ = w.write_event(Event::End(BytesEnd::new("testsuites")));
+    let mut s = String::from_utf8(w.into_inner()).expect("XML is UTF-8");
+    s.push('\n');
+    s
+}
+

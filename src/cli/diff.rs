@@ -1,0 +1,120 @@
+//! `halfwire diff`: compare two JSON reports with tolerances.
+
+use std::fmt::Write;
+use std::path::PathBuf;
+
+use clap::Args;
+use halfwire::check::{self, diff};
+use serde_json::Value;
+
+use super::output::print_stdout;
+use super::run::Format;
+use super::Failure;
+
+#[derive(Debug, Args)]
+pub struct DiffArgs {
+    /// The reference report (JSON from `halfwire run --format json`).
+    pub base: PathBuf,
+    /// The report to judge.
+    pub new: PathBuf,
+    /// Relative change allowed before a worse value is a regression: "2%"
+    /// for every metric, or "METRIC=5%" for one (repeatable).
+    #[arg(long, value_name = "[METRIC=]PERCENT")]
+    pub tolerance: Vec<String>,
+    /// Compare reports of different scenarios.
+    #[arg(long)]
+    pub force: bool,
+    /// Output format on stdout.
+    #[arg(long, value_enum, default_value_t = Format::Text)]
+    pub format: Format,
+}
+
+fn percent(s: &str, what: &str) -> Result<f64, Failure> {
+    let t = s.trim();
+    let num = t.strip_suffix('%').ok_or_else(|| Failure::input(format!("--tolerance {what}: write a percentage, e.g. \"2%\"")))?;
+    let x: f64 = num.trim().parse().map_err(|_| Failure::input(format!("--tolerance {what}: \"{s}\" is not a percentage")))?;
+    if !(x >= 0.0 && x.is_finite()) {
+        return Err(Failure::input(format!("--tolerance {what}: a tolerance is zero or more")));
+    }
+    Ok(x / 100.0)
+}
+
+fn load(path: &PathBuf) -> Result<Value, Failure> {
+    let text = std::fs::read_to_string(path).map_err(|e| Failure::input(format!("{}: cannot read: {e}", path.display())))?;
+    let v: Value = serde_json::from_str(&text)
+        .map_err(|e| Failure::input(format!("{}:{}:{}: not a JSON report: {e}", path.display(), e.line(), e.column())))?;
+    match v.get("schema").and_then(Value::as_str) {
+        Some(s) if s == halfwire::report::SCHEMA => Ok(v),
+        Some(s) => Err(Failure::input(format!(
+            "{}: a report of schema \"{s}\"; this halfwire reads \"{}\"",
+            path.display(),
+            halfwire::report::SCHEMA
+        ))),
+        None => Err(Failure::input(format!("{}: not a halfwire report (no \"schema\")", path.display()))),
+    }
+}
+
+pub fn diff(args: DiffArgs) -> Result<u8, Failure> {
+    let base = load(&args.base)?;
+    let new = load(&args.new)?;
+    let name = |v: &Value| v["scenario"]["name"].as_str().unwrap_or_default().to_owned();
+    if name(&base) != name(&new) && !args.force {
+        return Err(Failure::input(format!(
+            "the reports are of different scenarios (\"{}\" and \"{}\"); give --force to compare them anyway",
+            name(&base),
+            name(&new)
+        )));
+    }
+    let (b, n) = (check::flatten(&base), check::flatten(&new));
+    let mut global = 0.0;
+    let mut per = std::collections::BTreeMap::new();
+    for t in &args.tolerance {
+        match t.split_once('=') {
+            Some((metric, p)) => {
+                if !b.contains_key(metric) {
+                    let mut msg = format!("--tolerance: the reports have no metric \"{metric}\"");
+                    if let Some(m) = halfwire::scenario::error::did_you_mean(metric, b.keys().map(String::as_str)) {
+                        msg += &format!(" (did you mean \"{m}\"?)");
+                    }
+                    return Err(Failure::input(msg));
+                }
+                per.insert(metric.to_owned(), percent(p, metric)?);
+            }
+            None => global = percent(t, "")?,
+        }
+    }
+    let changes = diff::compare(&b, &n, |m| per.get(m).copied().unwrap_or(global));
+    let regressions = changes.iter().filter(|c| c.verdict == "regression").count();
+    let out = match args.format {
+        Format::Json => {
+            let mut s = serde_json::to_string_pretty(&serde_json::json!({ "changes": changes, "regressions": regressions }))
+                .expect("serializable");
+            s.push('\n');
+            s
+        }
+        Format::Text => {
+            let mut o = String::new();
+            if changes.is_empty() {
+                let _ = writeln!(o, "no metric changed");
+            } else {
+                let _ = writeln!(o, "  {:<40} {:>14} {:>14} {:>9}  verdict", "metric", "base", "new", "change");
+                for c in &changes {
+                    let rel = if c.relative.is_finite() { format!("{:+.1} %", 100.0 * c.relative) } else { "new".into() };
+                    let _ = writeln!(
+                        o,
+                        "  {:<40} {:>14} {:>14} {:>9}  {}",
+                        c.metric,
+                        check::show(&c.metric, c.base),
+                        check::show(&c.metric, c.new),
+                        rel,
+                        c.verdict
+                    );
+                }
+            }
+            let _ = writeln!(o, "{} changed, {} regressions", changes.len(), regressions);
+            o
+        }
+    };
+    print_stdout(&out)?;
+    Ok(if regressions > 0 { 1 } else { 0 })
+}

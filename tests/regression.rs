@@ -1,0 +1,148 @@
+//! The regression workflow through the built binary: `check` with
+//! expectations and JUnit XML, and `diff` with tolerances.
+
+mod common;
+
+use common::halfwire;
+use serde_json::Value;
+
+fn write(dir: &std::path::Path, name: &str, text: &str) -> String {
+    let p = dir.join(name);
+    std::fs::write(&p, text).unwrap();
+    p.to_str().unwrap().to_owned()
+}
+
+fn fruit_with(expect: &str) -> String {
+    let base = std::fs::read_to_string("scenarios/fruit-grader.toml").unwrap();
+    let head = base.split("\n# Requirements").next().unwrap().to_owned();
+    format!("{head}\n{expect}")
+}
+
+#[test]
+fn check_passes_and_fails_on_a_tightened_bound() {
+    let dir = tempfile::tempdir().unwrap();
+    // The demo's p99 latency is 64.65 µs: a 150 µs bound holds, 64 µs does not.
+    let ok = write(dir.path(), "ok.toml", &fruit_with("[[expect]]\nmetric = \"latency_s.all.p99\"\nop = \"<=\"\nvalue = \"150 us\"\n"));
+    let out = halfwire(&["check", &ok]);
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stdout));
+    let tight = write(
+        dir.path(),
+        "tight.toml",
+        &fruit_with("[[expect]]\nmetric = \"latency_s.all.p99\"\nop = \"<=\"\nvalue = \"64 us\"\nmessage = \"grading deadline\"\n"),
+    );
+    let out = halfwire(&["check", &tight]);
+    assert_eq!(out.status.code(), Some(1));
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(text.contains("FAIL  latency_s.all.p99 = 64.65 µs  (required <= 64 µs)  grading deadline"), "{text}");
+    assert!(text.contains("1 failed"));
+}
+
+#[test]
+fn junit_xml_has_the_right_counts() {
+    let dir = tempfile::tempdir().unwrap();
+    let a = write(
+        dir.path(),
+        "a.toml",
+        &fruit_with("[[expect]]\nmetric = \"contention.events\"\nop = \"==\"\nvalue = 0\n[[expect]]\nmetric = \"latency_s.all.p99\"\nop = \"<\"\nvalue = \"1 us\"\n"),
+    );
+    let junit = dir.path().join("out.xml");
+    let out = halfwire(&["check", &a, "scenarios/railcar-doors.toml", "--junit", junit.to_str().unwrap()]);
+    assert_eq!(out.status.code(), Some(1));
+    // Parsed by an independent XML parser (roxmltree), not by string search.
+    let text = std::fs::read_to_string(&junit).unwrap();
+    let doc = roxmltree::Document::parse(&text).unwrap();
+    let root = doc.root_element();
+    assert_eq!(root.tag_name().name(), "testsuites");
+    assert_eq!(root.attribute("tests"), Some("5"));
+    assert_eq!(root.attribute("failures"), Some("1"));
+    let suites: Vec<_> = root.children().filter(|n| n.has_tag_name("testsuite")).collect();
+    assert_eq!(suites.len(), 2);
+    assert_eq!(suites[0].attribute("tests"), Some("2"));
+    assert_eq!(suites[0].attribute("failures"), Some("1"));
+    let failures = doc.descendants().filter(|n| n.has_tag_name("failure")).count();
+    assert_eq!(failures, 1);
+    let cases = doc.descendants().filter(|n| n.has_tag_name("testcase")).count();
+    assert_eq!(cases, 5);
+}
+
+#[test]
+fn check_is_the_same_on_one_or_two_jobs() {
+    let strip = |out: std::process::Output| {
+        let mut v: Value = serde_json::from_slice(&out.stdout).unwrap();
+        for s in v["scenarios"].as_array_mut().unwrap() {
+            s.as_object_mut().unwrap().remove("wall_s");
+        }
+        v
+    };
+    let one = strip(halfwire(&["check", "scenarios", "--format", "json", "--jobs", "1"]));
+    let two = strip(halfwire(&["check", "scenarios", "--format", "json", "--jobs", "2"]));
+    assert_eq!(one, two);
+    assert_eq!(one["failed"], 0);
+}
+
+#[test]
+fn diff_with_directions_and_tolerances() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = halfwire(&["run", "scenarios/fruit-grader.toml", "--format", "json"]);
+    let base: Value = serde_json::from_slice(&out.stdout).unwrap();
+    let b = write(dir.path(), "base.json", &serde_json::to_string(&base).unwrap());
+    // Identical: exit 0, nothing changed.
+    let same = halfwire(&["diff", &b, &b]);
+    assert_eq!(same.status.code(), Some(0));
+    assert!(String::from_utf8_lossy(&same.stdout).contains("no metric changed"));
+    // p99 10 % worse: a regression at 2 %, fine at 20 %.
+    let mut worse = base.clone();
+    let p99 = worse["latency_s"]["all"]["p99"].as_f64().unwrap();
+    worse["latency_s"]["all"]["p99"] = (p99 * 1.1).into();
+    let w = write(dir.path(), "worse.json", &serde_json::to_string(&worse).unwrap());
+    assert_eq!(halfwire(&["diff", &b, &w, "--tolerance", "2%"]).status.code(), Some(1));
+    assert_eq!(halfwire(&["diff", &b, &w, "--tolerance", "20%"]).status.code(), Some(0));
+    assert_eq!(halfwire(&["diff", &b, &w, "--tolerance", "2%", "--tolerance", "latency_s.all.p99=15%"]).status.code(), Some(0));
+    // Throughput 10 % higher is an improvement, 10 % lower a regression.
+    let mut more = base.clone();
+    let pay = more["throughput"]["payload_bit_s"].as_f64().unwrap();
+    more["throughput"]["payload_bit_s"] = (pay * 1.1).into();
+    let m = write(dir.path(), "more.json", &serde_json::to_string(&more).unwrap());
+    let out = halfwire(&["diff", &b, &m, "--tolerance", "2%"]);
+    assert_eq!(out.status.code(), Some(0));
+    assert!(String::from_utf8_lossy(&out.stdout).contains("improvement"));
+    let out = halfwire(&["diff", &m, &b, "--tolerance", "2%"]);
+    assert_eq!(out.status.code(), Some(1));
+}
+
+#[test]
+fn bad_regression_inputs() {
+    let dir = tempfile::tempdir().unwrap();
+    // An unknown metric path, with a hint.
+    let f = write(dir.path(), "u.toml", &fruit_with("[[expect]]\nmetric = \"latency_s.all.p98\"\nop = \"<=\"\nvalue = \"1 ms\"\n"));
+    let out = halfwire(&["check", &f]);
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(err.contains("u.toml:") && err.contains("expect[0].metric") && err.contains("did you mean \"latency_s.all.p99\"?"), "{err}");
+    // A unit that does not fit the metric.
+    let f = write(dir.path(), "m.toml", &fruit_with("[[expect]]\nmetric = \"latency_s.all.p99\"\nop = \"<=\"\nvalue = \"40 Mbit/s\"\n"));
+    let out = halfwire(&["check", &f]);
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(err.contains("expect[0].value") && err.contains("a time"), "{err}");
+    // An empty folder.
+    let empty = dir.path().join("empty");
+    std::fs::create_dir(&empty).unwrap();
+    let out = halfwire(&["check", empty.to_str().unwrap()]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("no scenario files"));
+    // A report of another schema version.
+    let out = halfwire(&["run", "scenarios/buoy-link.toml", "--format", "json", "--duration", "60 ms"]);
+    let mut v: Value = serde_json::from_slice(&out.stdout).unwrap();
+    let good = write(dir.path(), "good.json", &serde_json::to_string(&v).unwrap());
+    v["schema"] = "halfwire-report/99".into();
+    let other = write(dir.path(), "other.json", &serde_json::to_string(&v).unwrap());
+    let out = halfwire(&["diff", &good, &other]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("halfwire-report/99"));
+    // Different scenarios need --force.
+    let out = halfwire(&["run", "scenarios/fruit-grader.toml", "--format", "json", "--duration", "5 ms"]);
+    let fruit = write(dir.path(), "fruit.json", &String::from_utf8_lossy(&out.stdout));
+    assert_eq!(halfwire(&["diff", &good, &fruit]).status.code(), Some(2));
+    assert_ne!(halfwire(&["diff", &good, &fruit, "--force"]).status.code(), Some(2));
+}
