@@ -7,15 +7,9 @@
 use criterion::{criterion_group, criterion_main, Criterion};
 
 fn reference(receiver: &str) -> halfwire::spec::Spec {
-    let text = std::fs::read_to_string(concat!(
-        env!("CARGO_MANIFEST_DIR"),
-        "/benches/reference-polling.toml"
-    ))
-    .expect("reference scenario");
-    let text = text.replace(
-        "receiver = \"type1\"",
-        &format!("receiver = \"{receiver}\""),
-    );
+    let text = std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/benches/reference-polling.toml"))
+        .expect("reference scenario");
+    let text = text.replace("receiver = \"type1\"", &format!("receiver = \"{receiver}\""));
     halfwire::scenario::parse_str(&text, "reference-polling.toml").expect("valid")
 }
 

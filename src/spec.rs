@@ -144,10 +144,7 @@ pub struct LineSpec {
 #[derive(Clone, Debug, PartialEq)]
 pub enum Termination {
     /// A resistor at each end (multipoint).
-    BothEnds {
-        near_ohm: Option<f64>,
-        far_ohm: Option<f64>,
-    },
+    BothEnds { near_ohm: Option<f64>, far_ohm: Option<f64> },
     /// A resistor at the far end only (multidrop, one driver at the near end).
     FarEnd { far_ohm: Option<f64> },
     /// No termination at all.
@@ -191,10 +188,7 @@ pub enum Driver {
     /// Current mode: V_AB = I · R_eff.
     Current { amps: f64 },
     /// Voltage mode (Thevenin): V_AB = V_oc · R_eff / (R_eff + R_out).
-    Voltage {
-        open_circuit_v: f64,
-        output_ohm: f64,
-    },
+    Voltage { open_circuit_v: f64, output_ohm: f64 },
 }
 
 impl Driver {
@@ -202,10 +196,7 @@ impl Driver {
     pub fn amplitude_v(&self, load_ohm: f64) -> f64 {
         match *self {
             Driver::Current { amps } => amps * load_ohm,
-            Driver::Voltage {
-                open_circuit_v,
-                output_ohm,
-            } => {
+            Driver::Voltage { open_circuit_v, output_ohm } => {
                 if load_ohm.is_infinite() {
                     open_circuit_v
                 } else {
@@ -259,11 +250,7 @@ pub enum Pattern {
     /// Poisson arrivals at `rate_per_s` messages per second.
     Poisson { rate_per_s: f64 },
     /// Releases at `phase + k·period`, each delayed by a uniform draw in `0..=jitter`.
-    Periodic {
-        period: Picos,
-        phase: Picos,
-        jitter: Picos,
-    },
+    Periodic { period: Picos, phase: Picos, jitter: Picos },
 }
 
 #[derive(Clone, Debug, PartialEq)]
@@ -527,11 +514,7 @@ impl TdmaSpec {
 
     /// The whole cycle in the timekeeper's time.
     pub fn cycle(&self, frame: &FrameFormat, timekeeper_enable: Picos) -> Picos {
-        self.slots
-            .iter()
-            .fold(self.beacon_slot(frame, timekeeper_enable), |acc, s| {
-                acc + s.length
-            })
+        self.slots.iter().fold(self.beacon_slot(frame, timekeeper_enable), |acc, s| acc + s.length)
     }
 }
 

@@ -37,19 +37,10 @@ pub struct Source {
 impl Source {
     pub fn new(seed: u64, node_name: &str, node: NodeId, flow: u16, spec: TrafficSpec) -> Self {
         let exp = match spec.pattern {
-            Pattern::Poisson { rate_per_s } => {
-                Some(Exp::new(rate_per_s).expect("rate validated > 0"))
-            }
+            Pattern::Poisson { rate_per_s } => Some(Exp::new(rate_per_s).expect("rate validated > 0")),
             Pattern::Periodic { .. } => None,
         };
-        Source {
-            node,
-            flow,
-            rng: stream(seed, node_name, &format!("traffic/{flow}")),
-            spec,
-            k: 0,
-            exp,
-        }
+        Source { node, flow, rng: stream(seed, node_name, &format!("traffic/{flow}")), spec, k: 0, exp }
     }
 
     /// The time of the next arrival after one at `now` (or the first, at start).
@@ -60,21 +51,10 @@ impl Source {
                 // At least 1 ps apart so arrivals stay strictly ordered.
                 now + Picos(((gap_s * 1e12).round() as u64).max(1))
             }
-            (
-                Pattern::Periodic {
-                    period,
-                    phase,
-                    jitter,
-                },
-                _,
-            ) => {
+            (Pattern::Periodic { period, phase, jitter }, _) => {
                 let base = phase.0 + self.k * period.0;
                 self.k += 1;
-                let j = if jitter.0 > 0 {
-                    self.rng.random_range(0..=jitter.0)
-                } else {
-                    0
-                };
+                let j = if jitter.0 > 0 { self.rng.random_range(0..=jitter.0) } else { 0 };
                 Picos(base + j)
             }
             _ => unreachable!("poisson sources carry their distribution"),
@@ -98,13 +78,7 @@ pub fn sources(spec: &Spec) -> Vec<Source> {
     let mut out = Vec::new();
     for (id, node) in spec.nodes.iter().enumerate() {
         for (flow, t) in node.traffic.iter().enumerate() {
-            out.push(Source::new(
-                spec.seed,
-                &node.name,
-                id,
-                flow as u16,
-                t.clone(),
-            ));
+            out.push(Source::new(spec.seed, &node.name, id, flow as u16, t.clone()));
         }
     }
     out
@@ -172,19 +146,10 @@ traffic = {{ pattern = "poisson", rate = "10000/s", payload = ["8 B", "64 B"] }}
     fn a_nodes_arrivals_do_not_depend_on_other_nodes() {
         let base = spec(4, 10_000.0);
         // Changing s01's traffic leaves x03's arrival stream unchanged...
-        assert_eq!(
-            arrivals(&base, "x03", 500),
-            arrivals(&spec(4, 77_777.0), "x03", 500)
-        );
+        assert_eq!(arrivals(&base, "x03", 500), arrivals(&spec(4, 77_777.0), "x03", 500));
         // ...while s01's own stream changes.
-        assert_ne!(
-            arrivals(&base, "s01", 50),
-            arrivals(&spec(4, 77_777.0), "s01", 50)
-        );
+        assert_ne!(arrivals(&base, "s01", 50), arrivals(&spec(4, 77_777.0), "s01", 50));
         // Adding nodes does not move the others either.
-        assert_eq!(
-            arrivals(&base, "x02", 500),
-            arrivals(&spec(9, 10_000.0), "x02", 500)
-        );
+        assert_eq!(arrivals(&base, "x02", 500), arrivals(&spec(9, 10_000.0), "x02", 500));
     }
 }

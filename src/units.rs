@@ -300,14 +300,8 @@ const SI: &[Prefix] = &[
     ("T", 1, 12),
 ];
 const CENTI: &[Prefix] = &[("c", 1, -2)];
-const DATA: &[Prefix] = &[
-    ("k", 1, 3),
-    ("M", 1, 6),
-    ("G", 1, 9),
-    ("Ki", 1 << 10, 0),
-    ("Mi", 1 << 20, 0),
-    ("Gi", 1 << 30, 0),
-];
+const DATA: &[Prefix] =
+    &[("k", 1, 3), ("M", 1, 6), ("G", 1, 9), ("Ki", 1 << 10, 0), ("Mi", 1 << 20, 0), ("Gi", 1 << 30, 0)];
 
 fn prefix_lists(p: Prefixes) -> &'static [&'static [Prefix]] {
     match p {
@@ -353,10 +347,7 @@ enum UnitMatch {
 /// Matches the longest unit symbol of `dim` that ends `text`; what precedes
 /// the symbol must be empty or a prefix that the symbol accepts.
 fn match_unit(text: &str, dim: Dimension) -> UnitMatch {
-    let best = UNITS
-        .iter()
-        .filter(|u| u.0 == dim && text.ends_with(u.1))
-        .max_by_key(|u| u.1.len());
+    let best = UNITS.iter().filter(|u| u.0 == dim && text.ends_with(u.1)).max_by_key(|u| u.1.len());
     let Some(&(_, symbol, mult, exp10, prefixes)) = best else {
         return UnitMatch::NoUnit;
     };
@@ -368,10 +359,7 @@ fn match_unit(text: &str, dim: Dimension) -> UnitMatch {
     if let Some(&(_, pm, pe)) = lists.flat_map(|l| l.iter()).find(|p| p.0 == prefix) {
         return UnitMatch::Found(mult * pm, exp10 + pe);
     }
-    let known = [SI, CENTI, DATA]
-        .into_iter()
-        .flatten()
-        .any(|p| p.0 == prefix);
+    let known = [SI, CENTI, DATA].into_iter().flatten().any(|p| p.0 == prefix);
     if known {
         UnitMatch::PrefixNotAllowed(prefix.to_string(), symbol)
     } else {
@@ -430,11 +418,7 @@ fn split_number<'a>(t: &'a str, want: &str) -> Result<(Decimal, &'a str), UnitEr
             i = end;
         }
     }
-    let number = Decimal {
-        negative,
-        mantissa,
-        exp10,
-    };
+    let number = Decimal { negative, mantissa, exp10 };
     Ok((number, &t[i..]))
 }
 
@@ -498,9 +482,7 @@ fn exact_integer(number: &Decimal, mult: u64, exp10: i32) -> Result<u128, Inexac
     if n == 0 {
         Ok(0)
     } else if exp10 >= 0 {
-        scale
-            .and_then(|s| n.checked_mul(s))
-            .ok_or(Inexact::Overflow)
+        scale.and_then(|s| n.checked_mul(s)).ok_or(Inexact::Overflow)
     } else {
         match scale {
             Some(s) if n % s == 0 => Ok(n / s),
@@ -606,9 +588,7 @@ mod tests {
         Voltage | 99999999999999999999999999999999999999999 V | too many significant digits"#;
 
     fn dimension(name: &str) -> Dimension {
-        let found = Dimension::ALL
-            .into_iter()
-            .find(|d| format!("{d:?}") == name);
+        let found = Dimension::ALL.into_iter().find(|d| format!("{d:?}") == name);
         found.unwrap_or_else(|| panic!("no dimension {name:?}"))
     }
 
@@ -638,11 +618,7 @@ mod tests {
             (parts[1], dimension(parts[0]), parts[2])
         });
         let empty = [("", Time, "empty value: expected a time such as \"35 ns\"")];
-        let blank = [(
-            " \t ",
-            Rate,
-            "empty value: expected a rate such as \"2000/s\"",
-        )];
+        let blank = [(" \t ", Rate, "empty value: expected a rate such as \"2000/s\"")];
         for (text, dim, part) in lines.chain(empty).chain(blank) {
             let message = parse_quantity(text, dim).unwrap_err().message;
             assert!(message.contains(part), "{text:?}: {message:?}");
@@ -731,8 +707,7 @@ mod tests {
 
     #[test]
     fn formatting() {
-        let cases =
-            "0.565 V=565 mV|44.72136 Ω=44.72 Ω|1e8 bit/s=100 Mbit/s|0 V=0 V|-0.05 V=-50 mV|\
+        let cases = "0.565 V=565 mV|44.72136 Ω=44.72 Ω|1e8 bit/s=100 Mbit/s|0 V=0 V|-0.05 V=-50 mV|\
             1.5 V=1.5 V|115200 bit/s=115.2 kbit/s|12e-6 A=12 µA|6e-12 F=6 pF|9.99996 V=10 V|\
             999.96 V=1 kV|1e-15 F=0.001 pF|2e12 Hz=2000 GHz|inf V=inf V|-1234.5 V=-1.234 kV";
         for (input, text) in cases.split('|').map(|c| c.split_once('=').unwrap()) {

@@ -51,9 +51,6 @@ fn steady_state_runs_without_allocating() {
         assert!(events > 100_000, "{events} events");
         // A histogram may still grow by an order of magnitude, or a queue by a
         // burst; a few dozen allocations over 100 000+ events is not per event.
-        assert!(
-            allocs < 50,
-            "{receiver}: {allocs} allocations in {events} events"
-        );
+        assert!(allocs < 50, "{receiver}: {allocs} allocations in {events} events");
     }
 }

@@ -59,10 +59,7 @@ fn measure(slotted: bool, rate: f64, f: fn(f64) -> f64) -> (f64, f64, f64, f64) 
     let seeds: Vec<u64> = (1..=10).collect();
     let runs = par_map(&seeds, |&seed| {
         let j = run_toml(&scenario(slotted, rate, seed));
-        (
-            j["throughput"]["offered"].as_f64().unwrap(),
-            j["throughput"]["carried"].as_f64().unwrap(),
-        )
+        (j["throughput"]["offered"].as_f64().unwrap(), j["throughput"]["carried"].as_f64().unwrap())
     });
     let gs: Vec<f64> = runs.iter().map(|r| r.0).collect();
     let ss: Vec<f64> = runs.iter().map(|r| r.1).collect();
@@ -88,21 +85,12 @@ fn slotted(g: f64) -> f64 {
 fn pure_aloha_follows_g_exp_minus_2g() {
     for (rate, g_near) in [(20.0, 0.15), (45.0, 0.5), (100.0, 1.0)] {
         let (g, s, residual, half) = measure(false, rate, pure);
-        eprintln!(
-            "pure: G {g:.3} S {s:.4} theory {:.4} residual {residual:+.5} ± {half:.5}",
-            pure(g)
-        );
+        eprintln!("pure: G {g:.3} S {s:.4} theory {:.4} residual {residual:+.5} ± {half:.5}", pure(g));
         assert!((g - g_near).abs() < 0.1, "G {g} should be near {g_near}");
-        assert!(
-            residual.abs() <= half + allowance(s),
-            "S − G·e^(−2G) = {residual} ± {half} at G = {g}"
-        );
+        assert!(residual.abs() <= half + allowance(s), "S − G·e^(−2G) = {residual} ± {half} at G = {g}");
         if g_near == 0.5 {
             // The maximum, 1/(2e) = 0.18394 at G = 0.5.
-            assert!(
-                (s - 1.0 / (2.0 * std::f64::consts::E)).abs() < 0.003,
-                "S {s} at G {g}"
-            );
+            assert!((s - 1.0 / (2.0 * std::f64::consts::E)).abs() < 0.003, "S {s} at G {g}");
         }
     }
 }
@@ -111,21 +99,12 @@ fn pure_aloha_follows_g_exp_minus_2g() {
 fn slotted_aloha_follows_g_exp_minus_g() {
     for (rate, g_near) in [(60.0, 0.45), (160.0, 1.0), (500.0, 1.33)] {
         let (g, s, residual, half) = measure(true, rate, slotted);
-        eprintln!(
-            "slotted: G {g:.3} S {s:.4} theory {:.4} residual {residual:+.5} ± {half:.5}",
-            slotted(g)
-        );
+        eprintln!("slotted: G {g:.3} S {s:.4} theory {:.4} residual {residual:+.5} ± {half:.5}", slotted(g));
         assert!((g - g_near).abs() < 0.1, "G {g} should be near {g_near}");
-        assert!(
-            residual.abs() <= half + allowance(s),
-            "S − G·e^(−G) = {residual} ± {half} at G = {g}"
-        );
+        assert!(residual.abs() <= half + allowance(s), "S − G·e^(−G) = {residual} ± {half} at G = {g}");
         if g_near == 1.0 {
             // The maximum, 1/e = 0.36788 at G = 1.
-            assert!(
-                (s - 1.0 / std::f64::consts::E).abs() < 0.004,
-                "S {s} at G {g}"
-            );
+            assert!((s - 1.0 / std::f64::consts::E).abs() < 0.004, "S {s} at G {g}");
         }
     }
 }

@@ -14,18 +14,10 @@ type Flow = (u64, u64, u64, u64);
 
 /// Four nodes on a 30 m line (unequal spacing): (name, position m, messages).
 const NODES: &[(&str, f64, &[Flow])] = &[
-    (
-        "engine",
-        0.0,
-        &[(0x010, 1000, 20, 8), (0x300, 10_000, 0, 8)],
-    ),
+    ("engine", 0.0, &[(0x010, 1000, 20, 8), (0x300, 10_000, 0, 8)]),
     ("brakes", 4.0, &[(0x020, 2000, 50, 4)]),
     ("doors", 17.0, &[(0x100, 5000, 100, 8)]),
-    (
-        "lights",
-        30.0,
-        &[(0x200, 4000, 0, 2), (0x400, 20_000, 500, 8)],
-    ),
+    ("lights", 30.0, &[(0x200, 4000, 0, 2), (0x400, 20_000, 500, 8)]),
 ];
 
 fn scenario(bit_rate: &str, times: (&str, &str, &str)) -> String {
@@ -39,10 +31,7 @@ fn scenario(bit_rate: &str, times: (&str, &str, &str)) -> String {
                 )
             })
             .collect();
-        nodes += &format!(
-            "[[node]]\nname = \"{name}\"\nposition = \"{x} m\"\ntraffic = [{}]\n",
-            traffic.join(", ")
-        );
+        nodes += &format!("[[node]]\nname = \"{name}\"\nposition = \"{x} m\"\ntraffic = [{}]\n", traffic.join(", "));
     }
     let (en, dis, rx) = times;
     format!(
@@ -91,20 +80,11 @@ fn wcrt(tb: f64, d_max: f64, en: f64, dis: f64, rx: f64) -> Vec<(u64, f64)> {
     flows
         .iter()
         .map(|&(id, _, _, c)| {
-            let blocking = flows
-                .iter()
-                .filter(|f| f.0 > id)
-                .map(|f| f.3)
-                .fold(0.0, f64::max)
-                .max(c);
+            let blocking = flows.iter().filter(|f| f.0 > id).map(|f| f.3).fold(0.0, f64::max).max(c);
             let mut w = blocking;
             loop {
                 let next = blocking
-                    + flows
-                        .iter()
-                        .filter(|f| f.0 < id)
-                        .map(|f| ((w + f.2 + tb) / f.1).ceil() * f.3)
-                        .sum::<f64>();
+                    + flows.iter().filter(|f| f.0 < id).map(|f| ((w + f.2 + tb) / f.1).ceil() * f.3).sum::<f64>();
                 if (next - w).abs() < 1e-15 {
                     break;
                 }
@@ -121,15 +101,9 @@ fn above_the_bound_the_lowest_identifier_wins_within_the_response_time_bound() {
     let s = &j["scheme"];
     // 500 kbit/s: 2 µs bits, against a bound of well under 1 µs on 30 m.
     assert!(s["min_bit_time_s"].as_f64().unwrap() < 1e-6);
-    assert_eq!(
-        s["priority_inversions"], 0,
-        "the lowest identifier always wins"
-    );
+    assert_eq!(s["priority_inversions"], 0, "the lowest identifier always wins");
     assert_eq!(s["arbitration_failures"], 0);
-    assert!(
-        s["lost"].as_u64().unwrap() > 10,
-        "arbitration really happened"
-    );
+    assert!(s["lost"].as_u64().unwrap() > 10, "arbitration really happened");
     assert_eq!(j["frames"]["corrupted"], 0);
     assert_eq!(j["contention"]["events"], 0);
     let tpd = loaded_tpd(5e-9, 120.0, 4.0 * 20e-12, 30.0);
@@ -138,16 +112,9 @@ fn above_the_bound_the_lowest_identifier_wins_within_the_response_time_bound() {
         let key = format!("{id:#06x}");
         let observed = j["latency_s"]["ids"][&key]["max"].as_f64().unwrap();
         let count = j["latency_s"]["ids"][&key]["count"].as_u64().unwrap();
-        eprintln!(
-            "{key}: {count} messages, worst {:.1} µs, bound {:.1} µs",
-            observed * 1e6,
-            bound * 1e6
-        );
+        eprintln!("{key}: {count} messages, worst {:.1} µs, bound {:.1} µs", observed * 1e6, bound * 1e6);
         assert!(count > 10);
-        assert!(
-            observed <= bound,
-            "{key}: worst latency {observed} above the analysis bound {bound}"
-        );
+        assert!(observed <= bound, "{key}: worst latency {observed} above the analysis bound {bound}");
     }
 }
 
@@ -168,11 +135,7 @@ fn below_the_bound_arbitration_fails() {
 fn receivers_without_failsafe_are_refused() {
     let dir = tempfile::tempdir().unwrap();
     let path = dir.path().join("a.toml");
-    std::fs::write(
-        &path,
-        scenario("500 kbit/s", ("50 ns", "50 ns", "40 ns")).replace("type2", "type1"),
-    )
-    .unwrap();
+    std::fs::write(&path, scenario("500 kbit/s", ("50 ns", "50 ns", "40 ns")).replace("type2", "type1")).unwrap();
     let out = halfwire(&["run", path.to_str().unwrap()]);
     assert_eq!(out.status.code(), Some(2));
     let err = String::from_utf8_lossy(&out.stderr);

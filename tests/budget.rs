@@ -13,11 +13,7 @@ fn budget(toml: &str, extra: &[&str]) -> Value {
     let mut args = vec!["budget", path.to_str().unwrap(), "--format", "json"];
     args.extend_from_slice(extra);
     let out = halfwire(&args);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
     serde_json::from_slice(&out.stdout).unwrap()
 }
 
@@ -42,8 +38,7 @@ fn bus(line: &str, transceiver: &str, access: &str, positions: &[f64]) -> String
 }
 
 const TIMING: &str = "enable_time = \"7 ns\"\ndisable_time = \"9 ns\"\nreceiver_delay = \"5 ns\"";
-const POLL: &str =
-    "scheme = \"polling\"\nmaster = \"n0\"\nturnaround = \"20 ns\"\nreply_timeout = \"5 us\"";
+const POLL: &str = "scheme = \"polling\"\nmaster = \"n0\"\nturnaround = \"20 ns\"\nreply_timeout = \"5 us\"";
 
 fn close(a: f64, b: f64, rel: f64) -> bool {
     ((a - b) / b).abs() < rel
@@ -60,30 +55,13 @@ fn loaded_line_three_hand_worked_cases() {
     ];
     for (z0, tpd, len, n, load, z_exp, t_exp) in cases {
         let positions: Vec<f64> = (0..n).map(|i| len * i as f64 / (n - 1) as f64).collect();
-        let line =
-            format!("length = \"{len} m\"\nimpedance = \"{z0} ohm\"\ndelay = \"{tpd} ns/m\"");
-        let tx = format!(
-            "drive_current = \"11.3 mA\"\nload = \"{load} pF\"\nreceiver = \"type2\"\n{TIMING}"
-        );
+        let line = format!("length = \"{len} m\"\nimpedance = \"{z0} ohm\"\ndelay = \"{tpd} ns/m\"");
+        let tx = format!("drive_current = \"11.3 mA\"\nload = \"{load} pF\"\nreceiver = \"type2\"\n{TIMING}");
         let b = budget(&bus(&line, &tx, POLL, &positions), &[]);
         let l = &b["line"];
-        assert!(
-            close(l["loaded_impedance_ohm"].as_f64().unwrap(), z_exp, 1e-5),
-            "{z0}: {l}"
-        );
-        assert!(
-            close(
-                l["loaded_delay_s_per_m"].as_f64().unwrap(),
-                t_exp * 1e-9,
-                1e-5
-            ),
-            "{z0}: {l}"
-        );
-        assert!(close(
-            l["end_to_end_delay_s"].as_f64().unwrap(),
-            t_exp * 1e-9 * len,
-            1e-4
-        ));
+        assert!(close(l["loaded_impedance_ohm"].as_f64().unwrap(), z_exp, 1e-5), "{z0}: {l}");
+        assert!(close(l["loaded_delay_s_per_m"].as_f64().unwrap(), t_exp * 1e-9, 1e-5), "{z0}: {l}");
+        assert!(close(l["end_to_end_delay_s"].as_f64().unwrap(), t_exp * 1e-9 * len, 1e-4));
     }
 }
 
@@ -93,14 +71,15 @@ fn amplitudes_against_common_practice() {
     // Point to point, far end terminated, unloaded 50 Ω line: the near-end
     // driver sees 50 Ω. 11.3 mA → 565 mV (multipoint LVDS, common practice).
     let b = budget(
-        &bus("length = \"1 m\"\nimpedance = \"50 ohm\"\ndelay = \"5 ns/m\"\ntermination = \"far-end\"", &tx("drive_current = \"11.3 mA\""), POLL, &[0.0, 1.0]),
+        &bus(
+            "length = \"1 m\"\nimpedance = \"50 ohm\"\ndelay = \"5 ns/m\"\ntermination = \"far-end\"",
+            &tx("drive_current = \"11.3 mA\""),
+            POLL,
+            &[0.0, 1.0],
+        ),
         &[],
     );
-    assert!(close(
-        b["nodes"]["n0"]["amplitude_step_v"].as_f64().unwrap(),
-        0.565,
-        1e-9
-    ));
+    assert!(close(b["nodes"]["n0"]["amplitude_step_v"].as_f64().unwrap(), 0.565, 1e-9));
     // Both ends 60 Ω on a 60 Ω line: 30 Ω everywhere, 339 mV > 300 mV.
     let b = budget(
         &bus(
@@ -114,20 +93,20 @@ fn amplitudes_against_common_practice() {
     for n in ["n0", "n1", "n2"] {
         let a = b["nodes"][n]["amplitude_step_v"].as_f64().unwrap();
         assert!(close(a, 0.339, 1e-9) && a > 0.300);
-        assert!(close(
-            b["nodes"][n]["amplitude_dc_v"].as_f64().unwrap(),
-            0.339,
-            1e-9
-        ));
+        assert!(close(b["nodes"][n]["amplitude_dc_v"].as_f64().unwrap(), 0.339, 1e-9));
     }
     // LVDS (common practice): 3.5 mA into 100 Ω = 350 mV, from the family preset.
     let lvds = format!("family = \"lvds\"\nload = \"0 pF\"\n{TIMING}");
-    let b = budget(&bus("length = \"1 m\"\nimpedance = \"100 ohm\"\ndelay = \"5 ns/m\"\ntermination = \"far-end\"", &lvds, POLL, &[0.0, 1.0]), &[]);
-    assert!(close(
-        b["nodes"]["n0"]["amplitude_step_v"].as_f64().unwrap(),
-        0.350,
-        1e-9
-    ));
+    let b = budget(
+        &bus(
+            "length = \"1 m\"\nimpedance = \"100 ohm\"\ndelay = \"5 ns/m\"\ntermination = \"far-end\"",
+            &lvds,
+            POLL,
+            &[0.0, 1.0],
+        ),
+        &[],
+    );
+    assert!(close(b["nodes"]["n0"]["amplitude_step_v"].as_f64().unwrap(), 0.350, 1e-9));
     // A voltage-mode driver (3.3 V behind 50 Ω) into 54 Ω (two 108 Ω ends):
     // 3.3·54/104 = 1.713 V, above TIA-485-A's 1.5 V minimum (from memory).
     let b = budget(
@@ -140,11 +119,7 @@ fn amplitudes_against_common_practice() {
         &[],
     );
     let dc = b["nodes"]["n0"]["amplitude_dc_v"].as_f64().unwrap();
-    assert!(close(
-        b["line"]["dc_load_ohm"].as_f64().unwrap(),
-        54.0,
-        1e-9
-    ));
+    assert!(close(b["line"]["dc_load_ohm"].as_f64().unwrap(), 54.0, 1e-9));
     assert!(close(dc, 3.3 * 54.0 / 104.0, 1e-9) && dc >= 1.5, "{dc}");
 }
 
@@ -155,25 +130,15 @@ fn failsafe_bias_sets_the_idle_state() {
     let line = |rb: u32| {
         format!("length = \"10 m\"\nimpedance = \"120 ohm\"\ndelay = \"5 ns/m\"\ntermination = \"120 ohm\"\n[line.bias]\nsupply = \"5 V\"\npull_up = \"{rb} ohm\"\npull_down = \"{rb} ohm\"")
     };
-    let tx = |rx: &str| {
-        format!("drive_current = \"11.3 mA\"\nload = \"0 pF\"\nreceiver = \"{rx}\"\n{TIMING}")
-    };
+    let tx = |rx: &str| format!("drive_current = \"11.3 mA\"\nload = \"0 pF\"\nreceiver = \"{rx}\"\n{TIMING}");
     let b = budget(&bus(&line(720), &tx("tia485"), POLL, &[0.0, 10.0]), &[]);
     assert!(close(b["line"]["idle_v"].as_f64().unwrap(), 0.200, 1e-12));
     // The bias adds 1440 Ω across the pair: DC load 60 ∥ 1440 = 57.6 Ω.
-    assert!(close(
-        b["line"]["dc_load_ohm"].as_f64().unwrap(),
-        57.6,
-        1e-9
-    ));
+    assert!(close(b["line"]["dc_load_ohm"].as_f64().unwrap(), 57.6, 1e-9));
     // 200 mV is not above ±200 mV: still undefined there; 680 Ω gives 211 mV.
     assert_eq!(b["nodes"]["n1"]["idle_state"], "undefined");
     let b = budget(&bus(&line(680), &tx("tia485"), POLL, &[0.0, 10.0]), &[]);
-    assert!(close(
-        b["line"]["idle_v"].as_f64().unwrap(),
-        5.0 * 60.0 / 1420.0,
-        1e-12
-    ));
+    assert!(close(b["line"]["idle_v"].as_f64().unwrap(), 5.0 * 60.0 / 1420.0, 1e-12));
     assert_eq!(b["nodes"]["n1"]["idle_state"], "high");
     // The same 211 mV against type-1 (±50 mV) and type-2 (50/150 mV) thresholds.
     for rx in ["type1", "type2"] {
@@ -188,16 +153,8 @@ fn failsafe_bias_sets_the_idle_state() {
         POLL,
         &[0.0, 10.0],
     );
-    assert!(
-        common::run_toml(&plain)["floating"]["windows"]
-            .as_u64()
-            .unwrap()
-            > 0
-    );
-    assert_eq!(
-        common::run_toml(&bus(&line(680), &tx("type1"), POLL, &[0.0, 10.0]))["floating"]["windows"],
-        0
-    );
+    assert!(common::run_toml(&plain)["floating"]["windows"].as_u64().unwrap() > 0);
+    assert_eq!(common::run_toml(&bus(&line(680), &tx("type1"), POLL, &[0.0, 10.0]))["floating"]["windows"], 0);
 }
 
 #[test]
@@ -205,36 +162,16 @@ fn edges_limit_the_bit_rate() {
     // Common practice: unit interval ≥ 2 × transition time; a 1 ns edge
     // (the multipoint-LVDS minimum) allows 500 Mbit/s.
     let tx = format!("family = \"mlvds\"\nreceiver = \"type2\"\nload = \"5 pF\"\n{TIMING}");
-    let b = budget(
-        &bus(
-            "length = \"1 m\"\nimpedance = \"100 ohm\"\ndelay = \"5 ns/m\"",
-            &tx,
-            POLL,
-            &[0.0, 1.0],
-        ),
-        &[],
-    );
-    assert!(close(
-        b["limits"]["max_bit_rate_bit_s"].as_f64().unwrap(),
-        500e6,
-        1e-12
-    ));
+    let b = budget(&bus("length = \"1 m\"\nimpedance = \"100 ohm\"\ndelay = \"5 ns/m\"", &tx, POLL, &[0.0, 1.0]), &[]);
+    assert!(close(b["limits"]["max_bit_rate_bit_s"].as_f64().unwrap(), 500e6, 1e-12));
     // A 2-inch stub at 1 ns edges is within half the transition time at
     // 4.9 ns/m (common practice: 2 inches at 1 ns); a 4-inch one is not.
     let stub = |len: &str| format!("{tx}\nstub_length = \"{len}\"");
     let line = "length = \"1 m\"\nimpedance = \"100 ohm\"\ndelay = \"4.9 ns/m\"";
     let ok = budget(&bus(line, &stub("2 in"), POLL, &[0.0, 1.0]), &[]);
-    assert!(ok["warnings"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .all(|w| w["code"] != "stub-too-long"));
+    assert!(ok["warnings"].as_array().unwrap().iter().all(|w| w["code"] != "stub-too-long"));
     let long = budget(&bus(line, &stub("4 in"), POLL, &[0.0, 1.0]), &[]);
-    assert!(long["warnings"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .any(|w| w["code"] == "stub-too-long"));
+    assert!(long["warnings"].as_array().unwrap().iter().any(|w| w["code"] == "stub-too-long"));
 }
 
 #[test]
@@ -244,7 +181,10 @@ fn turnaround_minima_agree_with_the_run() {
     let line = "length = \"6 m\"\nimpedance = \"100 ohm\"\ndelay = \"5 ns/m\"";
     let tx = "drive_current = \"11.3 mA\"\nload = \"5 pF\"\nreceiver = \"type2\"\nenable_time = \"7 ns\"\ndisable_time = \"25 ns\"\nreceiver_delay = \"5 ns\"";
     let mut text = bus(line, tx, POLL, &positions);
-    text = text.replace("[[node]]\nname = \"n0\"\nposition = \"0 m\"\n", "[[node]]\nname = \"n0\"\nposition = \"0 m\"\n[node.transceiver]\ndisable_time = \"9 ns\"\n");
+    text = text.replace(
+        "[[node]]\nname = \"n0\"\nposition = \"0 m\"\n",
+        "[[node]]\nname = \"n0\"\nposition = \"0 m\"\n[node.transceiver]\ndisable_time = \"9 ns\"\n",
+    );
     let b = budget(&text, &["--verify"]);
     let h = &b["handovers"][0];
     // Worst: slave → master, disable 25 ns − receiver delay 5 ns.
@@ -253,10 +193,7 @@ fn turnaround_minima_agree_with_the_run() {
     assert_eq!(b["verify"]["at_minimum_contention"], 0);
     assert!(b["verify"]["below_minimum_contention"].as_u64().unwrap() > 0);
     // The same on a token ring.
-    let ring = text.replace(
-        POLL,
-        "scheme = \"token\"\ntoken_bits = 24\nturnaround = \"50 ns\"",
-    );
+    let ring = text.replace(POLL, "scheme = \"token\"\ntoken_bits = 24\nturnaround = \"50 ns\"");
     let b = budget(&ring, &["--verify"]);
     assert_eq!(b["verify"]["at_minimum_contention"], 0);
     assert!(b["verify"]["below_minimum_contention"].as_u64().unwrap() > 0);
@@ -307,49 +244,23 @@ position = "9 m"
 traffic = { pattern = "periodic", period = "100 us", payload = "64 B" }
 "#;
     let b = budget(toml, &[]);
-    let pr = b["handovers"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .find(|h| h["from"] == "p" && h["to"] == "r")
-        .unwrap()
-        .clone();
+    let pr = b["handovers"].as_array().unwrap().iter().find(|h| h["from"] == "p" && h["to"] == "r").unwrap().clone();
     let d = (7.0 * common::loaded_tpd(5e-9, 100.0, 15e-12, 10.0) * 1e12).round() * 1e-12;
     let o_r = 5657e-9;
     let expected = (1.0 + eps) * (9e-9 + d + o_r * (1.0 - 1.0 / (1.0 + eps)));
-    assert!(
-        (pr["min_turnaround_s"].as_f64().unwrap() - expected).abs() < 2e-12,
-        "{pr} vs {expected}"
-    );
+    assert!((pr["min_turnaround_s"].as_f64().unwrap() - expected).abs() < 2e-12, "{pr} vs {expected}");
 }
 
 #[test]
 fn bad_budget_inputs() {
     let line = "length = \"1 m\"\nimpedance = \"100 ohm\"\ndelay = \"5 ns/m\"";
     // A preset without timing: the standard does not give it.
-    let err = refused(&bus(
-        line,
-        "family = \"mlvds\"\nload = \"5 pF\"",
-        POLL,
-        &[0.0, 1.0],
-    ));
-    assert!(
-        err.contains("enable_time") && err.contains("mlvds family leaves timing to the part"),
-        "{err}"
-    );
+    let err = refused(&bus(line, "family = \"mlvds\"\nload = \"5 pF\"", POLL, &[0.0, 1.0]));
+    assert!(err.contains("enable_time") && err.contains("mlvds family leaves timing to the part"), "{err}");
     // Negative resistance.
-    let tx =
-        format!("drive_current = \"11.3 mA\"\nload = \"5 pF\"\nreceiver = \"type2\"\n{TIMING}");
-    let err = refused(&bus(
-        &format!("{line}\ntermination = \"-100 ohm\""),
-        &tx,
-        POLL,
-        &[0.0, 1.0],
-    ));
-    assert!(
-        err.contains("line.termination") && err.contains("negative resistance"),
-        "{err}"
-    );
+    let tx = format!("drive_current = \"11.3 mA\"\nload = \"5 pF\"\nreceiver = \"type2\"\n{TIMING}");
+    let err = refused(&bus(&format!("{line}\ntermination = \"-100 ohm\""), &tx, POLL, &[0.0, 1.0]));
+    assert!(err.contains("line.termination") && err.contains("negative resistance"), "{err}");
     // A bias on a line without terminations.
     let err = refused(&bus(
         &format!("{line}\ntermination = \"none\"\n[line.bias]\nsupply = \"5 V\"\npull_up = \"680 ohm\"\npull_down = \"680 ohm\""),
@@ -357,17 +268,9 @@ fn bad_budget_inputs() {
         POLL,
         &[0.0, 1.0],
     ));
-    assert!(
-        err.contains("line.bias") && err.contains("terminations"),
-        "{err}"
-    );
+    assert!(err.contains("line.bias") && err.contains("terminations"), "{err}");
     // An unknown family, with a hint.
-    let err = refused(&bus(
-        line,
-        &format!("{tx}\nfamily = \"mlvd\""),
-        POLL,
-        &[0.0, 1.0],
-    ));
+    let err = refused(&bus(line, &format!("{tx}\nfamily = \"mlvd\""), POLL, &[0.0, 1.0]));
     assert!(err.contains("did you mean \"mlvds\"?"), "{err}");
 }
 
@@ -379,19 +282,14 @@ fn time_ranges_take_the_worst_case() {
     let line = "length = \"4 m\"\nimpedance = \"100 ohm\"\ndelay = \"5 ns/m\"";
     let tx = "drive_current = \"11.3 mA\"\nload = \"5 pF\"\nreceiver = \"type2\"\nenable_time = [\"5 ns\", \"8 ns\"]\ndisable_time = [\"5 ns\", \"12 ns\"]\nreceiver_delay = [\"3 ns\", \"6 ns\"]";
     let b = budget(&bus(line, tx, POLL, &[0.0, 1.5, 4.0]), &["--verify"]);
-    assert!(close(
-        b["handovers"][0]["min_turnaround_s"].as_f64().unwrap(),
-        9e-9,
-        1e-12
-    ));
+    assert!(close(b["handovers"][0]["min_turnaround_s"].as_f64().unwrap(), 9e-9, 1e-12));
     assert_eq!(b["verify"]["at_minimum_contention"], 0);
     assert!(b["verify"]["below_minimum_contention"].as_u64().unwrap() > 0);
     // `timing` picks the run's values: worst-case, typical or random.
     let run = |mode: &str| {
         common::run_toml(&format!(
             "timing = \"{mode}\"\n{}",
-            bus(line, tx, POLL, &[0.0, 1.5, 4.0])
-                .replace("turnaround = \"20 ns\"", "turnaround = \"7 ns\"")
+            bus(line, tx, POLL, &[0.0, 1.5, 4.0]).replace("turnaround = \"20 ns\"", "turnaround = \"7 ns\"")
         ))
     };
     // A 7 ns turnaround: at the worst corner (12 ns off, 3 ns receiver) it
@@ -400,21 +298,10 @@ fn time_ranges_take_the_worst_case() {
     assert_eq!(run("typical")["contention"]["events"], 0);
     let a = run("random");
     let b2 = run("random");
-    assert_eq!(
-        a["contention"], b2["contention"],
-        "random draws are reproducible"
-    );
+    assert_eq!(a["contention"], b2["contention"], "random draws are reproducible");
     // A range whose min exceeds its max is refused.
-    let err = refused(&bus(
-        line,
-        &tx.replace("[\"5 ns\", \"12 ns\"]", "[\"12 ns\", \"5 ns\"]"),
-        POLL,
-        &[0.0, 4.0],
-    ));
-    assert!(
-        err.contains("transceiver.disable_time") && err.contains("exceeds its max"),
-        "{err}"
-    );
+    let err = refused(&bus(line, &tx.replace("[\"5 ns\", \"12 ns\"]", "[\"12 ns\", \"5 ns\"]"), POLL, &[0.0, 4.0]));
+    assert!(err.contains("transceiver.disable_time") && err.contains("exceeds its max"), "{err}");
 }
 
 #[test]
@@ -422,16 +309,8 @@ fn limits_on_the_command_line() {
     let dir = tempfile::tempdir().unwrap();
     let path = dir.path().join("b.toml");
     let tx = format!("family = \"mlvds\"\nreceiver = \"type2\"\nload = \"5 pF\"\n{TIMING}");
-    std::fs::write(
-        &path,
-        bus(
-            "length = \"1 m\"\nimpedance = \"100 ohm\"\ndelay = \"5 ns/m\"",
-            &tx,
-            POLL,
-            &[0.0, 1.0],
-        ),
-    )
-    .unwrap();
+    std::fs::write(&path, bus("length = \"1 m\"\nimpedance = \"100 ohm\"\ndelay = \"5 ns/m\"", &tx, POLL, &[0.0, 1.0]))
+        .unwrap();
     let out = halfwire(&["budget", path.to_str().unwrap(), "--max-rate"]);
     assert!(String::from_utf8_lossy(&out.stdout).starts_with("500000000 bit/s"));
     let out = halfwire(&["budget", path.to_str().unwrap(), "--max-nodes"]);
@@ -453,19 +332,14 @@ fn floating_window_bound_agrees_with_the_run() {
     let mut bound = std::collections::BTreeMap::<String, f64>::new();
     for h in b["handovers"].as_array().unwrap() {
         let max = h["max_turnaround_for_float_s"].as_f64().unwrap();
-        let e = bound
-            .entry(h["to"].as_str().unwrap().to_owned())
-            .or_insert(f64::INFINITY);
+        let e = bound.entry(h["to"].as_str().unwrap().to_owned()).or_insert(f64::INFINITY);
         *e = e.min(max);
     }
     let with = |extra_ps: i64| {
         let mut t = text.replace("turnaround = \"20 ns\"", "turnaround = \"1 s\"");
         for (name, max) in &bound {
             let ps = (max * 1e12).round() as i64 + extra_ps;
-            t = t.replace(
-                &format!("name = \"{name}\"\n"),
-                &format!("name = \"{name}\"\nturnaround = \"{ps} ps\"\n"),
-            );
+            t = t.replace(&format!("name = \"{name}\"\n"), &format!("name = \"{name}\"\nturnaround = \"{ps} ps\"\n"));
         }
         common::run_toml(&t.replace("turnaround = \"1 s\"", "turnaround = \"20 ns\""))
     };
@@ -485,10 +359,8 @@ fn run_and_budget_agree_on_every_shared_figure() {
             continue;
         }
         let p = path.to_str().unwrap();
-        let run: Value =
-            serde_json::from_slice(&halfwire(&["run", p, "--format", "json"]).stdout).unwrap();
-        let b: Value =
-            serde_json::from_slice(&halfwire(&["budget", p, "--format", "json"]).stdout).unwrap();
+        let run: Value = serde_json::from_slice(&halfwire(&["run", p, "--format", "json"]).stdout).unwrap();
+        let b: Value = serde_json::from_slice(&halfwire(&["budget", p, "--format", "json"]).stdout).unwrap();
         assert_eq!(run["line"], b["line"], "{p}");
     }
 }
@@ -499,29 +371,16 @@ fn termination_per_end_and_current_ranges() {
     // Z' = 100 Ω, Γ_near = +1 (open), Γ_far = 0. A drive-current range counts
     // with its weakest value: 3.0 mA → 300 mV.
     let line = "length = \"1 m\"\nimpedance = \"100 ohm\"\ndelay = \"5 ns/m\"\ntermination = { far = \"100 ohm\" }";
-    let tx = format!(
-        "drive_current = [\"3.0 mA\", \"4.5 mA\"]\nload = \"0 pF\"\nreceiver = \"lvds\"\n{TIMING}"
-    );
+    let tx = format!("drive_current = [\"3.0 mA\", \"4.5 mA\"]\nload = \"0 pF\"\nreceiver = \"lvds\"\n{TIMING}");
     let b = budget(&bus(line, &tx, POLL, &[0.0, 1.0]), &[]);
     assert_eq!(b["line"]["reflection_near"], 1.0);
     assert_eq!(b["line"]["reflection_far"], 0.0);
-    assert!(close(
-        b["nodes"]["n0"]["amplitude_step_v"].as_f64().unwrap(),
-        0.300,
-        1e-9
-    ));
+    assert!(close(b["nodes"]["n0"]["amplitude_step_v"].as_f64().unwrap(), 0.300, 1e-9));
     // 120 Ω at both ends of a 100 Ω line: Γ = 20/220 = +0.0909 at each.
     let line = "length = \"1 m\"\nimpedance = \"100 ohm\"\ndelay = \"5 ns/m\"\ntermination = { near = \"120 ohm\", far = \"120 ohm\" }";
     let b = budget(&bus(line, &tx, POLL, &[0.0, 1.0]), &[]);
-    assert!(close(
-        b["line"]["reflection_near"].as_f64().unwrap(),
-        20.0 / 220.0,
-        1e-12
-    ));
-    assert!(
-        b["limits"]["max_bit_rate_bit_s"].is_null(),
-        "no transition time given"
-    );
+    assert!(close(b["line"]["reflection_near"].as_f64().unwrap(), 20.0 / 220.0, 1e-12));
+    assert!(b["limits"]["max_bit_rate_bit_s"].is_null(), "no transition time given");
 }
 
 #[test]
@@ -574,23 +433,11 @@ traffic = {{ pattern = "poisson", rate = "1000000/s", payload = "64 B", queue_li
     let mut g = 45_000u64;
     for _ in 0..5 {
         let b = budget(&scenario(g), &[]);
-        let h = b["handovers"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .find(|h| h["from"] == "p" && h["to"] == "r")
-            .unwrap()
-            .clone();
+        let h = b["handovers"].as_array().unwrap().iter().find(|h| h["from"] == "p" && h["to"] == "r").unwrap().clone();
         g = (h["min_turnaround_s"].as_f64().unwrap() * 1e12).round() as u64;
     }
     let at = common::run_toml(&scenario(g + 2));
     let below = common::run_toml(&scenario(g - 3));
-    assert_eq!(
-        at["contention"]["events"], 0,
-        "at the minimum guard {g} ps (+2 ps rounding)"
-    );
-    assert!(
-        below["contention"]["events"].as_u64().unwrap() > 0,
-        "below the minimum guard"
-    );
+    assert_eq!(at["contention"]["events"], 0, "at the minimum guard {g} ps (+2 ps rounding)");
+    assert!(below["contention"]["events"].as_u64().unwrap() > 0, "below the minimum guard");
 }

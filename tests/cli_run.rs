@@ -7,11 +7,7 @@ use serde_json::Value;
 
 fn run_json(args: &[&str]) -> Value {
     let out = halfwire(args);
-    assert!(
-        out.status.success(),
-        "stderr: {}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    assert!(out.status.success(), "stderr: {}", String::from_utf8_lossy(&out.stderr));
     serde_json::from_slice(&out.stdout).expect("stdout is one JSON document")
 }
 
@@ -69,10 +65,7 @@ fn demos_run_and_report_the_contract_fields() {
         ] {
             assert!(j.pointer(path).is_some(), "{demo}: missing {path}");
         }
-        assert!(
-            j["latency_s"]["all"]["count"].as_u64().unwrap() > 0,
-            "{demo}: no deliveries"
-        );
+        assert!(j["latency_s"]["all"]["count"].as_u64().unwrap() > 0, "{demo}: no deliveries");
         assert!(!j["latency_s"]["nodes"].as_object().unwrap().is_empty());
     }
 }
@@ -82,57 +75,26 @@ fn text_summary_has_units_and_sections() {
     let out = halfwire(&["run", "scenarios/fruit-grader.toml"]);
     assert!(out.status.success());
     let text = String::from_utf8(out.stdout).unwrap();
-    for needle in [
-        "Throughput",
-        "Latency",
-        "Hand-overs",
-        "Scheme: polling",
-        "Mbit/s",
-        "µs",
-        "Ω",
-    ] {
+    for needle in ["Throughput", "Latency", "Hand-overs", "Scheme: polling", "Mbit/s", "µs", "Ω"] {
         assert!(text.contains(needle), "missing {needle:?} in:\n{text}");
     }
-    assert!(
-        !text.contains('\u{1b}'),
-        "no colour when NO_COLOR is set and stdout is not a terminal"
-    );
+    assert!(!text.contains('\u{1b}'), "no colour when NO_COLOR is set and stdout is not a terminal");
 }
 
 #[test]
 fn same_seed_gives_identical_json_apart_from_run() {
     let a = run_json(&["run", "scenarios/fruit-grader.toml", "--format", "json"]);
     let b = run_json(&["run", "scenarios/fruit-grader.toml", "--format", "json"]);
-    assert_eq!(
-        serde_json::to_string(&without_run(a)).unwrap(),
-        serde_json::to_string(&without_run(b)).unwrap()
-    );
+    assert_eq!(serde_json::to_string(&without_run(a)).unwrap(), serde_json::to_string(&without_run(b)).unwrap());
 }
 
 #[test]
 fn seed_and_duration_overrides() {
     let base = run_json(&["run", "scenarios/fruit-grader.toml", "--format", "json"]);
-    let other = run_json(&[
-        "run",
-        "scenarios/fruit-grader.toml",
-        "--format",
-        "json",
-        "--seed",
-        "99",
-    ]);
+    let other = run_json(&["run", "scenarios/fruit-grader.toml", "--format", "json", "--seed", "99"]);
     assert_eq!(other["scenario"]["seed"], 99);
-    assert_ne!(
-        base["latency_s"]["all"]["mean"],
-        other["latency_s"]["all"]["mean"]
-    );
-    let short = run_json(&[
-        "run",
-        "scenarios/fruit-grader.toml",
-        "--format",
-        "json",
-        "--duration",
-        "10 ms",
-    ]);
+    assert_ne!(base["latency_s"]["all"]["mean"], other["latency_s"]["all"]["mean"]);
+    let short = run_json(&["run", "scenarios/fruit-grader.toml", "--format", "json", "--duration", "10 ms"]);
     // 10 ms duration minus the scenario's 2 ms warmup.
     assert!((short["simulated_s"].as_f64().unwrap() - 8e-3).abs() < 1e-15);
 }
@@ -142,19 +104,8 @@ fn event_log_is_json_lines_inside_the_window() {
     let dir = tempfile::tempdir().unwrap();
     let path = dir.path().join("events.jsonl");
     let p = path.to_str().unwrap();
-    let out = halfwire(&[
-        "run",
-        "scenarios/fruit-grader.toml",
-        "--events",
-        p,
-        "--window",
-        "100us..120us",
-    ]);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    let out = halfwire(&["run", "scenarios/fruit-grader.toml", "--events", p, "--window", "100us..120us"]);
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
     let text = std::fs::read_to_string(&path).unwrap();
     let mut kinds = std::collections::BTreeSet::new();
     let mut last = 0u64;
@@ -166,13 +117,7 @@ fn event_log_is_json_lines_inside_the_window() {
         last = t;
         kinds.insert(v["event"].as_str().unwrap().to_owned());
     }
-    for k in [
-        "driver_enable",
-        "driver_release",
-        "driver_off",
-        "frame_start",
-        "frame_end",
-    ] {
+    for k in ["driver_enable", "driver_release", "driver_off", "frame_start", "frame_end"] {
         assert!(kinds.contains(k), "no {k} in the log");
     }
 }
@@ -205,51 +150,28 @@ fn malformed_toml() {
 #[test]
 fn unknown_key_with_hint() {
     let t = good().replace("length = \"2.4 m\"", "lenght = \"2.4 m\"");
-    bad(
-        &t,
-        &[
-            ":10:1:",
-            "line.lenght",
-            "unknown key `lenght`",
-            "did you mean `length`?",
-        ],
-    );
+    bad(&t, &[":10:1:", "line.lenght", "unknown key `lenght`", "did you mean `length`?"]);
 }
 
 #[test]
 fn missing_and_wrong_units() {
-    bad(
-        &good().replace("enable_time = \"7 ns\"", "enable_time = \"7\""),
-        &["transceiver.enable_time", "missing unit"],
-    );
+    bad(&good().replace("enable_time = \"7 ns\"", "enable_time = \"7\""), &["transceiver.enable_time", "missing unit"]);
     bad(
         &good().replace("enable_time = \"7 ns\"", "enable_time = \"35 nz\""),
         &["transceiver.enable_time", "unknown unit \"nz\""],
     );
-    bad(
-        &good().replace("enable_time = \"7 ns\"", "enable_time = \"7 m\""),
-        &["transceiver.enable_time", "length"],
-    );
+    bad(&good().replace("enable_time = \"7 ns\"", "enable_time = \"7 m\""), &["transceiver.enable_time", "length"]);
 }
 
 #[test]
 fn negative_length() {
-    bad(
-        &good().replace("length = \"2.4 m\"", "length = \"-2.4 m\""),
-        &[":10:10:", "line.length", "negative length"],
-    );
+    bad(&good().replace("length = \"2.4 m\"", "length = \"-2.4 m\""), &[":10:10:", "line.length", "negative length"]);
 }
 
 #[test]
 fn node_outside_the_line() {
-    bad(
-        &good().replace("position = \"0 m\"", "position = \"3 m\""),
-        &["node[0].position", "outside the line"],
-    );
-    bad(
-        &good().replace("spacing = \"0.1 m\"", "spacing = \"0.2 m\""),
-        &["nodes", "outside the line"],
-    );
+    bad(&good().replace("position = \"0 m\"", "position = \"3 m\""), &["node[0].position", "outside the line"]);
+    bad(&good().replace("spacing = \"0.1 m\"", "spacing = \"0.2 m\""), &["nodes", "outside the line"]);
 }
 
 #[test]
@@ -270,20 +192,13 @@ fn zero_bit_rate() {
 fn master_not_a_node() {
     bad(
         &good().replace("master = \"controller\"", "master = \"controler\""),
-        &[
-            "access.master",
-            "no node is called \"controler\"",
-            "did you mean \"controller\"?",
-        ],
+        &["access.master", "no node is called \"controler\"", "did you mean \"controller\"?"],
     );
 }
 
 #[test]
 fn empty_order() {
-    bad(
-        &good().replace("max_per_poll = 1", "max_per_poll = 1\norder = []"),
-        &["access.order", "empty"],
-    );
+    bad(&good().replace("max_per_poll = 1", "max_per_poll = 1\norder = []"), &["access.order", "empty"]);
 }
 
 #[test]
@@ -292,10 +207,7 @@ fn unknown_scheme_and_value_hints() {
         &good().replace("scheme = \"polling\"", "scheme = \"poling\""),
         &["access.scheme", "did you mean \"polling\"?"],
     );
-    bad(
-        &good().replace("encoding = \"8b10b\"", "encoding = \"8b/10b\""),
-        &["frame.encoding", "8b10b"],
-    );
+    bad(&good().replace("encoding = \"8b10b\"", "encoding = \"8b/10b\""), &["frame.encoding", "8b10b"]);
 }
 
 #[test]
@@ -306,14 +218,7 @@ fn missing_file_and_bad_options() {
     let out = halfwire(&["run", "scenarios/fruit-grader.toml", "--duration", "5"]);
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("--duration"));
-    let out = halfwire(&[
-        "run",
-        "scenarios/fruit-grader.toml",
-        "--events",
-        "x.jsonl",
-        "--window",
-        "9us..3us",
-    ]);
+    let out = halfwire(&["run", "scenarios/fruit-grader.toml", "--events", "x.jsonl", "--window", "9us..3us"]);
     assert_eq!(out.status.code(), Some(2));
     let out = halfwire(&["run", "scenarios/fruit-grader.toml", "--bogus"]);
     assert_eq!(out.status.code(), Some(2));
@@ -323,12 +228,7 @@ fn missing_file_and_bad_options() {
 fn no_partial_output_file_on_error() {
     let dir = tempfile::tempdir().unwrap();
     let path = dir.path().join("missing-folder").join("events.jsonl");
-    let out = halfwire(&[
-        "run",
-        "scenarios/fruit-grader.toml",
-        "--events",
-        path.to_str().unwrap(),
-    ]);
+    let out = halfwire(&["run", "scenarios/fruit-grader.toml", "--events", path.to_str().unwrap()]);
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("does not exist"));
     // A bad window after a valid events path leaves no file behind either.
@@ -343,11 +243,7 @@ fn no_partial_output_file_on_error() {
     ]);
     assert_eq!(out.status.code(), Some(2));
     assert!(!ok_path.exists());
-    assert_eq!(
-        std::fs::read_dir(dir.path()).unwrap().count(),
-        0,
-        "no temporary files left"
-    );
+    assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 0, "no temporary files left");
 }
 
 #[test]
@@ -359,39 +255,18 @@ fn debug_log_shows_scheme_decisions() {
         .unwrap();
     assert!(out.status.success());
     let err = String::from_utf8_lossy(&out.stderr);
-    assert!(
-        err.contains("DEBUG poll") && err.contains("slave=sensor"),
-        "{err}"
-    );
-    assert!(
-        !err.contains('\u{1b}'),
-        "no ANSI codes when stderr is not a terminal"
-    );
+    assert!(err.contains("DEBUG poll") && err.contains("slave=sensor"), "{err}");
+    assert!(!err.contains('\u{1b}'), "no ANSI codes when stderr is not a terminal");
 }
 
 #[test]
 fn event_log_is_complete_to_the_end_of_the_run() {
     let dir = tempfile::tempdir().unwrap();
     let path = dir.path().join("all.jsonl");
-    let out = halfwire(&[
-        "run",
-        "scenarios/buoy-link.toml",
-        "--duration",
-        "60 ms",
-        "--events",
-        path.to_str().unwrap(),
-    ]);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    let out = halfwire(&["run", "scenarios/buoy-link.toml", "--duration", "60 ms", "--events", path.to_str().unwrap()]);
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
     let text = std::fs::read_to_string(&path).unwrap();
-    let count = |k: &str| {
-        text.lines()
-            .filter(|l| l.contains(&format!("\"event\":\"{k}\"")))
-            .count()
-    };
+    let count = |k: &str| text.lines().filter(|l| l.contains(&format!("\"event\":\"{k}\""))).count();
     assert!(count("driver_enable") > 100);
     assert_eq!(count("driver_enable"), count("driver_release"));
     assert_eq!(count("driver_enable"), count("driver_off"));
@@ -413,19 +288,13 @@ fn refuses_to_overwrite_the_scenario() {
     let out = halfwire(&["run", p, "--events", p]);
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("refusing to overwrite"));
-    assert_eq!(
-        std::fs::read_to_string(&path).unwrap(),
-        std::fs::read_to_string("scenarios/buoy-link.toml").unwrap()
-    );
+    assert_eq!(std::fs::read_to_string(&path).unwrap(), std::fs::read_to_string("scenarios/buoy-link.toml").unwrap());
 }
 
 #[test]
 #[cfg(target_os = "linux")]
 fn a_full_stdout_is_an_error_not_a_panic() {
-    let full = std::fs::OpenOptions::new()
-        .write(true)
-        .open("/dev/full")
-        .unwrap();
+    let full = std::fs::OpenOptions::new().write(true).open("/dev/full").unwrap();
     let out = std::process::Command::new(env!("CARGO_BIN_EXE_halfwire"))
         .args(["run", "scenarios/buoy-link.toml", "--duration", "60 ms"])
         .stdout(full)
@@ -433,10 +302,7 @@ fn a_full_stdout_is_an_error_not_a_panic() {
         .unwrap();
     let err = String::from_utf8_lossy(&out.stderr);
     assert_eq!(out.status.code(), Some(1), "{err}");
-    assert!(
-        err.contains("cannot write to stdout") && !err.contains("panicked"),
-        "{err}"
-    );
+    assert!(err.contains("cannot write to stdout") && !err.contains("panicked"), "{err}");
 }
 
 #[test]

@@ -73,20 +73,14 @@ traffic = {{ pattern = "poisson", rate = "{rate}/s", payload = "64 B", queue_lim
 /// Ten replications: the reports.
 fn runs(tau_ns: u64, nodes: usize, rate: f64, access: &str) -> Vec<Value> {
     let seeds: Vec<u64> = (1..=10).collect();
-    par_map(&seeds, |&seed| {
-        run_toml(&scenario(tau_ns, nodes, rate, access, seed))
-    })
+    par_map(&seeds, |&seed| run_toml(&scenario(tau_ns, nodes, rate, access, seed)))
 }
 
 fn g_s(j: &Value) -> (f64, f64) {
-    (
-        j["throughput"]["offered"].as_f64().unwrap(),
-        j["throughput"]["carried"].as_f64().unwrap(),
-    )
+    (j["throughput"]["offered"].as_f64().unwrap(), j["throughput"]["carried"].as_f64().unwrap())
 }
 
-const NON_PERSISTENT: &str =
-    "persistence = \"non\"\nack_timeout = \"1 us\"\nbackoff = { mean = \"300 us\" }";
+const NON_PERSISTENT: &str = "persistence = \"non\"\nack_timeout = \"1 us\"\nbackoff = { mean = \"300 us\" }";
 
 #[test]
 fn formula_check_values() {
@@ -100,33 +94,18 @@ fn formula_check_values() {
 fn non_persistent_csma_matches_kleinrock_tobagi() {
     // Tolerance: the 95 % interval of 10 replications (t(0.975; 9) = 2.262)
     // plus 0.5 % of S for 1000 senders standing in for infinitely many.
-    for (tau_ns, a, rate, g_near) in [
-        (56, 0.01, 95.0, 1.0),
-        (56, 0.01, 300.0, 10.0),
-        (560, 0.1, 60.0, 0.6),
-        (560, 0.1, 100.0, 2.3),
-    ] {
+    for (tau_ns, a, rate, g_near) in
+        [(56, 0.01, 95.0, 1.0), (56, 0.01, 300.0, 10.0), (560, 0.1, 60.0, 0.6), (560, 0.1, 100.0, 2.3)]
+    {
         let reports = runs(tau_ns, 1000, rate, NON_PERSISTENT);
         let pts: Vec<(f64, f64)> = reports.iter().map(g_s).collect();
-        let residuals: Vec<f64> = pts
-            .iter()
-            .map(|&(g, s)| s - kt_non_persistent(g, a))
-            .collect();
+        let residuals: Vec<f64> = pts.iter().map(|&(g, s)| s - kt_non_persistent(g, a)).collect();
         let (r, half) = mean_ci(&residuals);
         let g = mean_ci(&pts.iter().map(|p| p.0).collect::<Vec<_>>()).0;
         let s = mean_ci(&pts.iter().map(|p| p.1).collect::<Vec<_>>()).0;
-        eprintln!(
-            "a {a}: G {g:.3} S {s:.4} K&T {:.4} residual {r:+.5} ± {half:.5}",
-            kt_non_persistent(g, a)
-        );
-        assert!(
-            (g - g_near).abs() < 0.25 * g_near,
-            "G {g} should be near {g_near}"
-        );
-        assert!(
-            r.abs() <= half + 0.005 * s,
-            "S − K&T = {r} ± {half} at a = {a}, G = {g}"
-        );
+        eprintln!("a {a}: G {g:.3} S {s:.4} K&T {:.4} residual {r:+.5} ± {half:.5}", kt_non_persistent(g, a));
+        assert!((g - g_near).abs() < 0.25 * g_near, "G {g} should be near {g_near}");
+        assert!(r.abs() <= half + 0.005 * s, "S − K&T = {r} ± {half} at a = {a}, G = {g}");
     }
 }
 
@@ -138,10 +117,7 @@ fn collision_detection_beats_non_persistent_csma() {
     for j in runs(560, 1000, 100.0, cd) {
         let (g, s) = g_s(&j);
         let plain = kt_non_persistent(g, 0.1);
-        assert!(
-            s > plain * 1.05,
-            "CSMA/CD S {s} vs non-persistent {plain} at G {g}"
-        );
+        assert!(s > plain * 1.05, "CSMA/CD S {s} vs non-persistent {plain} at G {g}");
         assert!(j["scheme"]["collisions_detected"].as_u64().unwrap() > 0);
     }
 }
@@ -155,16 +131,11 @@ fn csma_cd_efficiency_under_metcalfe_boggs_assumptions() {
     for (tau_ns, slot) in [(56u64, 170e-9), (560, 1.68e-6)] {
         let access = "persistence = 0.0625\ncollision_detect = true\njam_bits = 0\nbackoff = \"0 s\"\nmax_attempts = 0";
         let seeds: Vec<u64> = (1..=5).collect();
-        let es = par_map(&seeds, |&seed| {
-            g_s(&run_toml(&scenario(tau_ns, 16, 100_000.0, access, seed))).1
-        });
+        let es = par_map(&seeds, |&seed| g_s(&run_toml(&scenario(tau_ns, 16, 100_000.0, access, seed))).1);
         let (e, half) = mean_ci(&es);
         let expected = metcalfe_boggs(16.0, slot);
         eprintln!("τ {tau_ns} ns: E {e:.4} ± {half:.4}, Metcalfe & Boggs {expected:.4}");
-        assert!(
-            (e - expected).abs() < 0.02 * expected,
-            "E {e} vs {expected}"
-        );
+        assert!((e - expected).abs() < 0.02 * expected, "E {e} vs {expected}");
     }
 }
 
@@ -174,13 +145,7 @@ fn ethernet_style_backoff_stays_below_the_ideal_contention_bound() {
     // waiting station starts as soon as the line goes quiet, so contention
     // costs more than under the ideal 1/Q rule; efficiency stays below
     // Metcalfe & Boggs' figure.
-    let j = run_toml(&scenario(
-        56,
-        16,
-        100_000.0,
-        "persistence = 1\ncollision_detect = true",
-        1,
-    ));
+    let j = run_toml(&scenario(56, 16, 100_000.0, "persistence = 1\ncollision_detect = true", 1));
     let (_, e) = g_s(&j);
     let bound = metcalfe_boggs(16.0, 170e-9);
     assert!(e < bound && e > 0.75, "E {e}, bound {bound}");

@@ -60,11 +60,7 @@ fn heavy_load_halves_the_impedance_and_doubles_the_delay() {
     assert!((a - 0.339).abs() < 1e-12, "amplitude {a}");
     // Type-2 margin: 339 − 150 mV.
     assert!((l["worst_margin_v"].as_f64().unwrap() - 0.189).abs() < 1e-12);
-    assert!(j["warnings"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .all(|w| w["code"] != "amplitude-below-threshold"));
+    assert!(j["warnings"].as_array().unwrap().iter().all(|w| w["code"] != "amplitude-below-threshold"));
 }
 
 #[test]

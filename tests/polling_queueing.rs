@@ -63,12 +63,7 @@ fn setup(slaves: usize, rho: f64) -> Setup {
 
 fn replicate(s: &Setup, reps: u64) -> (f64, f64) {
     let seeds: Vec<u64> = (1..=reps).collect();
-    let ws = par_map(&seeds, |&seed| {
-        mean_wait(&Bus {
-            seed,
-            ..s.bus.clone()
-        })
-    });
+    let ws = par_map(&seeds, |&seed| mean_wait(&Bus { seed, ..s.bus.clone() }));
     mean_ci(&ws)
 }
 
@@ -93,10 +88,7 @@ fn one_limited_symmetric_polling_matches_takagi() {
     let expected = takagi::one_limited(8.0, s.lambda, s.b, s.b * s.b, s.r);
     let (mean, half) = replicate(&s, 30);
     eprintln!("W sim {mean:.4e} ± {half:.2e} s, Takagi {expected:.4e} s");
-    assert!(
-        (mean - expected).abs() <= half,
-        "W = {mean} ± {half}, expected {expected}"
-    );
+    assert!((mean - expected).abs() <= half, "W = {mean} ± {half}, expected {expected}");
     // The interval is tight enough to mean something: within 3 % of W.
     assert!(half < 0.03 * expected, "half-width {half}");
 }
@@ -111,9 +103,6 @@ fn single_slave_is_an_m_d_1_queue_with_switchover() {
     let md1 = pollaczek_khinchine(s.lambda, s.b * s.b, 0.5);
     let (mean, half) = replicate(&s, 10);
     eprintln!("W sim {mean:.4e} ± {half:.2e} s, exact {expected:.4e} s, plain M/D/1 {md1:.4e} s");
-    assert!(
-        (mean - expected).abs() <= half,
-        "W = {mean} ± {half}, expected {expected}"
-    );
+    assert!((mean - expected).abs() <= half, "W = {mean} ± {half}, expected {expected}");
     assert!(mean > md1, "the switchover adds to the M/D/1 wait");
 }

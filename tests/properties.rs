@@ -8,16 +8,8 @@ use proptest::prelude::*;
 use serde_json::Value;
 
 fn bus_strategy() -> impl Strategy<Value = (Bus, u64, u64)> {
-    (
-        1usize..6,
-        0u64..40,
-        0u64..40,
-        0u32..3,
-        prop::bool::ANY,
-        0u64..4,
-        1u64..1000,
-    )
-        .prop_map(|(slaves, turn_ns, mturn_ns, mpp, type1, load_k, seed)| {
+    (1usize..6, 0u64..40, 0u64..40, 0u32..3, prop::bool::ANY, 0u64..4, 1u64..1000).prop_map(
+        |(slaves, turn_ns, mturn_ns, mpp, type1, load_k, seed)| {
             let turn: &'static str = Box::leak(format!("{turn_ns} ns").into_boxed_str());
             let mturn: &'static str = Box::leak(format!("{mturn_ns} ns").into_boxed_str());
             let bus = Bus {
@@ -33,7 +25,8 @@ fn bus_strategy() -> impl Strategy<Value = (Bus, u64, u64)> {
                 ..Bus::default()
             };
             (bus, turn_ns, mturn_ns)
-        })
+        },
+    )
 }
 
 proptest! {

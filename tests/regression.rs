@@ -22,7 +22,11 @@ fn fruit_with(expect: &str) -> String {
 fn check_passes_and_fails_on_a_tightened_bound() {
     let dir = tempfile::tempdir().unwrap();
     // The demo's p99 latency is 64.65 µs: a 150 µs bound holds, 64 µs does not.
-    let ok = write(dir.path(), "ok.toml", &fruit_with("[[expect]]\nmetric = \"latency_s.all.p99\"\nop = \"<=\"\nvalue = \"150 us\"\n"));
+    let ok = write(
+        dir.path(),
+        "ok.toml",
+        &fruit_with("[[expect]]\nmetric = \"latency_s.all.p99\"\nop = \"<=\"\nvalue = \"150 us\"\n"),
+    );
     let out = halfwire(&["check", &ok]);
     assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stdout));
     let tight = write(
@@ -97,7 +101,10 @@ fn diff_with_directions_and_tolerances() {
     let w = write(dir.path(), "worse.json", &serde_json::to_string(&worse).unwrap());
     assert_eq!(halfwire(&["diff", &b, &w, "--tolerance", "2%"]).status.code(), Some(1));
     assert_eq!(halfwire(&["diff", &b, &w, "--tolerance", "20%"]).status.code(), Some(0));
-    assert_eq!(halfwire(&["diff", &b, &w, "--tolerance", "2%", "--tolerance", "latency_s.all.p99=15%"]).status.code(), Some(0));
+    assert_eq!(
+        halfwire(&["diff", &b, &w, "--tolerance", "2%", "--tolerance", "latency_s.all.p99=15%"]).status.code(),
+        Some(0)
+    );
     // Throughput 10 % higher is an improvement, 10 % lower a regression.
     let mut more = base.clone();
     let pay = more["throughput"]["payload_bit_s"].as_f64().unwrap();
@@ -114,13 +121,26 @@ fn diff_with_directions_and_tolerances() {
 fn bad_regression_inputs() {
     let dir = tempfile::tempdir().unwrap();
     // An unknown metric path, with a hint.
-    let f = write(dir.path(), "u.toml", &fruit_with("[[expect]]\nmetric = \"latency_s.all.p98\"\nop = \"<=\"\nvalue = \"1 ms\"\n"));
+    let f = write(
+        dir.path(),
+        "u.toml",
+        &fruit_with("[[expect]]\nmetric = \"latency_s.all.p98\"\nop = \"<=\"\nvalue = \"1 ms\"\n"),
+    );
     let out = halfwire(&["check", &f]);
     let err = String::from_utf8_lossy(&out.stderr);
     assert_eq!(out.status.code(), Some(2));
-    assert!(err.contains("u.toml:") && err.contains("expect[0].metric") && err.contains("did you mean \"latency_s.all.p99\"?"), "{err}");
+    assert!(
+        err.contains("u.toml:")
+            && err.contains("expect[0].metric")
+            && err.contains("did you mean \"latency_s.all.p99\"?"),
+        "{err}"
+    );
     // A unit that does not fit the metric.
-    let f = write(dir.path(), "m.toml", &fruit_with("[[expect]]\nmetric = \"latency_s.all.p99\"\nop = \"<=\"\nvalue = \"40 Mbit/s\"\n"));
+    let f = write(
+        dir.path(),
+        "m.toml",
+        &fruit_with("[[expect]]\nmetric = \"latency_s.all.p99\"\nop = \"<=\"\nvalue = \"40 Mbit/s\"\n"),
+    );
     let out = halfwire(&["check", &f]);
     let err = String::from_utf8_lossy(&out.stderr);
     assert_eq!(out.status.code(), Some(2));

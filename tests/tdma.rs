@@ -77,21 +77,11 @@ fn guard_bound_with_clock_error() {
         let g_ps = (g * 1e12).round() as u64;
         let slot_p = g_ps + 7_000 + 5_600_000;
         let slot_r = slot_p + 1_000_000;
-        run_toml(&scenario(
-            g_ps,
-            slot_p,
-            slot_r,
-            "compensate = true\nclock_ppm = { r = 100.0 }",
-        ))
+        run_toml(&scenario(g_ps, slot_p, slot_r, "compensate = true\nclock_ppm = { r = 100.0 }"))
     };
     let safe = run(g_star + 3e-12); // ±3 ps: each clock conversion is rounded to the picosecond
     let short = run(g_star - 3e-12);
-    eprintln!(
-        "g* = {:.3} ns; contention {} above, {} below",
-        g_star * 1e9,
-        contention(&safe),
-        contention(&short)
-    );
+    eprintln!("g* = {:.3} ns; contention {} above, {} below", g_star * 1e9, contention(&safe), contention(&short));
     assert_eq!(contention(&safe), 0, "3 ps above the bound: no contention");
     assert!(contention(&short) > 0, "3 ps below the bound: contention");
     assert!(safe["frames"]["delivered"].as_u64().unwrap() > 1000);
@@ -120,10 +110,7 @@ fn throughput_equals_the_slot_utilisation() {
     // Counted by delivery inside the window: at most one cycle off at each edge.
     let edge = 2.0 * 4.0 * DUR / window;
     eprintln!("carried {carried:.5}, slot utilisation {expected:.5} ± {edge:.5}");
-    assert!(
-        (carried - expected).abs() <= edge,
-        "carried {carried} vs {expected}"
-    );
+    assert!((carried - expected).abs() <= edge, "carried {carried} vs {expected}");
     assert!((j["scheme"]["cycle_s"].as_f64().unwrap() - cycle).abs() < 1e-15);
     let usable = j["scheme"]["usable_fraction"].as_f64().unwrap();
     assert!((usable - 2.0 * (slot - g - 7_000) as f64 * 1e-12 / cycle).abs() < 1e-12);
@@ -138,8 +125,5 @@ fn a_slot_too_short_for_a_frame_is_refused() {
     let out = common::halfwire(&["run", path.to_str().unwrap()]);
     assert_eq!(out.status.code(), Some(2));
     let err = String::from_utf8_lossy(&out.stderr);
-    assert!(
-        err.contains("access.slots[0]") && err.contains("cannot hold"),
-        "{err}"
-    );
+    assert!(err.contains("access.slots[0]") && err.contains("cannot hold"), "{err}");
 }

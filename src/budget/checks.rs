@@ -18,11 +18,7 @@ pub struct BudgetWarning {
 }
 
 fn warn(out: &mut Vec<BudgetWarning>, code: &'static str, node: Option<&str>, message: String) {
-    out.push(BudgetWarning {
-        code,
-        node: node.map(str::to_owned),
-        message,
-    });
+    out.push(BudgetWarning { code, node: node.map(str::to_owned), message });
 }
 
 /// Highest bit rate the edges and stubs allow: unit interval ≥ 2 × the
@@ -39,19 +35,13 @@ pub fn max_bit_rate(spec: &Spec, stub_fraction: f64) -> Option<f64> {
         .reduce(f64::min)
 }
 
-/// The largest node count, at the scenario's node density (nodes spread
-/// over the same length with the same per-node load, drive and receivers),
-/// that keeps every receiver's margin non-negative and the unit loads within
-/// the limit. Uses the weakest transceiver of the scenario for every node.
+/// The largest node count on this line (the same length, nodes spread
+/// evenly over it, each with the scenario's heaviest load, weakest drive and
+/// receivers; so the node density grows with the count) that keeps every
+/// receiver's margin non-negative and the unit loads within the limit.
 pub fn max_nodes(spec: &Spec) -> usize {
-    let worst = |f: fn(&crate::spec::NodeSpec) -> f64| {
-        spec.nodes.iter().map(f).fold(f64::INFINITY, f64::min)
-    };
-    let load = spec
-        .nodes
-        .iter()
-        .map(|n| n.transceiver.load_f)
-        .fold(0.0, f64::max);
+    let worst = |f: fn(&crate::spec::NodeSpec) -> f64| spec.nodes.iter().map(f).fold(f64::INFINITY, f64::min);
+    let load = spec.nodes.iter().map(|n| n.transceiver.load_f).fold(0.0, f64::max);
     let input = worst(|n| n.transceiver.input_ohm);
     let fits = |count: usize| -> bool {
         let loaded = crate::line::LoadedLine::new(
@@ -60,28 +50,20 @@ pub fn max_nodes(spec: &Spec) -> usize {
             spec.line.length_m,
             load * count as f64,
         );
-        let ends =
-            crate::line::amplitude::Ends::resolve(&spec.line.termination, loaded.impedance_ohm);
+        let ends = crate::line::amplitude::Ends::resolve(&spec.line.termination, loaded.impedance_ohm);
         let inputs = input / count as f64;
-        let dc = crate::line::loaded::parallel(ends.dc_load_ohm(), inputs);
+        let bias = spec.line.bias.map_or(f64::INFINITY, |b| b.pull_up_ohm + b.pull_down_ohm);
+        let dc = crate::line::loaded::parallel(crate::line::loaded::parallel(ends.dc_load_ohm(), inputs), bias);
         // Every driver position the scenario uses, at this impedance.
         let amp = spec
             .nodes
             .iter()
             .map(|n| {
-                let step =
-                    ends.step_load_ohm(n.position_m, spec.line.length_m, loaded.impedance_ohm);
-                n.transceiver
-                    .driver
-                    .amplitude_v(step)
-                    .min(n.transceiver.driver.amplitude_v(dc))
+                let step = ends.step_load_ohm(n.position_m, spec.line.length_m, loaded.impedance_ohm);
+                n.transceiver.driver.amplitude_v(step).min(n.transceiver.driver.amplitude_v(dc))
             })
             .fold(f64::INFINITY, f64::min);
-        let margin = spec
-            .nodes
-            .iter()
-            .map(|n| n.transceiver.receiver.margin_v(amp))
-            .fold(f64::INFINITY, f64::min);
+        let margin = spec.nodes.iter().map(|n| n.transceiver.receiver.margin_v(amp)).fold(f64::INFINITY, f64::min);
         let unit_loads = count as f64 * crate::spec::UNIT_LOAD_OHM / input;
         margin >= 0.0 && unit_loads <= MAX_UNIT_LOADS + 1e-9
     };
@@ -102,21 +84,33 @@ fn driver_offset_v(family: Option<&str>) -> f64 {
     }
 }
 
-pub fn warnings(
-    spec: &Spec,
-    line: &LineModel,
-    handovers: &[Handover],
-    options: Options,
-) -> Vec<BudgetWarning> {
+/// How many nodes drive the line under the scenario's scheme: every polled
+/// slave and the master, every ring member, the timekeeper and slot owners,
+/// and under random access every node with traffic.
+fn drivers(spec: &Spec) -> usize {
+    use crate::spec::AccessSpec;
+    let mut set = std::collections::BTreeSet::new();
+    match &spec.access {
+        AccessSpec::Polling(p) => {
+            set.insert(p.master);
+            set.extend(p.order.iter().copied());
+        }
+        AccessSpec::Token(t) => set.extend(t.order.iter().copied()),
+        AccessSpec::Tdma(t) => {
+            set.insert(t.timekeeper);
+            set.extend(t.slots.iter().map(|s| s.owner));
+        }
+        _ => set.extend((0..spec.nodes.len()).filter(|&i| !spec.nodes[i].traffic.is_empty())),
+    }
+    set.len()
+}
+
+pub fn warnings(spec: &Spec, line: &LineModel, handovers: &[Handover], options: Options) -> Vec<BudgetWarning> {
     let mut out = Vec::new();
     // Amplitude against thresholds, as a noise margin, worst first.
     let (weak, amp) = crate::line::figures::weakest(line);
-    let mut margins: Vec<(f64, usize)> = spec
-        .nodes
-        .iter()
-        .enumerate()
-        .map(|(i, n)| (n.transceiver.receiver.margin_v(amp), i))
-        .collect();
+    let mut margins: Vec<(f64, usize)> =
+        spec.nodes.iter().enumerate().map(|(i, n)| (n.transceiver.receiver.margin_v(amp), i)).collect();
     margins.sort_by(|a, b| a.0.total_cmp(&b.0));
     for (m, i) in margins {
         if m < 0.0 {
@@ -157,18 +151,12 @@ pub fn warnings(
             &mut out,
             "unit-loads",
             None,
-            format!(
-                "{:.1} unit loads exceed the {MAX_UNIT_LOADS} that TIA-485-A allows",
-                line.unit_loads
-            ),
+            format!("{:.1} unit loads exceed the {MAX_UNIT_LOADS} that TIA-485-A allows", line.unit_loads),
         );
     }
     // Terminations against the loaded impedance: |Γ| above 10 %.
     let (gn, gf) = line.reflections();
-    for (end, g, r) in [
-        ("near", gn, line.ends.near_ohm),
-        ("far", gf, line.ends.far_ohm),
-    ] {
+    for (end, g, r) in [("near", gn, line.ends.near_ohm), ("far", gf, line.ends.far_ohm)] {
         if r.is_finite() && g.abs() > 0.1 {
             warn(
                 &mut out,
@@ -220,8 +208,7 @@ pub fn warnings(
             continue;
         };
         for tx in &spec.nodes {
-            let cm = driver_offset_v(tx.transceiver.family.as_deref())
-                + tx.transceiver.ground_offset_v
+            let cm = driver_offset_v(tx.transceiver.family.as_deref()) + tx.transceiver.ground_offset_v
                 - rx.transceiver.ground_offset_v;
             if cm < lo || cm > hi {
                 warn(
@@ -241,14 +228,13 @@ pub fn warnings(
     }
     // A multidrop line has one driver, at the unterminated near end.
     if matches!(spec.line.termination, Termination::FarEnd { .. }) {
-        let senders = spec.nodes.iter().filter(|n| !n.traffic.is_empty()).count();
-        let polling_master = matches!(spec.access, crate::spec::AccessSpec::Polling(_));
-        if senders + usize::from(polling_master) > 1 {
+        let drivers = drivers(spec);
+        if drivers > 1 {
             warn(
                 &mut out,
                 "multidrop-several-drivers",
                 None,
-                format!("a far-end-terminated (multidrop) line has {} transmitting nodes; it suits one driver at the near end", senders + usize::from(polling_master)),
+                format!("a far-end-terminated (multidrop) line has {drivers} driving nodes; it suits one driver at the near end"),
             );
         }
     }

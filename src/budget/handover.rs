@@ -64,9 +64,7 @@ fn turnaround(spec: &Spec, p: NodeId, r: NodeId, configured: Picos) -> Handover 
 pub fn float_max(spec: &Spec, line: &LineModel, p: NodeId, r: NodeId, limit: Picos) -> Option<f64> {
     let worst = (0..spec.nodes.len())
         .filter(|&j| line.idle_state(spec, j) == crate::line::IdleState::Undefined)
-        .map(|j| {
-            (line.delay(p, r) + line.delay(r, j)).as_secs_f64() - line.delay(p, j).as_secs_f64()
-        })
+        .map(|j| (line.delay(p, r) + line.delay(r, j)).as_secs_f64() - line.delay(p, j).as_secs_f64())
         .reduce(f64::max)?;
     let dis = spec.nodes[p].transceiver.disable_range.min.as_secs_f64();
     let rx = spec.nodes[r].transceiver.receiver_range.max.as_secs_f64();
@@ -103,23 +101,9 @@ pub fn handovers(spec: &Spec, line: &LineModel, float_limit: Option<Picos>) -> V
         AccessSpec::Aloha(a) => {
             if a.slotted {
                 let longest = longest_frame(spec);
-                let en = spec
-                    .nodes
-                    .iter()
-                    .map(|n| n.transceiver.enable_time)
-                    .max()
-                    .unwrap_or(Picos::ZERO);
-                let dis = spec
-                    .nodes
-                    .iter()
-                    .map(|n| n.transceiver.disable_time)
-                    .max()
-                    .unwrap_or(Picos::ZERO);
-                out.push(whole_bus(
-                    "slot",
-                    en + longest + dis + max_lag(spec, line),
-                    a.slot_time,
-                ));
+                let en = spec.nodes.iter().map(|n| n.transceiver.enable_time).max().unwrap_or(Picos::ZERO);
+                let dis = spec.nodes.iter().map(|n| n.transceiver.disable_time).max().unwrap_or(Picos::ZERO);
+                out.push(whole_bus("slot", en + longest + dis + max_lag(spec, line), a.slot_time));
             }
         }
         AccessSpec::Arbitration(a) => {
@@ -155,13 +139,7 @@ fn whole_bus(kind: &'static str, min: Picos, configured: Picos) -> Handover {
 }
 
 fn max_lag(spec: &Spec, line: &LineModel) -> Picos {
-    line.max_node_delay
-        + spec
-            .nodes
-            .iter()
-            .map(|n| n.transceiver.receiver_delay)
-            .max()
-            .unwrap_or(Picos::ZERO)
+    line.max_node_delay + spec.nodes.iter().map(|n| n.transceiver.receiver_delay).max().unwrap_or(Picos::ZERO)
 }
 
 fn longest_frame(spec: &Spec) -> Picos {
@@ -181,16 +159,10 @@ fn longest_frame(spec: &Spec) -> Picos {
 /// The CSMA/CD slot: a collision is seen everywhere within a round trip
 /// plus the transceiver times and the detection delay.
 fn csma_slot(spec: &Spec, line: &LineModel, detect: Option<Picos>) -> Picos {
-    let max = |f: fn(&crate::spec::NodeSpec) -> Picos| {
-        spec.nodes.iter().map(f).max().unwrap_or(Picos::ZERO)
-    };
+    let max = |f: fn(&crate::spec::NodeSpec) -> Picos| spec.nodes.iter().map(f).max().unwrap_or(Picos::ZERO);
     let lag = max_lag(spec, line);
     let detect = detect.unwrap_or(max(|n| n.transceiver.receiver_delay));
-    let raw = lag
-        + lag
-        + max(|n| n.transceiver.enable_time)
-        + max(|n| n.transceiver.disable_time)
-        + detect;
+    let raw = lag + lag + max(|n| n.transceiver.enable_time) + max(|n| n.transceiver.disable_time) + detect;
     let tb = spec.frame.bit_time().0.max(1);
     Picos(raw.0.div_ceil(tb).max(1) * tb)
 }
@@ -204,12 +176,14 @@ fn tdma(spec: &Spec, line: &LineModel, t: &crate::spec::TdmaSpec) -> Vec<Handove
         Drift::Within(p) => p * 1e-6,
     };
     let tk = t.timekeeper;
-    let lag = |n: NodeId| {
+    // Uncompensated beacon lag: the releasing owner at its longest receiver
+    // delay (its slot ends latest), the next owner at its shortest (it starts earliest).
+    let lag = |n: NodeId, longest: bool| {
         if t.compensate || n == tk {
             0.0
         } else {
-            // The smallest lag helps the next owner least.
-            (line.delay(tk, n) + spec.nodes[n].transceiver.receiver_range.min).as_secs_f64()
+            let r = &spec.nodes[n].transceiver.receiver_range;
+            (line.delay(tk, n) + if longest { r.max } else { r.min }).as_secs_f64()
         }
     };
     // Owners in cycle order, with each slot's offset after the beacon's end;
@@ -232,7 +206,7 @@ fn tdma(spec: &Spec, line: &LineModel, t: &crate::spec::TdmaSpec) -> Vec<Handove
         let dis = spec.nodes[p].transceiver.disable_range.max.as_secs_f64();
         let d = line.delay(p, r).as_secs_f64();
         let clock = o_r * (1.0 / (1.0 - ep) - 1.0 / (1.0 + er));
-        let need = ((1.0 + er) * (dis + d + clock - (lag(r) - lag(p)))).max(0.0);
+        let need = ((1.0 + er) * (dis + d + clock - (lag(r, false) - lag(p, true)))).max(0.0);
         let min = Picos((need * 1e12).ceil() as u64);
         out.push(Handover {
             from: spec.nodes[p].name.clone(),

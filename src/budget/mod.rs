@@ -30,10 +30,7 @@ pub struct Options {
 
 impl Default for Options {
     fn default() -> Self {
-        Options {
-            stub_fraction: 0.5,
-            float_limit: None,
-        }
+        Options { stub_fraction: 0.5, float_limit: None }
     }
 }
 
@@ -64,12 +61,7 @@ impl Budget {
     pub fn compute(spec: &Spec, options: Options) -> Budget {
         let line = LineModel::new(spec);
         let nodes = (0..spec.nodes.len())
-            .map(|i| {
-                (
-                    spec.nodes[i].name.clone(),
-                    figures::node_figures(spec, &line, i),
-                )
-            })
+            .map(|i| (spec.nodes[i].name.clone(), figures::node_figures(spec, &line, i)))
             .collect();
         let limits = Limits {
             max_bit_rate_bit_s: checks::max_bit_rate(spec, options.stub_fraction),
@@ -107,6 +99,7 @@ pub fn verify(spec: &Spec, handovers: &[Handover]) -> Option<Verification> {
     use crate::spec::{AccessSpec, Latency};
     use crate::units::Picos;
     let worst = handovers.first()?;
+    let from = spec.node_id(&worst.from);
     let set = |spec: &mut Spec, delta: i64| -> Option<()> {
         match &mut spec.access {
             AccessSpec::Polling(p) => {
@@ -118,6 +111,19 @@ pub fn verify(spec: &Spec, handovers: &[Handover]) -> Option<Verification> {
                 apply(&mut t.turnaround, handovers, worst, delta)
             }
             AccessSpec::Tdma(t) => {
+                // The worst clock corner of the worst hand-over: its releasing
+                // owner slow and the next owner fast by their ppm.
+                let (p, r) = (from?, worst.responder?);
+                let ppm = |d: crate::spec::Drift| match d {
+                    crate::spec::Drift::Fixed(x) => x.abs(),
+                    crate::spec::Drift::Within(x) => x,
+                };
+                let (pp, pr) = (ppm(t.drift[p]), ppm(t.drift[r]));
+                for d in t.drift.iter_mut() {
+                    *d = crate::spec::Drift::Fixed(0.0);
+                }
+                t.drift[p] = crate::spec::Drift::Fixed(-pp);
+                t.drift[r] = crate::spec::Drift::Fixed(pr);
                 let g = handovers.iter().map(|h| h.min).max()?;
                 t.guard = Picos((g.0 as i64 + delta).max(0) as u64);
                 Some(())
@@ -148,12 +154,7 @@ pub fn verify(spec: &Spec, handovers: &[Handover]) -> Option<Verification> {
 
 /// Set each responder's turnaround to the largest minimum it needs; move
 /// the worst hand-over's responder by `delta` picoseconds.
-fn apply(
-    turnaround: &mut [crate::units::Picos],
-    handovers: &[Handover],
-    worst: &Handover,
-    delta: i64,
-) -> Option<()> {
+fn apply(turnaround: &mut [crate::units::Picos], handovers: &[Handover], worst: &Handover, delta: i64) -> Option<()> {
     use crate::units::Picos;
     for t in turnaround.iter_mut() {
         *t = Picos::ZERO;

@@ -65,11 +65,7 @@ pub fn worst_overlap(j: Span, k: Span, d: u64) -> Option<Overlap> {
     } else {
         j.position_m + (k.position_m - j.position_m) * ((best_u + d) as f64 / (2 * d) as f64)
     };
-    Some(Overlap {
-        overlap_ps: best as u64,
-        start_ps: start as u64,
-        position_m,
-    })
+    Some(Overlap { overlap_ps: best as u64, start_ps: start as u64, position_m })
 }
 
 #[cfg(test)]
@@ -78,11 +74,7 @@ mod tests {
     use proptest::prelude::*;
 
     fn span(from: u64, to: u64, x: f64) -> Span {
-        Span {
-            from,
-            to,
-            position_m: x,
-        }
+        Span { from, to, position_m: x }
     }
 
     #[test]
@@ -94,10 +86,7 @@ mod tests {
         assert_eq!(o.position_m, 0.1);
         assert_eq!(o.start_ps, 1470);
         // Exactly at the boundary there is no overlap.
-        assert_eq!(
-            worst_overlap(span(0, 1000, 0.0), span(1500, 3000, 0.1), 500),
-            None
-        );
+        assert_eq!(worst_overlap(span(0, 1000, 0.0), span(1500, 3000, 0.1), 500), None);
     }
 
     #[test]

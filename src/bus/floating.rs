@@ -157,13 +157,7 @@ impl FloatingSweep {
 
     /// The closed-form hand-over from the dominant driver p to k. Returns
     /// false (and changes nothing) when its preconditions do not hold.
-    fn try_fast<'a, D: Fn(usize) -> &'a [u64]>(
-        &mut self,
-        k: usize,
-        a: u64,
-        b: u64,
-        rows: &D,
-    ) -> bool {
+    fn try_fast<'a, D: Fn(usize) -> &'a [u64]>(&mut self, k: usize, a: u64, b: u64, rows: &D) -> bool {
         let Some((p, bp)) = self.dominant else {
             return false;
         };
@@ -174,18 +168,11 @@ impl FloatingSweep {
         }
         let key = (p as u32) << 16 | k as u32;
         if !self.profiles.contains_key(&key) {
-            if self.profile_values + self.hazard_ids.len() > PROFILE_BUDGET_VALUES
-                || p > 0xffff
-                || k > 0xffff
-            {
+            if self.profile_values + self.hazard_ids.len() > PROFILE_BUDGET_VALUES || p > 0xffff || k > 0xffff {
                 return false;
             }
             let (rp, rk) = (rows(p), rows(k));
-            let mut sorted: Vec<i64> = self
-                .hazard_ids
-                .iter()
-                .map(|&i| rk[i] as i64 - rp[i] as i64)
-                .collect();
+            let mut sorted: Vec<i64> = self.hazard_ids.iter().map(|&i| rk[i] as i64 - rp[i] as i64).collect();
             sorted.sort_unstable();
             let mut suffix = vec![0i64; sorted.len() + 1];
             for j in (0..sorted.len()).rev() {
@@ -193,14 +180,7 @@ impl FloatingSweep {
             }
             let max_dk = self.hazard_ids.iter().map(|&i| rk[i]).max().unwrap_or(0);
             self.profile_values += sorted.len();
-            self.profiles.insert(
-                key,
-                PairProfile {
-                    sorted,
-                    suffix,
-                    max_dk,
-                },
-            );
+            self.profiles.insert(key, PairProfile { sorted, suffix, max_dk });
         }
         let prof = &self.profiles[&key];
         let (umin, umax) = (prof.sorted[0], *prof.sorted.last().expect("non-empty"));
@@ -274,14 +254,7 @@ mod tests {
         f.feed(0, 500, 900, u64::MAX); // overlaps: no window
         f.finish(1000, |_| &[]);
         // 0..100, 300..350, 900..1000
-        assert_eq!(
-            f.totals,
-            FloatingTotals {
-                windows: 3,
-                total_ps: 250,
-                longest_ps: 100
-            }
-        );
+        assert_eq!(f.totals, FloatingTotals { windows: 3, total_ps: 250, longest_ps: 100 });
     }
 
     #[test]

@@ -88,15 +88,10 @@ pub struct Bus {
 impl Bus {
     pub fn new(spec: &Spec, line: &LineModel) -> Self {
         let window = (spec.warmup.0, spec.duration.0);
-        let receiver_delay: Vec<u64> = spec
-            .nodes
-            .iter()
-            .map(|n| n.transceiver.receiver_delay.0)
-            .collect();
+        let receiver_delay: Vec<u64> = spec.nodes.iter().map(|n| n.transceiver.receiver_delay.0).collect();
         // A receiver is a hazard when the undriven line (biased or not) reads undefined.
-        let hazard = (0..spec.nodes.len())
-            .map(|i| line.idle_state(spec, i) == crate::line::IdleState::Undefined)
-            .collect();
+        let hazard =
+            (0..spec.nodes.len()).map(|i| line.idle_state(spec, i) == crate::line::IdleState::Undefined).collect();
         Bus {
             log: VecDeque::with_capacity(64),
             processed: 0,
@@ -116,25 +111,8 @@ impl Bus {
     /// Record a new occupancy. `a` must not lie before any processed entry's
     /// processing time (the engine guarantees `a ≥ now`).
     #[allow(clippy::too_many_arguments)]
-    pub fn insert(
-        &mut self,
-        id: u64,
-        node: NodeId,
-        a: u64,
-        release: u64,
-        b: u64,
-        frames: u32,
-        dominant: bool,
-    ) {
-        let occ = Occupancy {
-            id,
-            node,
-            a,
-            release,
-            b,
-            pending: frames,
-            dominant,
-        };
+    pub fn insert(&mut self, id: u64, node: NodeId, a: u64, release: u64, b: u64, frames: u32, dominant: bool) {
+        let occ = Occupancy { id, node, a, release, b, pending: frames, dominant };
         let mut at = self.log.len();
         while at > self.processed && self.log[at - 1].a > a {
             at -= 1;
@@ -166,14 +144,7 @@ impl Bus {
 
     /// Does another driver's occupancy overlap the data bits `[s, e)` of a
     /// frame from `src` at the receiver of `dest`?
-    pub fn is_corrupted(
-        &self,
-        line: &LineModel,
-        src: NodeId,
-        dest: NodeId,
-        s: u64,
-        e: u64,
-    ) -> bool {
+    pub fn is_corrupted(&self, line: &LineModel, src: NodeId, dest: NodeId, s: u64, e: u64) -> bool {
         let shift = line.delay_ps(src, dest);
         let (s, e) = (s + shift, e + shift);
         self.log.iter().any(|o| {
@@ -254,16 +225,8 @@ impl Bus {
             if j.b + self.max_delay <= k.a || j.node == k.node || (j.dominant && k.dominant) {
                 continue;
             }
-            let sj = Span {
-                from: j.a,
-                to: j.b,
-                position_m: self.positions[j.node],
-            };
-            let sk = Span {
-                from: k.a,
-                to: k.b,
-                position_m: self.positions[k.node],
-            };
+            let sj = Span { from: j.a, to: j.b, position_m: self.positions[j.node] };
+            let sk = Span { from: k.a, to: k.b, position_m: self.positions[k.node] };
             if let Some(o) = worst_overlap(sj, sk, line.delay_ps(j.node, k.node)) {
                 let ev = ContentionEvent {
                     at: Picos(o.start_ps),
@@ -298,10 +261,7 @@ impl Bus {
         // The log is sorted by enable time, so if the next entry enables at
         // least the largest wire delay after this one, no later entry can
         // reach any receiver first and no bound is needed.
-        let needs_bound = self
-            .log
-            .get(idx + 1)
-            .is_some_and(|m| m.a < k.a + self.max_delay);
+        let needs_bound = self.log.get(idx + 1).is_some_and(|m| m.a < k.a + self.max_delay);
         let next = if !needs_bound {
             None
         } else {
@@ -314,32 +274,11 @@ impl Bus {
             }
             Some(self.scratch.as_slice())
         };
-        self.floating
-            .feed_occupancy(k.node, k.a, k.b, |i| line.delay_row(i), next);
-        self.util.add(
-            if k.dominant {
-                Piece::Dominant
-            } else {
-                Piece::Occupancy
-            },
-            k.a,
-            k.b,
-        );
-        trace.push(BusEvent {
-            t: k.a,
-            node: k.node,
-            kind: BusEventKind::DriverEnable,
-        });
-        trace.push(BusEvent {
-            t: k.release,
-            node: k.node,
-            kind: BusEventKind::DriverRelease,
-        });
-        trace.push(BusEvent {
-            t: k.b,
-            node: k.node,
-            kind: BusEventKind::DriverOff,
-        });
+        self.floating.feed_occupancy(k.node, k.a, k.b, |i| line.delay_row(i), next);
+        self.util.add(if k.dominant { Piece::Dominant } else { Piece::Occupancy }, k.a, k.b);
+        trace.push(BusEvent { t: k.a, node: k.node, kind: BusEventKind::DriverEnable });
+        trace.push(BusEvent { t: k.release, node: k.node, kind: BusEventKind::DriverRelease });
+        trace.push(BusEvent { t: k.b, node: k.node, kind: BusEventKind::DriverOff });
     }
 
     /// Close the run: process everything (as of `now`, which may lie past

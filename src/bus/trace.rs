@@ -47,10 +47,7 @@ pub struct Trace {
 
 impl Trace {
     pub fn new(window: Option<(u64, u64)>) -> Self {
-        Trace {
-            window,
-            events: Vec::new(),
-        }
+        Trace { window, events: Vec::new() }
     }
 
     pub fn enabled(&self) -> bool {

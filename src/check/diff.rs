@@ -20,12 +20,36 @@ pub enum Better {
 pub fn better(path: &str) -> Better {
     let p = path;
     let lower = [
-        "latency_s.", "contention.", "floating.", "frames.corrupted", "frames.dropped", "frames.control_corrupted",
-        "frames.queued_at_end", "utilization.wasted", "timeouts", "collisions", "given_up", "lost", "arbitration_failures",
-        "priority_inversions", "slot_overruns", "beacons_missed", "polls_ignored", "cycle_", "rotation_", "recovery_",
+        "latency_s.",
+        "contention.",
+        "floating.",
+        "frames.corrupted",
+        "frames.dropped",
+        "frames.control_corrupted",
+        "frames.queued_at_end",
+        "utilization.wasted",
+        "timeouts",
+        "collisions",
+        "given_up",
+        "lost",
+        "arbitration_failures",
+        "priority_inversions",
+        "slot_overruns",
+        "beacons_missed",
+        "polls_ignored",
+        "cycle_",
+        "rotation_",
+        "recovery_",
         "deferrals",
     ];
-    let higher = ["throughput.payload_bit_s", "throughput.carried", "frames.delivered", "utilization.payload", "margin_v", "usable_fraction"];
+    let higher = [
+        "throughput.payload_bit_s",
+        "throughput.carried",
+        "frames.delivered",
+        "utilization.payload",
+        "margin_v",
+        "usable_fraction",
+    ];
     if p.ends_with(".count") {
         return Better::Neither;
     }
@@ -53,7 +77,11 @@ pub struct Change {
 
 /// Compare every metric both reports have. `tolerance(path)` is the
 /// relative change allowed before a worse value counts as a regression.
-pub fn compare(base: &BTreeMap<String, f64>, new: &BTreeMap<String, f64>, tolerance: impl Fn(&str) -> f64) -> Vec<Change> {
+pub fn compare(
+    base: &BTreeMap<String, f64>,
+    new: &BTreeMap<String, f64>,
+    tolerance: impl Fn(&str) -> f64,
+) -> Vec<Change> {
     let mut out = Vec::new();
     for (k, &b) in base {
         let Some(&n) = new.get(k) else { continue };
@@ -91,8 +119,10 @@ mod tests {
         assert_eq!(better("latency_s.all.p99"), Better::Lower);
         assert_eq!(better("throughput.payload_bit_s"), Better::Higher);
         assert_eq!(better("latency_s.all.count"), Better::Neither);
-        let base: BTreeMap<String, f64> = [("latency_s.all.p99".into(), 100.0), ("throughput.carried".into(), 0.5)].into();
-        let new: BTreeMap<String, f64> = [("latency_s.all.p99".into(), 110.0), ("throughput.carried".into(), 0.6)].into();
+        let base: BTreeMap<String, f64> =
+            [("latency_s.all.p99".into(), 100.0), ("throughput.carried".into(), 0.5)].into();
+        let new: BTreeMap<String, f64> =
+            [("latency_s.all.p99".into(), 110.0), ("throughput.carried".into(), 0.6)].into();
         let c = compare(&base, &new, |_| 0.02);
         assert_eq!(c.iter().find(|c| c.metric == "latency_s.all.p99").unwrap().verdict, "regression");
         assert_eq!(c.iter().find(|c| c.metric == "throughput.carried").unwrap().verdict, "improvement");

@@ -106,14 +106,23 @@ pub fn resolve(
                 return Err(place(
                     e.value_at,
                     "value",
-                    format!("{} is {}: write the value with a unit, e.g. \"{}\" (a bare {x} is ambiguous)", e.metric, units::describe(d), units::example(d)),
+                    format!(
+                        "{} is {}: write the value with a unit, e.g. \"{}\" (a bare {x} is ambiguous)",
+                        e.metric,
+                        units::describe(d),
+                        units::example(d)
+                    ),
                 ))
             }
             (ExpectValue::Text(s), Some(d)) => units::parse_quantity(s, d).map_err(|err| {
                 place(e.value_at, "value", format!("{} is {}: {}", e.metric, units::describe(d), err.message))
             })?,
             (ExpectValue::Text(s), None) => s.trim().parse::<f64>().map_err(|_| {
-                place(e.value_at, "value", format!("{} is a plain number (a count or a fraction), not \"{s}\"", e.metric))
+                place(
+                    e.value_at,
+                    "value",
+                    format!("{} is a plain number (a count or a fraction), not \"{s}\"", e.metric),
+                )
             })?,
         };
         out.push(Resolved { expectation: e.clone(), required });
@@ -138,7 +147,11 @@ pub struct Outcome {
 
 /// Evaluate against the measured metrics; with `interval`, a confidence
 /// expectation must hold at the unfavourable end of the 95 % interval.
-pub fn evaluate(r: &Resolved, metrics: &BTreeMap<String, f64>, interval: Option<&BTreeMap<String, (f64, f64)>>) -> Outcome {
+pub fn evaluate(
+    r: &Resolved,
+    metrics: &BTreeMap<String, f64>,
+    interval: Option<&BTreeMap<String, (f64, f64)>>,
+) -> Outcome {
     let e = &r.expectation;
     let measured = metrics[&e.metric];
     let (limit, pass) = match (e.confidence, interval.and_then(|i| i.get(&e.metric))) {

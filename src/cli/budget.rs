@@ -43,19 +43,10 @@ pub fn budget(args: BudgetArgs) -> Result<u8, Failure> {
     let float_limit = args
         .float_limit
         .as_deref()
-        .map(|t| {
-            halfwire::units::parse_time(t)
-                .map_err(|e| Failure::input(format!("--float-limit: {e}")))
-        })
+        .map(|t| halfwire::units::parse_time(t).map_err(|e| Failure::input(format!("--float-limit: {e}"))))
         .transpose()?;
     let spec = halfwire::scenario::load(&args.file)?;
-    let b = Budget::compute(
-        &spec,
-        Options {
-            stub_fraction: args.stub_fraction,
-            float_limit,
-        },
-    );
+    let b = Budget::compute(&spec, Options { stub_fraction: args.stub_fraction, float_limit });
     if args.max_nodes {
         print_stdout(&format!("{}\n", b.limits.max_nodes))?;
         return Ok(0);
@@ -147,20 +138,12 @@ fn render(b: &Budget, ver: Option<&budget::Verification>) -> String {
     let _ = writeln!(o);
     let _ = writeln!(o, "Limits");
     if let Some(r) = b.limits.max_bit_rate_bit_s {
-        let _ = writeln!(
-            o,
-            "  max bit rate (edges and stubs) {}",
-            format_si(r, "bit/s")
-        );
+        let _ = writeln!(o, "  max bit rate (edges and stubs) {}", format_si(r, "bit/s"));
     }
     let _ = writeln!(o, "  max nodes at this density {}", b.limits.max_nodes);
     let _ = writeln!(o);
     let _ = writeln!(o, "Hand-overs (worst first)");
-    let _ = writeln!(
-        o,
-        "  {:<14} {:<14} {:<11} {:>12} {:>12}",
-        "from", "to", "kind", "minimum", "set"
-    );
+    let _ = writeln!(o, "  {:<14} {:<14} {:<11} {:>12} {:>12}", "from", "to", "kind", "minimum", "set");
     for h in &b.handovers {
         let _ = writeln!(
             o,
@@ -173,14 +156,7 @@ fn render(b: &Budget, ver: Option<&budget::Verification>) -> String {
             if h.ok { "" } else { "  too short" }
         );
         if let Some(max) = h.max_turnaround_for_float_s {
-            let _ = writeln!(
-                o,
-                "  {:<14} {:<14} {:<11} {:>12}",
-                "",
-                "",
-                "  float max",
-                format_seconds(max)
-            );
+            let _ = writeln!(o, "  {:<14} {:<14} {:<11} {:>12}", "", "", "  float max", format_seconds(max));
         }
     }
     if let Some(v) = ver {
@@ -200,10 +176,7 @@ fn render(b: &Budget, ver: Option<&budget::Verification>) -> String {
             let w = &b.warnings[i];
             let mut names: Vec<&str> = w.node.as_deref().into_iter().collect();
             let mut j = i + 1;
-            while j < b.warnings.len()
-                && b.warnings[j].code == w.code
-                && b.warnings[j].message == w.message
-            {
+            while j < b.warnings.len() && b.warnings[j].code == w.code && b.warnings[j].message == w.message {
                 names.extend(b.warnings[j].node.as_deref());
                 j += 1;
             }

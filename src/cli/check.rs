@@ -118,7 +118,8 @@ pub fn check(args: CheckArgs) -> Result<u8, Failure> {
 /// finishing order, so the output never depends on `jobs`.
 fn run_all(work: &[(PathBuf, Spec, Vec<check::Resolved>)], jobs: usize) -> Vec<ScenarioResult> {
     let next = std::sync::atomic::AtomicUsize::new(0);
-    let slots: Vec<std::sync::Mutex<Option<ScenarioResult>>> = work.iter().map(|_| std::sync::Mutex::new(None)).collect();
+    let slots: Vec<std::sync::Mutex<Option<ScenarioResult>>> =
+        work.iter().map(|_| std::sync::Mutex::new(None)).collect();
     std::thread::scope(|s| {
         for _ in 0..jobs.min(work.len()) {
             s.spawn(|| loop {
@@ -164,7 +165,14 @@ fn render(results: &[ScenarioResult], total: usize, failed: usize) -> String {
         }
     }
     let _ = writeln!(o);
-    let _ = writeln!(o, "{} scenarios, {} expectations: {} passed, {} failed", results.len(), total, total - failed, failed);
+    let _ = writeln!(
+        o,
+        "{} scenarios, {} expectations: {} passed, {} failed",
+        results.len(),
+        total,
+        total - failed,
+        failed
+    );
     o
 }
 
@@ -220,4 +228,3 @@ fn junit(results: &[ScenarioResult]) -> String {
     s.push('\n');
     s
 }
-

@@ -31,8 +31,11 @@ pub struct DiffArgs {
 
 fn percent(s: &str, what: &str) -> Result<f64, Failure> {
     let t = s.trim();
-    let num = t.strip_suffix('%').ok_or_else(|| Failure::input(format!("--tolerance {what}: write a percentage, e.g. \"2%\"")))?;
-    let x: f64 = num.trim().parse().map_err(|_| Failure::input(format!("--tolerance {what}: \"{s}\" is not a percentage")))?;
+    let num = t
+        .strip_suffix('%')
+        .ok_or_else(|| Failure::input(format!("--tolerance {what}: write a percentage, e.g. \"2%\"")))?;
+    let x: f64 =
+        num.trim().parse().map_err(|_| Failure::input(format!("--tolerance {what}: \"{s}\" is not a percentage")))?;
     if !(x >= 0.0 && x.is_finite()) {
         return Err(Failure::input(format!("--tolerance {what}: a tolerance is zero or more")));
     }
@@ -40,9 +43,11 @@ fn percent(s: &str, what: &str) -> Result<f64, Failure> {
 }
 
 fn load(path: &PathBuf) -> Result<Value, Failure> {
-    let text = std::fs::read_to_string(path).map_err(|e| Failure::input(format!("{}: cannot read: {e}", path.display())))?;
-    let v: Value = serde_json::from_str(&text)
-        .map_err(|e| Failure::input(format!("{}:{}:{}: not a JSON report: {e}", path.display(), e.line(), e.column())))?;
+    let text =
+        std::fs::read_to_string(path).map_err(|e| Failure::input(format!("{}: cannot read: {e}", path.display())))?;
+    let v: Value = serde_json::from_str(&text).map_err(|e| {
+        Failure::input(format!("{}:{}:{}: not a JSON report: {e}", path.display(), e.line(), e.column()))
+    })?;
     match v.get("schema").and_then(Value::as_str) {
         Some(s) if s == halfwire::report::SCHEMA => Ok(v),
         Some(s) => Err(Failure::input(format!(
@@ -87,8 +92,9 @@ pub fn diff(args: DiffArgs) -> Result<u8, Failure> {
     let regressions = changes.iter().filter(|c| c.verdict == "regression").count();
     let out = match args.format {
         Format::Json => {
-            let mut s = serde_json::to_string_pretty(&serde_json::json!({ "changes": changes, "regressions": regressions }))
-                .expect("serializable");
+            let mut s =
+                serde_json::to_string_pretty(&serde_json::json!({ "changes": changes, "regressions": regressions }))
+                    .expect("serializable");
             s.push('\n');
             s
         }
@@ -99,7 +105,8 @@ pub fn diff(args: DiffArgs) -> Result<u8, Failure> {
             } else {
                 let _ = writeln!(o, "  {:<40} {:>14} {:>14} {:>9}  verdict", "metric", "base", "new", "change");
                 for c in &changes {
-                    let rel = if c.relative.is_finite() { format!("{:+.1} %", 100.0 * c.relative) } else { "new".into() };
+                    let rel =
+                        if c.relative.is_finite() { format!("{:+.1} %", 100.0 * c.relative) } else { "new".into() };
                     let _ = writeln!(
                         o,
                         "  {:<40} {:>14} {:>14} {:>9}  {}",

@@ -40,10 +40,7 @@ pub struct Failure {
 impl Failure {
     /// Bad input from the user (exit 2).
     pub fn input(message: impl Into<String>) -> Self {
-        Failure {
-            code: 2,
-            message: message.into(),
-        }
+        Failure { code: 2, message: message.into() }
     }
 }
 

@@ -17,19 +17,12 @@ fn folder_of(path: &Path) -> &Path {
 pub fn check_writable(path: &Path, inputs: &[&Path]) -> Result<(), Failure> {
     let dir = folder_of(path);
     if !dir.is_dir() {
-        return Err(Failure::input(format!(
-            "{}: the folder {} does not exist",
-            path.display(),
-            dir.display()
-        )));
+        return Err(Failure::input(format!("{}: the folder {} does not exist", path.display(), dir.display())));
     }
     if let Ok(out) = path.canonicalize() {
         for input in inputs {
             if input.canonicalize().is_ok_and(|i| i == out) {
-                return Err(Failure::input(format!(
-                    "{}: refusing to overwrite an input file",
-                    path.display()
-                )));
+                return Err(Failure::input(format!("{}: refusing to overwrite an input file", path.display())));
             }
         }
     }
@@ -47,10 +40,7 @@ pub struct AtomicFile {
 impl AtomicFile {
     pub fn create(path: &Path) -> Result<Self, Failure> {
         let tmp = tempfile::NamedTempFile::new_in(folder_of(path)).map_err(|e| fail(path, e))?;
-        Ok(AtomicFile {
-            path: path.to_owned(),
-            tmp,
-        })
+        Ok(AtomicFile { path: path.to_owned(), tmp })
     }
 
     pub fn write(&mut self, data: &[u8]) -> Result<(), Failure> {
@@ -64,10 +54,7 @@ impl AtomicFile {
         #[cfg(unix)]
         {
             use std::os::unix::fs::PermissionsExt;
-            let _ = self
-                .tmp
-                .as_file()
-                .set_permissions(std::fs::Permissions::from_mode(0o644));
+            let _ = self.tmp.as_file().set_permissions(std::fs::Permissions::from_mode(0o644));
         }
         let path = self.path.clone();
         self.tmp.persist(&path).map_err(|e| fail(&path, e.error))?;
@@ -86,9 +73,6 @@ pub fn print_stdout(text: &str) -> Result<(), Failure> {
     match out.write_all(text.as_bytes()).and_then(|_| out.flush()) {
         Ok(()) => Ok(()),
         Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => Ok(()),
-        Err(e) => Err(Failure {
-            code: 1,
-            message: format!("cannot write to stdout: {e}"),
-        }),
+        Err(e) => Err(Failure { code: 1, message: format!("cannot write to stdout: {e}") }),
     }
 }

@@ -43,17 +43,13 @@ pub struct RunArgs {
 
 /// Parse "A..B" with units on both ends.
 pub fn parse_window(s: &str, duration: Picos) -> Result<(Picos, Picos), Failure> {
-    let (a, b) = s.split_once("..").ok_or_else(|| {
-        Failure::input(format!(
-            "--window {s:?}: write it as A..B, e.g. \"0us..50us\""
-        ))
-    })?;
+    let (a, b) = s
+        .split_once("..")
+        .ok_or_else(|| Failure::input(format!("--window {s:?}: write it as A..B, e.g. \"0us..50us\"")))?;
     let a = units::parse_time(a).map_err(|e| Failure::input(format!("--window start: {e}")))?;
     let b = units::parse_time(b).map_err(|e| Failure::input(format!("--window end: {e}")))?;
     if a > b {
-        return Err(Failure::input(format!(
-            "--window {s:?}: the start ({a}) is after the end ({b})"
-        )));
+        return Err(Failure::input(format!("--window {s:?}: the start ({a}) is after the end ({b})")));
     }
     if a >= duration {
         return Err(Failure::input(format!(
@@ -84,9 +80,7 @@ pub fn run(args: RunArgs) -> Result<u8, Failure> {
     let mut spec = halfwire::scenario::load(&args.file)?;
     apply_overrides(&mut spec, &args)?;
     if args.window.is_some() && args.events.is_none() {
-        return Err(Failure::input(
-            "--window needs an output that uses it: give --events FILE",
-        ));
+        return Err(Failure::input("--window needs an output that uses it: give --events FILE"));
     }
     let window = match &args.events {
         Some(path) => {
@@ -144,20 +138,12 @@ struct EventLog {
 
 impl EventLog {
     fn new(file: AtomicFile) -> Self {
-        EventLog {
-            file,
-            pending: Vec::new(),
-        }
+        EventLog { file, pending: Vec::new() }
     }
 
     /// Add events; write out every pending event before `settled` (all of
     /// them when `None`).
-    fn take(
-        &mut self,
-        spec: &Spec,
-        events: Vec<BusEvent>,
-        settled: Option<Picos>,
-    ) -> Result<(), Failure> {
+    fn take(&mut self, spec: &Spec, events: Vec<BusEvent>, settled: Option<Picos>) -> Result<(), Failure> {
         self.pending.extend(events);
         // Stable sort: events at one instant keep the order they were recorded in.
         self.pending.sort_by_key(|e| e.t);
@@ -189,11 +175,9 @@ fn drive(sim: &mut Simulation, spec: &Spec, mut after_slice: impl FnMut(&mut Sim
         if tty && bar.is_none() && started.elapsed() > Duration::from_secs(1) {
             let b = indicatif::ProgressBar::new(SLICES);
             b.set_style(
-                indicatif::ProgressStyle::with_template(
-                    "{spinner} simulated {msg} [{bar:40}] {percent}% eta {eta}",
-                )
-                .expect("valid template")
-                .progress_chars("=> "),
+                indicatif::ProgressStyle::with_template("{spinner} simulated {msg} [{bar:40}] {percent}% eta {eta}")
+                    .expect("valid template")
+                    .progress_chars("=> "),
             );
             bar = Some(b);
         }
@@ -223,21 +207,13 @@ fn render_events(spec: &Spec, events: &[BusEvent]) -> String {
                 m.insert("to".into(), json!(name(to)));
                 "frame_start"
             }
-            BusEventKind::FrameEnd {
-                frame,
-                to,
-                corrupted,
-            } => {
+            BusEventKind::FrameEnd { frame, to, corrupted } => {
                 m.insert("frame".into(), json!(frame));
                 m.insert("to".into(), json!(name(to)));
                 m.insert("corrupted".into(), json!(corrupted));
                 "frame_end"
             }
-            BusEventKind::Contention {
-                other,
-                position_m,
-                overlap_ps,
-            } => {
+            BusEventKind::Contention { other, position_m, overlap_ps } => {
                 m.insert("other".into(), json!(name(other)));
                 m.insert("position_m".into(), json!(position_m));
                 m.insert("overlap_s".into(), json!(overlap_ps as f64 * 1e-12));

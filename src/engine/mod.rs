@@ -92,13 +92,7 @@ impl Simulation {
         let world = World::new(spec.clone(), trace);
         let scheme = scheme::build(spec);
         let sources = traffic::sources(spec);
-        Simulation {
-            world,
-            scheme,
-            sources,
-            started: false,
-            stalled: None,
-        }
+        Simulation { world, scheme, sources, started: false, stalled: None }
     }
 
     pub fn now(&self) -> Picos {
@@ -130,9 +124,7 @@ impl Simulation {
         for (i, src) in self.sources.iter_mut().enumerate() {
             let t = src.next_arrival(Picos::ZERO);
             if t < duration {
-                self.world
-                    .queue
-                    .push(t, Event::Arrival { source: i as u32 });
+                self.world.queue.push(t, Event::Arrival { source: i as u32 });
             }
         }
         self.scheme.start(&mut self.world);
@@ -163,9 +155,7 @@ impl Simulation {
             self.world.events += 1;
             match ev {
                 Event::Arrival { source } => self.on_arrival(source as usize),
-                Event::Timer { node, tag } => {
-                    self.scheme.on_timer(&mut self.world, node as usize, tag)
-                }
+                Event::Timer { node, tag } => self.scheme.on_timer(&mut self.world, node as usize, tag),
                 Event::Deliver { frame, to } => self.on_deliver(frame, to as usize),
             }
             let w = &mut self.world;
@@ -202,16 +192,11 @@ impl Simulation {
             if let Event::Deliver { frame, to } = ev {
                 w.now = w.now.max(t);
                 let f = w.frames[frame as usize];
-                let corrupted =
-                    f.aborted || w.bus.is_corrupted(&w.line, f.src, to as usize, f.s, f.e);
+                let corrupted = f.aborted || w.bus.is_corrupted(&w.line, f.src, to as usize, f.s, f.e);
                 w.trace.push(BusEvent {
                     t: f.e,
                     node: f.src,
-                    kind: BusEventKind::FrameEnd {
-                        frame: f.kind.name(),
-                        to: to as usize,
-                        corrupted,
-                    },
+                    kind: BusEventKind::FrameEnd { frame: f.kind.name(), to: to as usize, corrupted },
                 });
                 let rec = &mut w.frames[frame as usize];
                 rec.remaining -= 1;
@@ -246,21 +231,10 @@ impl Simulation {
         let node = src.node;
         let payload_bits = src.draw_payload();
         let dest = src.dest(self.scheme.default_destination(node));
-        let msg = Message {
-            arrival: now.0,
-            payload_bits,
-            source: node,
-            dest,
-            flow: src.flow,
-        };
+        let msg = Message { arrival: now.0, payload_bits, source: node, dest, flow: src.flow };
         let next = src.next_arrival(now);
         if next < self.world.spec.duration {
-            self.world.queue.push(
-                next,
-                Event::Arrival {
-                    source: source as u32,
-                },
-            );
+            self.world.queue.push(next, Event::Arrival { source: source as u32 });
         }
         let w = &mut self.world;
         let counted = w.in_window(now);
@@ -313,11 +287,7 @@ impl Simulation {
             w.trace.push(BusEvent {
                 t: f.e,
                 node: f.src,
-                kind: BusEventKind::FrameEnd {
-                    frame: f.kind.name(),
-                    to,
-                    corrupted,
-                },
+                kind: BusEventKind::FrameEnd { frame: f.kind.name(), to, corrupted },
             });
         }
         let rec = &mut w.frames[idx as usize];
@@ -353,8 +323,7 @@ fn add_frame_pieces(w: &mut World, f: &world::FrameRec, corrupted: bool) {
         (FrameKind::Data, Some(m)) if f.data_bits > 0 => {
             // Overhead and payload share the frame in proportion to their data bits.
             let wire = f.e - f.s;
-            let overhead = ((wire as u128 * u128::from(f.data_bits - m.payload_bits))
-                / u128::from(f.data_bits)) as u64;
+            let overhead = ((wire as u128 * u128::from(f.data_bits - m.payload_bits)) / u128::from(f.data_bits)) as u64;
             w.bus.util.add(Piece::Overhead, f.s, f.s + overhead);
             w.bus.util.add(Piece::Payload, f.s + overhead, f.e);
         }
@@ -369,11 +338,8 @@ mod tests {
     #[test]
     fn a_cycle_without_time_is_caught_as_a_stall() {
         // Validation refuses zero-bit frames; force one past it to check the guard.
-        let text = std::fs::read_to_string(concat!(
-            env!("CARGO_MANIFEST_DIR"),
-            "/scenarios/fruit-grader.toml"
-        ))
-        .unwrap();
+        let text =
+            std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/scenarios/fruit-grader.toml")).unwrap();
         let mut spec = crate::scenario::parse_str(&text, "fruit-grader.toml").unwrap();
         if let crate::spec::AccessSpec::Polling(p) = &mut spec.access {
             p.request_bits = 0;
@@ -390,11 +356,8 @@ mod tests {
 
     #[test]
     fn slicing_a_run_changes_nothing() {
-        let text = std::fs::read_to_string(concat!(
-            env!("CARGO_MANIFEST_DIR"),
-            "/scenarios/fruit-grader.toml"
-        ))
-        .unwrap();
+        let text =
+            std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/scenarios/fruit-grader.toml")).unwrap();
         let mut spec = crate::scenario::parse_str(&text, "fruit-grader.toml").unwrap();
         spec.duration = Picos::from_ms(6);
         let strip = |r: Report| {

@@ -48,10 +48,7 @@ pub struct EventQueue<E> {
 
 impl<E: Copy> EventQueue<E> {
     pub fn with_capacity(cap: usize) -> Self {
-        EventQueue {
-            heap: BinaryHeap::with_capacity(cap),
-            next_seq: 0,
-        }
+        EventQueue { heap: BinaryHeap::with_capacity(cap), next_seq: 0 }
     }
 
     pub fn push(&mut self, time: Picos, event: E) {
@@ -67,9 +64,7 @@ impl<E: Copy> EventQueue<E> {
     }
 
     pub fn pop(&mut self) -> Option<(Picos, E)> {
-        self.heap
-            .pop()
-            .map(|e| (Picos((e.key >> 64) as u64), e.event))
+        self.heap.pop().map(|e| (Picos((e.key >> 64) as u64), e.event))
     }
 
     pub fn len(&self) -> usize {

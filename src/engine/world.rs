@@ -45,12 +45,7 @@ impl FrameOut {
 
     /// A control frame of `data_bits` total data bits.
     pub fn control(kind: FrameKind, dest: Dest, data_bits: u64) -> Self {
-        FrameOut {
-            kind,
-            dest,
-            data_bits,
-            message: None,
-        }
+        FrameOut { kind, dest, data_bits, message: None }
     }
 }
 
@@ -132,8 +127,7 @@ impl World {
             for node in &mut spec.nodes {
                 let mut rng = super::rng::stream(spec.seed, &node.name, "timing");
                 let t = &mut node.transceiver;
-                let mut draw =
-                    |r: crate::spec::TimeRange| Picos(rng.random_range(r.min.0..=r.max.0));
+                let mut draw = |r: crate::spec::TimeRange| Picos(rng.random_range(r.min.0..=r.max.0));
                 t.enable_time = draw(t.enable_range);
                 t.disable_time = draw(t.disable_range);
                 t.receiver_delay = draw(t.receiver_range);
@@ -142,16 +136,9 @@ impl World {
         let line = LineModel::new(&spec);
         let bus = Bus::new(&spec, &line);
         let n = spec.nodes.len();
-        let access_rng = spec
-            .nodes
-            .iter()
-            .map(|node| super::rng::stream(spec.seed, &node.name, "access"))
-            .collect();
-        let queue_limit = spec
-            .nodes
-            .iter()
-            .map(|n| n.queue_limit.unwrap_or(crate::spec::DEFAULT_QUEUE_LIMIT))
-            .collect();
+        let access_rng = spec.nodes.iter().map(|node| super::rng::stream(spec.seed, &node.name, "access")).collect();
+        let queue_limit =
+            spec.nodes.iter().map(|n| n.queue_limit.unwrap_or(crate::spec::DEFAULT_QUEUE_LIMIT)).collect();
         let mut stats = Stats::new(n);
         let id_index = spec
             .nodes
@@ -161,9 +148,7 @@ impl World {
                     .iter()
                     .map(|t| {
                         t.id.map(|id| {
-                            stats
-                                .latency_id
-                                .push((id, crate::stats::LatencyStats::new()));
+                            stats.latency_id.push((id, crate::stats::LatencyStats::new()));
                             (stats.latency_id.len() - 1) as u32
                         })
                     })
@@ -225,11 +210,7 @@ impl World {
 
     /// Take the queued message of `node` with the smallest `key` (the oldest
     /// among equals), e.g. the highest-priority identifier.
-    pub fn pop_message_min_by_key<K: Ord>(
-        &mut self,
-        node: NodeId,
-        key: impl Fn(&Message) -> K,
-    ) -> Option<Message> {
+    pub fn pop_message_min_by_key<K: Ord>(&mut self, node: NodeId, key: impl Fn(&Message) -> K) -> Option<Message> {
         let q = &mut self.queues[node];
         let best = (0..q.len()).min_by_key(|&i| (key(&q[i]), i))?;
         q.remove(best)
@@ -277,9 +258,7 @@ impl World {
     /// If the receiver of `node` shows another driver now, until when the
     /// activity it shows lasts (a later signal may extend it: sense again then).
     pub fn carrier_until(&self, node: NodeId) -> Option<Picos> {
-        self.bus
-            .sensed_until(&self.line, node, self.now.0)
-            .map(Picos)
+        self.bus.sensed_until(&self.line, node, self.now.0).map(Picos)
     }
 
     /// The transmissions the bus still holds: recent, running and scheduled.
@@ -295,12 +274,8 @@ impl World {
         let now = self.now.0;
         let enable_time = self.spec.nodes[node].transceiver.enable_time.0;
         let jam = self.spec.frame.duration(jam_bits).0;
-        let release = now.max(
-            self.bus
-                .occupancies()
-                .find(|o| o.id == occupancy)
-                .map_or(now, |o| o.a + enable_time),
-        ) + jam;
+        let release =
+            now.max(self.bus.occupancies().find(|o| o.id == occupancy).map_or(now, |o| o.a + enable_time)) + jam;
         let off = release + self.spec.nodes[node].transceiver.disable_time.0;
         for i in 0..self.frames.len() {
             let f = self.frames[i];
@@ -313,21 +288,12 @@ impl World {
             rec.e = rec.s.max(now);
             rec.aborted = true;
         }
-        self.bus.util.add(
-            crate::stats::utilization::Piece::Wasted,
-            release - jam,
-            release,
-        );
+        self.bus.util.add(crate::stats::utilization::Piece::Wasted, release - jam, release);
         self.bus.cut_short(occupancy, release, off);
         self.last_release[node] = release;
         TxTimes {
-            enable: Picos(
-                self.bus
-                    .occupancies()
-                    .find(|o| o.id == occupancy)
-                    .map_or(now, |o| o.a),
-            ),
-            first_bit: Picos(now),
+            enable: Picos(self.bus.occupancies().find(|o| o.id == occupancy).map_or(now, |o| o.a)),
+            first_bit: Picos(self.bus.occupancies().find(|o| o.id == occupancy).map_or(now, |o| o.a + enable_time)),
             release: Picos(release),
             off: Picos(off),
             occupancy,
@@ -337,30 +303,16 @@ impl World {
     /// Fire `on_timer(node, tag)` at `at` (not in the past).
     pub fn set_timer(&mut self, node: NodeId, at: Picos, tag: u64) {
         debug_assert!(at >= self.now, "timer in the past");
-        self.queue.push(
-            at.max(self.now),
-            Event::Timer {
-                node: node as u32,
-                tag,
-            },
-        );
+        self.queue.push(at.max(self.now), Event::Timer { node: node as u32, tag });
     }
 
     /// Start assembling a transmission whose enable is asserted at `at` (not in the past).
     pub fn begin_tx(&mut self, node: NodeId, at: Picos) {
-        assert!(
-            self.tx.is_none(),
-            "begin_tx while another transmission is open"
-        );
+        assert!(self.tx.is_none(), "begin_tx while another transmission is open");
         let at = at.max(self.now).0;
         let enable_time = self.spec.nodes[node].transceiver.enable_time.0;
-        self.tx = Some(TxBuild {
-            node,
-            enable: at,
-            cursor: at + enable_time,
-            frames: 0,
-            occupancy: self.bus.reserve_id(),
-        });
+        self.tx =
+            Some(TxBuild { node, enable: at, cursor: at + enable_time, frames: 0, occupancy: self.bus.reserve_id() });
     }
 
     /// Append a frame to the open transmission, after the interframe gap if
@@ -402,16 +354,8 @@ impl World {
             }
         };
         let deliver = |to: NodeId, q: &mut EventQueue<Event>| {
-            let t = e
-                + self.line.delay_ps(tx.node, to)
-                + self.spec.nodes[to].transceiver.receiver_delay.0;
-            q.push(
-                Picos(t),
-                Event::Deliver {
-                    frame: idx,
-                    to: to as u32,
-                },
-            );
+            let t = e + self.line.delay_ps(tx.node, to) + self.spec.nodes[to].transceiver.receiver_delay.0;
+            q.push(Picos(t), Event::Deliver { frame: idx, to: to as u32 });
         };
         match f.dest {
             Dest::Node(to) => deliver(to, &mut self.queue),
@@ -431,10 +375,7 @@ impl World {
             self.trace.push(BusEvent {
                 t: s,
                 node: tx.node,
-                kind: BusEventKind::FrameStart {
-                    frame: f.kind.name(),
-                    to,
-                },
+                kind: BusEventKind::FrameStart { frame: f.kind.name(), to },
             });
         }
         self.tx = Some(tx);
@@ -448,15 +389,7 @@ impl World {
         let first_bit = tx.enable + self.spec.nodes[tx.node].transceiver.enable_time.0;
         let release = tx.cursor;
         let off = release + disable;
-        self.bus.insert(
-            tx.occupancy,
-            tx.node,
-            tx.enable,
-            release,
-            off,
-            tx.frames,
-            false,
-        );
+        self.bus.insert(tx.occupancy, tx.node, tx.enable, release, off, tx.frames, false);
         TxTimes {
             enable: Picos(tx.enable),
             first_bit: Picos(first_bit),
@@ -475,10 +408,7 @@ impl World {
     /// (not in the past), release at `release`. Returns the occupancy id.
     pub fn drive_dominant(&mut self, node: NodeId, enable: Picos, release: Picos) -> u64 {
         let a = enable.max(self.now).0;
-        assert!(
-            a >= self.last_release[node],
-            "scheme error: dominant drive before the previous release"
-        );
+        assert!(a >= self.last_release[node], "scheme error: dominant drive before the previous release");
         let release = release.0.max(a);
         let off = release + self.spec.nodes[node].transceiver.disable_time.0;
         let id = self.bus.reserve_id();

@@ -52,10 +52,7 @@ pub fn lookup(name: &str) -> Option<Family> {
         // receiver; one unit load (12 kΩ); common mode −7 V to +12 V.
         "tia485" => Some(Family {
             name: "tia485",
-            driver: Driver::Voltage {
-                open_circuit_v: 1.5,
-                output_ohm: 0.0,
-            },
+            driver: Driver::Voltage { open_circuit_v: 1.5, output_ohm: 0.0 },
             receiver: ReceiverClass::tia485(),
             input_ohm: UNIT_LOAD_OHM,
             transition_time: None,

@@ -52,12 +52,13 @@ pub fn amplitude_of(line: &LineModel, node: usize) -> f64 {
 
 /// The weakest driver on the bus and its amplitude.
 pub fn weakest(line: &LineModel) -> (usize, f64) {
-    (0..line.amplitude_v.len())
-        .map(|i| (i, amplitude_of(line, i)))
-        .fold(
-            (0, f64::INFINITY),
-            |acc, x| if x.1 < acc.1 { x } else { acc },
-        )
+    (0..line.amplitude_v.len()).map(|i| (i, amplitude_of(line, i))).fold((0, f64::INFINITY), |acc, x| {
+        if x.1 < acc.1 {
+            x
+        } else {
+            acc
+        }
+    })
 }
 
 pub fn line_figures(spec: &Spec, line: &LineModel) -> LineFigures {
@@ -67,10 +68,7 @@ pub fn line_figures(spec: &Spec, line: &LineModel) -> LineFigures {
         .iter()
         .enumerate()
         .map(|(i, n)| (i, n.transceiver.receiver.margin_v(amp)))
-        .fold(
-            (0, f64::INFINITY),
-            |acc, x| if x.1 < acc.1 { x } else { acc },
-        );
+        .fold((0, f64::INFINITY), |acc, x| if x.1 < acc.1 { x } else { acc });
     let (reflection_near, reflection_far) = line.reflections();
     LineFigures {
         loaded_impedance_ohm: line.loaded.impedance_ohm,

@@ -31,18 +31,9 @@ impl LoadedLine {
     /// `total_load_f` is the sum of every node's load capacitance.
     pub fn new(z0_ohm: f64, tpd0_s_per_m: f64, length_m: f64, total_load_f: f64) -> Self {
         let c0 = tpd0_s_per_m / z0_ohm;
-        let added = if length_m > 0.0 {
-            total_load_f / length_m
-        } else {
-            0.0
-        };
+        let added = if length_m > 0.0 { total_load_f / length_m } else { 0.0 };
         let k = (1.0 + added / c0).sqrt();
-        LoadedLine {
-            c0_f_per_m: c0,
-            added_f_per_m: added,
-            impedance_ohm: z0_ohm / k,
-            delay_s_per_m: tpd0_s_per_m * k,
-        }
+        LoadedLine { c0_f_per_m: c0, added_f_per_m: added, impedance_ohm: z0_ohm / k, delay_s_per_m: tpd0_s_per_m * k }
     }
 
     /// The loading ratio C_d·n / C0.
@@ -128,10 +119,6 @@ mod tests {
         // 120 ∥ 120 ∥ 750 Ω = 55.56 Ω, by hand: 60·750/810. (The reference sheet
         // quotes this network as "≈ 54 Ω", the TIA-485-A test load from memory;
         // the exact combination is 3 % above it.)
-        assert!(close(
-            parallel(parallel(120.0, 120.0), 750.0),
-            55.5556,
-            1e-5
-        ));
+        assert!(close(parallel(parallel(120.0, 120.0), 750.0), 55.5556, 1e-5));
     }
 }

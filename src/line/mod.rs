@@ -48,20 +48,14 @@ pub struct LineModel {
 impl LineModel {
     pub fn new(spec: &Spec) -> Self {
         let total_load: f64 = spec.nodes.iter().map(|n| n.transceiver.load_f).sum();
-        let loaded = LoadedLine::new(
-            spec.line.impedance_ohm,
-            spec.line.delay_s_per_m,
-            spec.line.length_m,
-            total_load,
-        );
+        let loaded = LoadedLine::new(spec.line.impedance_ohm, spec.line.delay_s_per_m, spec.line.length_m, total_load);
         let ends = Ends::resolve(&spec.line.termination, loaded.impedance_ohm);
         let n = spec.nodes.len();
         let mut delays = vec![0u64; n * n];
         let mut max = 0;
         for (i, a) in spec.nodes.iter().enumerate() {
             for (j, b) in spec.nodes.iter().enumerate() {
-                let d = ((a.position_m - b.position_m).abs() * loaded.delay_s_per_m * 1e12).round()
-                    as u64;
+                let d = ((a.position_m - b.position_m).abs() * loaded.delay_s_per_m * 1e12).round() as u64;
                 delays[i * n + j] = d;
                 max = max.max(d);
             }
@@ -69,19 +63,11 @@ impl LineModel {
         let drive_load_ohm: Vec<f64> = spec
             .nodes
             .iter()
-            .map(|node| {
-                ends.step_load_ohm(node.position_m, spec.line.length_m, loaded.impedance_ohm)
-            })
+            .map(|node| ends.step_load_ohm(node.position_m, spec.line.length_m, loaded.impedance_ohm))
             .collect();
-        let amplitude_v = spec
-            .nodes
-            .iter()
-            .zip(&drive_load_ohm)
-            .map(|(node, r)| node.transceiver.driver.amplitude_v(*r))
-            .collect();
-        let inputs = spec.nodes.iter().fold(f64::INFINITY, |acc, n| {
-            loaded::parallel(acc, n.transceiver.input_ohm)
-        });
+        let amplitude_v =
+            spec.nodes.iter().zip(&drive_load_ohm).map(|(node, r)| node.transceiver.driver.amplitude_v(*r)).collect();
+        let inputs = spec.nodes.iter().fold(f64::INFINITY, |acc, n| loaded::parallel(acc, n.transceiver.input_ohm));
         // The undriven network across the pair: terminations ∥ receiver inputs.
         let network = loaded::parallel(ends.dc_load_ohm(), inputs);
         let (idle_v, bias_ohm) = match spec.line.bias {
@@ -89,26 +75,14 @@ impl LineModel {
             // form a divider with the network: V = V_s·R_p / (R_up + R_down + R_p).
             Some(b) => {
                 let series = b.pull_up_ohm + b.pull_down_ohm;
-                let v = if network.is_infinite() {
-                    b.supply_v
-                } else {
-                    b.supply_v * network / (series + network)
-                };
+                let v = if network.is_infinite() { b.supply_v } else { b.supply_v * network / (series + network) };
                 (v, series)
             }
             None => (0.0, f64::INFINITY),
         };
         let dc_load_ohm = loaded::parallel(network, bias_ohm);
-        let amplitude_dc_v = spec
-            .nodes
-            .iter()
-            .map(|n| n.transceiver.driver.amplitude_v(dc_load_ohm))
-            .collect();
-        let unit_loads = spec
-            .nodes
-            .iter()
-            .map(|n| crate::spec::UNIT_LOAD_OHM / n.transceiver.input_ohm)
-            .sum();
+        let amplitude_dc_v = spec.nodes.iter().map(|n| n.transceiver.driver.amplitude_v(dc_load_ohm)).collect();
+        let unit_loads = spec.nodes.iter().map(|n| crate::spec::UNIT_LOAD_OHM / n.transceiver.input_ohm).sum();
         LineModel {
             loaded,
             ends,
@@ -163,9 +137,6 @@ impl LineModel {
             .iter()
             .copied()
             .enumerate()
-            .fold(
-                (0, f64::INFINITY),
-                |acc, (i, v)| if v < acc.1 { (i, v) } else { acc },
-            )
+            .fold((0, f64::INFINITY), |acc, (i, v)| if v < acc.1 { (i, v) } else { acc })
     }
 }

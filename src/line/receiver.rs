@@ -24,36 +24,20 @@ pub enum IdleState {
 impl ReceiverClass {
     /// Multipoint-LVDS type-1 receiver: ±50 mV (TIA/EIA-899; common practice, from memory).
     pub fn type1() -> Self {
-        Self {
-            name: "type1".into(),
-            low_v: -0.050,
-            high_v: 0.050,
-        }
+        Self { name: "type1".into(), low_v: -0.050, high_v: 0.050 }
     }
     /// Multipoint-LVDS type-2 receiver: low below +50 mV, high above +150 mV, so an idle
     /// line reads low (TIA/EIA-899; common practice, from memory).
     pub fn type2() -> Self {
-        Self {
-            name: "type2".into(),
-            low_v: 0.050,
-            high_v: 0.150,
-        }
+        Self { name: "type2".into(), low_v: 0.050, high_v: 0.150 }
     }
     /// LVDS receiver: ±100 mV (TIA/EIA-644; common practice, from memory).
     pub fn lvds() -> Self {
-        Self {
-            name: "lvds".into(),
-            low_v: -0.100,
-            high_v: 0.100,
-        }
+        Self { name: "lvds".into(), low_v: -0.100, high_v: 0.100 }
     }
     /// TIA-485-A receiver: ±200 mV (common practice, from memory).
     pub fn tia485() -> Self {
-        Self {
-            name: "tia485".into(),
-            low_v: -0.200,
-            high_v: 0.200,
-        }
+        Self { name: "tia485".into(), low_v: -0.200, high_v: 0.200 }
     }
 
     /// The state read at a differential input voltage `v`.

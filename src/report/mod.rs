@@ -149,11 +149,8 @@ impl Report {
             control_corrupted: st.frames.control_corrupted,
             queued_at_end: w.queues.iter().map(|q| q.len() as u64).sum(),
         };
-        let mean_wire_s = if st.data_frames_sent > 0 {
-            st.data_wire_ps as f64 / st.data_frames_sent as f64 * 1e-12
-        } else {
-            0.0
-        };
+        let mean_wire_s =
+            if st.data_frames_sent > 0 { st.data_wire_ps as f64 / st.data_frames_sent as f64 * 1e-12 } else { 0.0 };
         let throughput = Throughput {
             payload_bit_s: per_s(st.payload_bits as f64),
             carried: per_s(st.carried_ps as f64 * 1e-12),
@@ -167,16 +164,8 @@ impl Report {
             .filter(|(_, n)| !n.traffic.is_empty())
             .map(|(i, n)| (n.name.clone(), st.latency_node[i].summary()))
             .collect();
-        let ids = st
-            .latency_id
-            .iter()
-            .map(|(id, l)| (format!("{id:#06x}"), l.summary()))
-            .collect();
-        let latency = Latency {
-            all: st.latency_all.summary(),
-            nodes,
-            ids,
-        };
+        let ids = st.latency_id.iter().map(|(id, l)| (format!("{id:#06x}"), l.summary())).collect();
+        let latency = Latency { all: st.latency_all.summary(), nodes, ids };
         let c = &w.bus.contention;
         let contention = Contention {
             events: c.events,
@@ -187,10 +176,7 @@ impl Report {
                 .iter()
                 .map(|e| ContentionItem {
                     at_s: e.at.as_secs_f64(),
-                    nodes: [
-                        spec.nodes[e.first].name.clone(),
-                        spec.nodes[e.second].name.clone(),
-                    ],
+                    nodes: [spec.nodes[e.first].name.clone(), spec.nodes[e.second].name.clone()],
                     position_m: e.position_m,
                     overlap_s: e.overlap.as_secs_f64(),
                 })
@@ -223,10 +209,7 @@ impl Report {
         let warnings = warnings(w, amp, &contention, &floating, &frames);
         Report {
             schema: SCHEMA,
-            scenario: ScenarioId {
-                name: spec.name.clone(),
-                seed: spec.seed,
-            },
+            scenario: ScenarioId { name: spec.name.clone(), seed: spec.seed },
             simulated_s: measured,
             frames,
             throughput,
@@ -238,21 +221,14 @@ impl Report {
             scheme,
             warnings,
             stalled_at_s: None,
-            run: RunInfo {
-                events: w.events,
-                ..RunInfo::default()
-            },
+            run: RunInfo { events: w.events, ..RunInfo::default() },
         }
     }
 
     /// Fill the machine-dependent `run` object.
     pub fn set_wall_time(&mut self, wall_s: f64) {
         self.run.wall_s = wall_s;
-        self.run.events_per_s = if wall_s > 0.0 {
-            self.run.events as f64 / wall_s
-        } else {
-            0.0
-        };
+        self.run.events_per_s = if wall_s > 0.0 { self.run.events as f64 / wall_s } else { 0.0 };
     }
 }
 

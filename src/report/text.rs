@@ -126,11 +126,7 @@ pub fn render(r: &Report, color: bool) -> String {
             latency_row(&mut o, name, l);
         }
     } else {
-        let _ = writeln!(
-            o,
-            "  ({} sources; per-node figures in --format json)",
-            r.latency_s.nodes.len()
-        );
+        let _ = writeln!(o, "  ({} sources; per-node figures in --format json)", r.latency_s.nodes.len());
     }
     let _ = writeln!(o);
     let _ = writeln!(o, "{}", st.head.apply_to("Hand-overs"));
@@ -141,15 +137,7 @@ pub fn render(r: &Report, color: bool) -> String {
         format_seconds(c.overlap_total_s),
         format_seconds(c.overlap_max_s)
     );
-    let _ = writeln!(
-        o,
-        "{}",
-        if c.events > 0 {
-            st.bad.apply_to(cline)
-        } else {
-            st.good.apply_to(cline)
-        }
-    );
+    let _ = writeln!(o, "{}", if c.events > 0 { st.bad.apply_to(cline) } else { st.good.apply_to(cline) });
     for e in &c.first {
         let _ = writeln!(
             o,
@@ -163,10 +151,7 @@ pub fn render(r: &Report, color: bool) -> String {
     }
     let fl = &r.floating;
     if fl.hazard_receivers.is_empty() {
-        let _ = writeln!(
-            o,
-            "  floating line: no receiver reads an idle line as undefined"
-        );
+        let _ = writeln!(o, "  floating line: no receiver reads an idle line as undefined");
     } else {
         let _ = writeln!(
             o,
@@ -178,11 +163,7 @@ pub fn render(r: &Report, color: bool) -> String {
         );
     }
     let _ = writeln!(o);
-    let _ = writeln!(
-        o,
-        "{}",
-        st.head.apply_to(format!("Scheme: {}", r.scheme.name))
-    );
+    let _ = writeln!(o, "{}", st.head.apply_to(format!("Scheme: {}", r.scheme.name)));
     for (k, v) in &r.scheme.fields {
         let shown = match *v {
             crate::scheme::SchemeValue::Seconds(x) => format_seconds(x),
@@ -196,11 +177,7 @@ pub fn render(r: &Report, color: bool) -> String {
         let _ = writeln!(o);
         let _ = writeln!(o, "{}", st.bad.apply_to("Warnings"));
         for w in &r.warnings {
-            let who = w
-                .node
-                .as_deref()
-                .map(|n| format!(" [{n}]"))
-                .unwrap_or_default();
+            let who = w.node.as_deref().map(|n| format!(" [{n}]")).unwrap_or_default();
             let _ = writeln!(o, "  {}{}: {}", w.code, who, w.message);
         }
     }

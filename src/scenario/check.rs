@@ -34,18 +34,10 @@ impl<'a> V<'a> {
     pub fn positive(&self, v: &S, dim: Dimension, key: &str) -> R<f64> {
         let x = self.qty(v, dim, key)?;
         if x < 0.0 {
-            return Err(self.err(
-                v.span(),
-                key,
-                format!("negative {}: \"{}\"", noun(dim), v.get_ref()),
-            ));
+            return Err(self.err(v.span(), key, format!("negative {}: \"{}\"", noun(dim), v.get_ref())));
         }
         if x == 0.0 {
-            return Err(self.err(
-                v.span(),
-                key,
-                format!("{} must be greater than zero", noun(dim)),
-            ));
+            return Err(self.err(v.span(), key, format!("{} must be greater than zero", noun(dim))));
         }
         Ok(x)
     }
@@ -53,11 +45,7 @@ impl<'a> V<'a> {
     pub fn non_negative(&self, v: &S, dim: Dimension, key: &str) -> R<f64> {
         let x = self.qty(v, dim, key)?;
         if x < 0.0 {
-            return Err(self.err(
-                v.span(),
-                key,
-                format!("negative {}: \"{}\"", noun(dim), v.get_ref()),
-            ));
+            return Err(self.err(v.span(), key, format!("negative {}: \"{}\"", noun(dim), v.get_ref())));
         }
         Ok(x)
     }
@@ -65,11 +53,7 @@ impl<'a> V<'a> {
     pub fn time(&self, v: &S, key: &str) -> R<Picos> {
         let t = units::parse_time(v.get_ref()).map_err(|e| self.err(v.span(), key, e.message))?;
         if t > MAX_TIME {
-            return Err(self.err(
-                v.span(),
-                key,
-                format!("{t} is longer than the supported {MAX_TIME}"),
-            ));
+            return Err(self.err(v.span(), key, format!("{t} is longer than the supported {MAX_TIME}")));
         }
         Ok(t)
     }
@@ -101,16 +85,8 @@ impl<'a> V<'a> {
         if let Some(c) = allowed.iter().find(|c| **c == s) {
             return Ok(c);
         }
-        let list = allowed
-            .iter()
-            .map(|c| format!("\"{c}\""))
-            .collect::<Vec<_>>()
-            .join(", ");
-        let mut e = self.err(
-            v.span(),
-            key,
-            format!("unknown value \"{s}\"; expected one of {list}"),
-        );
+        let list = allowed.iter().map(|c| format!("\"{c}\"")).collect::<Vec<_>>().join(", ");
+        let mut e = self.err(v.span(), key, format!("unknown value \"{s}\"; expected one of {list}"));
         if let Some(m) = did_you_mean(s, allowed.iter().copied()) {
             e = e.with_hint(format!("did you mean \"{m}\"?"));
         }
@@ -134,11 +110,7 @@ fn noun(dim: Dimension) -> &'static str {
 }
 
 pub fn unknown_node(v: &V, name: &S, key: &str, names: &[String]) -> ScenarioError {
-    let mut e = v.err(
-        name.span(),
-        key,
-        format!("no node is called \"{}\"", name.get_ref()),
-    );
+    let mut e = v.err(name.span(), key, format!("no node is called \"{}\"", name.get_ref()));
     if let Some(m) = did_you_mean(name.get_ref(), names.iter().map(String::as_str)) {
         e = e.with_hint(format!("did you mean \"{m}\"?"));
     }

@@ -19,18 +19,9 @@ pub struct ScenarioError {
 
 impl ScenarioError {
     /// An error at byte `offset` of `source`.
-    pub fn at(
-        file: &str,
-        source: &str,
-        offset: usize,
-        key: &str,
-        message: impl Into<String>,
-    ) -> Self {
+    pub fn at(file: &str, source: &str, offset: usize, key: &str, message: impl Into<String>) -> Self {
         let (line, column) = line_col(source, offset);
-        let source_line = source
-            .lines()
-            .nth(line.saturating_sub(1))
-            .map(str::to_owned);
+        let source_line = source.lines().nth(line.saturating_sub(1)).map(str::to_owned);
         ScenarioError {
             file: file.to_owned(),
             line,
@@ -75,11 +66,8 @@ impl fmt::Display for ScenarioError {
         if let Some(src) = &self.source_line {
             let gutter = self.line.to_string();
             write!(f, "\n {gutter} | {src}")?;
-            let pad: String = src
-                .chars()
-                .take(self.column.saturating_sub(1))
-                .map(|c| if c == '\t' { '\t' } else { ' ' })
-                .collect();
+            let pad: String =
+                src.chars().take(self.column.saturating_sub(1)).map(|c| if c == '\t' { '\t' } else { ' ' }).collect();
             write!(f, "\n {} | {}^", " ".repeat(gutter.len()), pad)?;
         }
         if let Some(h) = &self.hint {
@@ -109,10 +97,7 @@ fn floor_char_boundary(s: &str, mut i: usize) -> usize {
 }
 
 /// The closest candidate to `word`, if one is close enough to be a likely typo.
-pub fn did_you_mean<'a>(
-    word: &str,
-    candidates: impl IntoIterator<Item = &'a str>,
-) -> Option<&'a str> {
+pub fn did_you_mean<'a>(word: &str, candidates: impl IntoIterator<Item = &'a str>) -> Option<&'a str> {
     candidates
         .into_iter()
         .map(|c| (strsim::jaro_winkler(word, c), c))
@@ -135,10 +120,7 @@ mod tests {
 
     #[test]
     fn hints_only_for_near_misses() {
-        assert_eq!(
-            did_you_mean("lenght", ["length", "impedance"]),
-            Some("length")
-        );
+        assert_eq!(did_you_mean("lenght", ["length", "impedance"]), Some("length"));
         assert_eq!(did_you_mean("zzz", ["length", "impedance"]), None);
     }
 
@@ -147,10 +129,7 @@ mod tests {
         let src = "[line]\nlength = \"-2 m\"\n";
         let e = ScenarioError::at("s.toml", src, 16, "line.length", "negative length");
         let text = e.to_string();
-        assert!(
-            text.starts_with("s.toml:2:10: line.length: negative length"),
-            "{text}"
-        );
+        assert!(text.starts_with("s.toml:2:10: line.length: negative length"), "{text}");
         assert!(text.contains("^"));
     }
 }

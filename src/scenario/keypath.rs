@@ -19,10 +19,7 @@ fn line_key_path(source: &str, offset: usize) -> Option<String> {
     let before = source.get(..offset.min(source.len()))?;
     let line_start = before.rfind('\n').map(|i| i + 1).unwrap_or(0);
     let line = source[line_start..].lines().next().unwrap_or("");
-    let key = line
-        .split_once('=')
-        .map(|(k, _)| k.trim().to_owned())
-        .filter(|k| !k.is_empty() && !k.starts_with('['));
+    let key = line.split_once('=').map(|(k, _)| k.trim().to_owned()).filter(|k| !k.is_empty() && !k.starts_with('['));
     let table = before[..line_start].lines().rev().find_map(|l| {
         let l = l.trim();
         l.strip_prefix("[[")
@@ -110,17 +107,8 @@ mod tests {
     fn finds_nested_keys() {
         let src = "name = \"x\"\n[line]\nlenght = \"2 m\"\n[[node]]\nname = \"a\"\n[[node]]\nname = \"b\"\ntraffic = { rate = \"1/s\" }\n";
         let at = |needle: &str| src.find(needle).unwrap();
-        assert_eq!(
-            key_path_at(src, at("lenght")).as_deref(),
-            Some("line.lenght")
-        );
-        assert_eq!(
-            key_path_at(src, at("\"b\"")).as_deref(),
-            Some("node[1].name")
-        );
-        assert_eq!(
-            key_path_at(src, at("\"1/s\"")).as_deref(),
-            Some("node[1].traffic.rate")
-        );
+        assert_eq!(key_path_at(src, at("lenght")).as_deref(), Some("line.lenght"));
+        assert_eq!(key_path_at(src, at("\"b\"")).as_deref(), Some("node[1].name"));
+        assert_eq!(key_path_at(src, at("\"1/s\"")).as_deref(), Some("node[1].traffic.rate"));
     }
 }

@@ -33,26 +33,14 @@ fn from_toml(e: toml::de::Error, text: &str, file: &str) -> ScenarioError {
     let offset = span.start;
     // Errors about the top-level table are reported at offset 0.
     let whole_document = span.start == 0 && !text.trim_start().starts_with('[');
-    let mut key = if whole_document {
-        String::new()
-    } else {
-        keypath::key_path_at(text, offset).unwrap_or_default()
-    };
+    let mut key = if whole_document { String::new() } else { keypath::key_path_at(text, offset).unwrap_or_default() };
     let msg = e.message().trim().to_owned();
-    if let Some(missing) = msg
-        .strip_prefix("missing field `")
-        .and_then(|m| m.split('`').next())
-    {
-        key = if key.is_empty() {
-            missing.to_owned()
-        } else {
-            format!("{key}.{missing}")
-        };
+    if let Some(missing) = msg.strip_prefix("missing field `").and_then(|m| m.split('`').next()) {
+        key = if key.is_empty() { missing.to_owned() } else { format!("{key}.{missing}") };
         return ScenarioError::at(file, text, offset, &key, format!("missing key `{missing}`"));
     }
     if let Some((unknown, expected)) = parse_unknown_field(&msg) {
-        let mut err =
-            ScenarioError::at(file, text, offset, &key, format!("unknown key `{unknown}`"));
+        let mut err = ScenarioError::at(file, text, offset, &key, format!("unknown key `{unknown}`"));
         let cands: Vec<&str> = expected.iter().map(String::as_str).collect();
         if let Some(m) = error::did_you_mean(&unknown, cands.iter().copied()) {
             err = err.with_hint(format!("did you mean `{m}`?"));
@@ -70,9 +58,7 @@ fn from_toml(e: toml::de::Error, text: &str, file: &str) -> ScenarioError {
     if (msg.contains("invalid type: integer") || msg.contains("invalid type: floating point"))
         && msg.contains("expected a string")
     {
-        return err.with_hint(
-            "quantities are strings with a unit, e.g. length = \"2.4 m\" or enable_time = \"7 ns\"",
-        );
+        return err.with_hint("quantities are strings with a unit, e.g. length = \"2.4 m\" or enable_time = \"7 ns\"");
     }
     err
 }
@@ -81,11 +67,6 @@ fn from_toml(e: toml::de::Error, text: &str, file: &str) -> ScenarioError {
 fn parse_unknown_field(msg: &str) -> Option<(String, Vec<String>)> {
     let rest = msg.strip_prefix("unknown field `")?;
     let (name, tail) = rest.split_once('`')?;
-    let expected = tail
-        .split('`')
-        .enumerate()
-        .filter(|(i, _)| i % 2 == 1)
-        .map(|(_, s)| s.to_owned())
-        .collect();
+    let expected = tail.split('`').enumerate().filter(|(i, _)| i % 2 == 1).map(|(_, s)| s.to_owned()).collect();
     Some((name.to_owned(), expected))
 }

@@ -184,9 +184,7 @@ impl RawAccess {
             ("idle_bits", sp(&self.idle_bits)),
             ("sample_point", sp(&self.sample_point)),
         ];
-        all.into_iter()
-            .filter_map(|(k, s)| s.map(|s| (k, s)))
-            .collect()
+        all.into_iter().filter_map(|(k, s)| s.map(|s| (k, s))).collect()
     }
 }
 
@@ -385,9 +383,7 @@ impl<'de> Deserialize<'de> for RawTermination {
                 Ok(RawTermination::Word(v.to_owned()))
             }
             fn visit_map<A: MapAccess<'de>>(self, map: A) -> Result<Self::Value, A::Error> {
-                Ok(RawTermination::Ends(RawEnds::deserialize(
-                    de::value::MapAccessDeserializer::new(map),
-                )?))
+                Ok(RawTermination::Ends(RawEnds::deserialize(de::value::MapAccessDeserializer::new(map))?))
             }
         }
         d.deserialize_any(V)

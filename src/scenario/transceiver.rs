@@ -28,17 +28,11 @@ struct Levels<'a> {
 
 impl<'a> Levels<'a> {
     /// The node's value, else the default, with the key path it came from.
-    fn get<T: Clone>(
-        &self,
-        f: fn(&RawTransceiver) -> &Option<T>,
-        name: &str,
-    ) -> Option<(T, String)> {
+    fn get<T: Clone>(&self, f: fn(&RawTransceiver) -> &Option<T>, name: &str) -> Option<(T, String)> {
         if let Some(o) = self.over.and_then(|o| f(o).as_ref()) {
             return Some((o.clone(), format!("{}.transceiver.{name}", self.key)));
         }
-        f(self.defaults)
-            .as_ref()
-            .map(|d| (d.clone(), format!("transceiver.{name}")))
+        f(self.defaults).as_ref().map(|d| (d.clone(), format!("transceiver.{name}")))
     }
 
     fn missing(&self, name: &str, what: &str) -> super::error::ScenarioError {
@@ -52,37 +46,22 @@ impl<'a> Levels<'a> {
                 self.node
             ),
         };
-        self.v
-            .err(self.at.clone(), &format!("transceiver.{name}"), msg)
+        self.v.err(self.at.clone(), &format!("transceiver.{name}"), msg)
     }
 
-    fn time(
-        &self,
-        f: fn(&RawTransceiver) -> &Option<Spanned<RawTime>>,
-        name: &str,
-    ) -> R<TimeRange> {
+    fn time(&self, f: fn(&RawTransceiver) -> &Option<Spanned<RawTime>>, name: &str) -> R<TimeRange> {
         let Some((raw, k)) = self.get(f, name) else {
             return Err(self.missing(name, "timing"));
         };
         match raw.get_ref() {
-            RawTime::One(s) => Ok(TimeRange::fixed(
-                self.v.time(&Spanned::new(raw.span(), s.clone()), &k)?,
-            )),
+            RawTime::One(s) => Ok(TimeRange::fixed(self.v.time(&Spanned::new(raw.span(), s.clone()), &k)?)),
             RawTime::Range(list) => {
                 if list.len() != 2 {
-                    return Err(self.v.err(
-                        raw.span(),
-                        &k,
-                        "a time range takes two times: [min, max]",
-                    ));
+                    return Err(self.v.err(raw.span(), &k, "a time range takes two times: [min, max]"));
                 }
                 let (min, max) = (self.v.time(&list[0], &k)?, self.v.time(&list[1], &k)?);
                 if min > max {
-                    return Err(self.v.err(
-                        raw.span(),
-                        &k,
-                        format!("the range's min ({min}) exceeds its max ({max})"),
-                    ));
+                    return Err(self.v.err(raw.span(), &k, format!("the range's min ({min}) exceeds its max ({max})")));
                 }
                 Ok(TimeRange { min, max })
             }
@@ -99,15 +78,7 @@ pub fn resolve(
     node: &str,
     at: Range<usize>,
 ) -> R<Transceiver> {
-    let mut l = Levels {
-        v,
-        over,
-        defaults,
-        key,
-        node,
-        at,
-        family: None,
-    };
+    let mut l = Levels { v, over, defaults, key, node, at, family: None };
     if let Some((name, k)) = l.get(|t| &t.family, "family") {
         let chosen = v.choice(&name, &k, family::NAMES)?;
         l.family = family::lookup(chosen);
@@ -120,31 +91,20 @@ pub fn resolve(
     // spec carries the typical values meanwhile.
     let (enable_time, disable_time, receiver_delay) = match timing {
         Timing::Worst => (enable_range.max, disable_range.max, receiver_range.min),
-        Timing::Typical | Timing::Random => (
-            enable_range.typical(),
-            disable_range.typical(),
-            receiver_range.typical(),
-        ),
+        Timing::Typical | Timing::Random => (enable_range.typical(), disable_range.typical(), receiver_range.typical()),
     };
     let load_f = match l.get(|t| &t.load, "load") {
         Some((s, k)) => {
             let x = v.non_negative(&s, Dimension::Capacitance, &k)?;
             if x > 1e-6 {
-                return Err(v.err(
-                    s.span(),
-                    &k,
-                    "a node load above 1 µF is outside the supported range",
-                ));
+                return Err(v.err(s.span(), &k, "a node load above 1 µF is outside the supported range"));
             }
             x
         }
         None => return Err(l.missing("load", "the node's capacitance")),
     };
     let receiver = receiver(&l)?;
-    let input_ohm = match (
-        l.get(|t| &t.input_resistance, "input_resistance"),
-        l.get(|t| &t.unit_loads, "unit_loads"),
-    ) {
+    let input_ohm = match (l.get(|t| &t.input_resistance, "input_resistance"), l.get(|t| &t.unit_loads, "unit_loads")) {
         (Some((s, k)), None) => v.within(&s, Dimension::Resistance, &k, 1.0, 1e9, "Ω")?,
         (None, Some((u, k))) => {
             let x = *u.get_ref();
@@ -154,11 +114,7 @@ pub fn resolve(
             UNIT_LOAD_OHM / x
         }
         (Some((s, k)), Some(_)) => {
-            return Err(v.err(
-                s.span(),
-                &k,
-                "give input_resistance or unit_loads, not both",
-            ));
+            return Err(v.err(s.span(), &k, "give input_resistance or unit_loads, not both"));
         }
         (None, None) => l.family.as_ref().map_or(f64::INFINITY, |f| f.input_ohm),
     };
@@ -175,12 +131,7 @@ pub fn resolve(
         None => 0.0,
     };
     let common_mode_v = match l.get(|t| &t.common_mode, "common_mode") {
-        Some((list, k)) => Some(pair(
-            v,
-            &list,
-            &k,
-            "common_mode takes two voltages: [low, high]",
-        )?),
+        Some((list, k)) => Some(pair(v, &list, &k, "common_mode takes two voltages: [low, high]")?),
         None => l.family.as_ref().and_then(|f| f.common_mode_v),
     };
     Ok(Transceiver {
@@ -209,11 +160,7 @@ fn pair(v: &V, list: &Spanned<Vec<S>>, key: &str, msg: &str) -> R<(f64, f64)> {
     let a = v.qty(&list.get_ref()[0], Dimension::Voltage, key)?;
     let b = v.qty(&list.get_ref()[1], Dimension::Voltage, key)?;
     if a > b {
-        return Err(v.err(
-            list.span(),
-            key,
-            "the low value must not exceed the high value",
-        ));
+        return Err(v.err(list.span(), key, "the low value must not exceed the high value"));
     }
     Ok((a, b))
 }
@@ -251,21 +198,12 @@ fn driver(l: &Levels) -> R<Driver> {
             // A range counts with its weakest value: amplitudes are worst-case.
             Some((raw, k)) => {
                 let amps = match raw.get_ref() {
-                    RawTime::One(s) => v.within(
-                        &Spanned::new(raw.span(), s.clone()),
-                        Dimension::Current,
-                        &k,
-                        1e-9,
-                        1.0,
-                        "A",
-                    )?,
+                    RawTime::One(s) => {
+                        v.within(&Spanned::new(raw.span(), s.clone()), Dimension::Current, &k, 1e-9, 1.0, "A")?
+                    }
                     RawTime::Range(list) => {
                         if list.len() != 2 {
-                            return Err(v.err(
-                                raw.span(),
-                                &k,
-                                "a current range takes two values: [min, max]",
-                            ));
+                            return Err(v.err(raw.span(), &k, "a current range takes two values: [min, max]"));
                         }
                         let lo = v.within(&list[0], Dimension::Current, &k, 1e-9, 1.0, "A")?;
                         let hi = v.within(&list[1], Dimension::Current, &k, 1e-9, 1.0, "A")?;
@@ -286,10 +224,7 @@ fn driver(l: &Levels) -> R<Driver> {
     match (voc, min) {
         (Some((s, k)), None) => {
             let oc = v.within(&s, Dimension::Voltage, &k, 1e-3, 100.0, "V")?;
-            Ok(Driver::Voltage {
-                open_circuit_v: oc,
-                output_ohm: rout.unwrap_or(0.0),
-            })
+            Ok(Driver::Voltage { open_circuit_v: oc, output_ohm: rout.unwrap_or(0.0) })
         }
         (None, Some((list, k))) => {
             // "At least V into R_test": with output resistance R_out the
@@ -305,32 +240,17 @@ fn driver(l: &Levels) -> R<Driver> {
             let volts = v.qty(&items[0], Dimension::Voltage, &k)?;
             let test = v.qty(&items[1], Dimension::Resistance, &k)?;
             if volts <= 0.0 || test <= 0.0 {
-                return Err(v.err(
-                    list.span(),
-                    &k,
-                    "min_output needs a positive voltage and test load",
-                ));
+                return Err(v.err(list.span(), &k, "min_output needs a positive voltage and test load"));
             }
             let r = rout.unwrap_or(0.0);
-            Ok(Driver::Voltage {
-                open_circuit_v: volts * (test + r) / test,
-                output_ohm: r,
-            })
+            Ok(Driver::Voltage { open_circuit_v: volts * (test + r) / test, output_ohm: r })
         }
-        (Some((s, k)), Some(_)) => {
-            Err(v.err(s.span(), &k, "give output_voltage or min_output, not both"))
-        }
+        (Some((s, k)), Some(_)) => Err(v.err(s.span(), &k, "give output_voltage or min_output, not both")),
         (None, None) => match l.family.as_ref().map(|f| f.driver) {
-            Some(Driver::Voltage {
-                open_circuit_v,
-                output_ohm,
-            }) => {
+            Some(Driver::Voltage { open_circuit_v, output_ohm }) => {
                 let r = rout.unwrap_or(output_ohm);
                 // The preset's figure is a minimum into 54 Ω: keep it with a given R_out.
-                Ok(Driver::Voltage {
-                    open_circuit_v: open_circuit_v * (54.0 + r) / 54.0,
-                    output_ohm: r,
-                })
+                Ok(Driver::Voltage { open_circuit_v: open_circuit_v * (54.0 + r) / 54.0, output_ohm: r })
             }
             _ => Err(l.missing("output_voltage", "the driver's output")),
         },
@@ -341,9 +261,7 @@ fn receiver(l: &Levels) -> R<ReceiverClass> {
     let v = l.v;
     // The class comes from one level: the node's table if it names one, else the defaults.
     let (t, key) = match l.over {
-        Some(o) if o.receiver.is_some() || o.thresholds.is_some() => {
-            (o, format!("{}.transceiver", l.key))
-        }
+        Some(o) if o.receiver.is_some() || o.thresholds.is_some() => (o, format!("{}.transceiver", l.key)),
         _ => (l.defaults, "transceiver".to_owned()),
     };
     match (&t.receiver, &t.thresholds) {

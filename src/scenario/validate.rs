@@ -28,33 +28,21 @@ const TERMINATIONS: &[&str] = &["both-ends", "far-end", "none"];
 /// Validate a parsed scenario. `file` names it in errors; `src` is its text.
 pub fn validate(raw: &RawScenario, file: &str, src: &str) -> R<Spec> {
     let v = V { file, src };
-    let name = raw
-        .name
-        .as_ref()
-        .map(|n| n.get_ref().clone())
-        .unwrap_or_else(|| {
-            std::path::Path::new(file)
-                .file_stem()
-                .map(|s| s.to_string_lossy().into_owned())
-                .unwrap_or_else(|| "scenario".into())
-        });
+    let name = raw.name.as_ref().map(|n| n.get_ref().clone()).unwrap_or_else(|| {
+        std::path::Path::new(file)
+            .file_stem()
+            .map(|s| s.to_string_lossy().into_owned())
+            .unwrap_or_else(|| "scenario".into())
+    });
     let seed = raw.seed.as_ref().map(|s| *s.get_ref()).unwrap_or(1);
     let duration = v.time(&raw.duration, "duration")?;
     if duration == Picos::ZERO {
-        return Err(v.err(
-            raw.duration.span(),
-            "duration",
-            "duration must be greater than zero",
-        ));
+        return Err(v.err(raw.duration.span(), "duration", "duration must be greater than zero"));
     }
     let warmup = v.opt_time(&raw.warmup, "warmup", Picos::ZERO)?;
     if warmup >= duration {
         let span = raw.warmup.as_ref().map(|w| w.span()).unwrap_or(0..0);
-        return Err(v.err(
-            span,
-            "warmup",
-            format!("warmup ({warmup}) must be shorter than duration ({duration})"),
-        ));
+        return Err(v.err(span, "warmup", format!("warmup ({warmup}) must be shorter than duration ({duration})")));
     }
     let timing = match &raw.timing {
         None => Timing::Typical,
@@ -70,39 +58,42 @@ pub fn validate(raw: &RawScenario, file: &str, src: &str) -> R<Spec> {
     check_frame_times(&v, raw, &frame, &nodes)?;
     check_unique_ids(&v, raw, &nodes)?;
     check_arrival_count(&v, raw, &nodes, duration)?;
-    let access = super::access::validate(
-        &v,
-        raw.access.get_ref(),
-        raw.access.span(),
-        &nodes,
-        &line,
-        &frame,
-    )?;
+    let access = super::access::validate(&v, raw.access.get_ref(), raw.access.span(), &nodes, &line, &frame)?;
     let expect = validate_expectations(&v, raw)?;
-    Ok(Spec {
-        expect,
-        name,
-        seed,
-        duration,
-        warmup,
-        timing,
-        line,
-        frame,
-        nodes,
-        access,
-    })
+    let spec = Spec { expect, name, seed, duration, warmup, timing, line, frame, nodes, access };
+    check_recessive(&v, raw, &spec)?;
+    Ok(spec)
+}
+
+/// Bitwise arbitration reads a released driver as recessive: the undriven
+/// line (with its bias network, if any) must be a defined state at every receiver.
+fn check_recessive(v: &V, raw: &RawScenario, spec: &Spec) -> R<()> {
+    if !matches!(spec.access, AccessSpec::Arbitration(_)) {
+        return Ok(());
+    }
+    let line = crate::line::LineModel::new(spec);
+    for (i, n) in spec.nodes.iter().enumerate() {
+        if line.idle_state(spec, i) == crate::line::IdleState::Undefined {
+            return Err(v
+                .err(
+                    raw.access.get_ref().scheme.span(),
+                    "access.scheme",
+                    format!(
+                        "bitwise arbitration needs a line that reads recessive when undriven, but the {} receiver of \"{}\" reads the idle line ({}) as undefined",
+                        n.transceiver.receiver.name,
+                        n.name,
+                        units::format_si(line.idle_v, "V")
+                    ),
+                )
+                .with_hint("use receivers with a failsafe threshold (receiver = \"type2\") or a [line.bias] network"));
+        }
+    }
+    Ok(())
 }
 
 fn validate_line(v: &V, l: &RawLine, at: Range<usize>) -> R<LineSpec> {
     let length_m = v.within(&l.length, Dimension::Length, "line.length", 1e-6, 1e5, "m")?;
-    let impedance_ohm = v.within(
-        &l.impedance,
-        Dimension::Resistance,
-        "line.impedance",
-        0.1,
-        1e5,
-        "Ω",
-    )?;
+    let impedance_ohm = v.within(&l.impedance, Dimension::Resistance, "line.impedance", 0.1, 1e5, "Ω")?;
     let delay_s_per_m = match (&l.delay, &l.velocity_factor) {
         (Some(d), None) => {
             let x = v.positive(d, Dimension::DelayPerLength, "line.delay")?;
@@ -111,20 +102,10 @@ fn validate_line(v: &V, l: &RawLine, at: Range<usize>) -> R<LineSpec> {
                 return Err(v.err(
                     d.span(),
                     "line.delay",
-                    format!(
-                        "\"{}\" is faster than light (at least 3.336 ns/m)",
-                        d.get_ref()
-                    ),
+                    format!("\"{}\" is faster than light (at least 3.336 ns/m)", d.get_ref()),
                 ));
             }
-            v.within(
-                d,
-                Dimension::DelayPerLength,
-                "line.delay",
-                1e-9,
-                1e-6,
-                "s/m",
-            )?
+            v.within(d, Dimension::DelayPerLength, "line.delay", 1e-9, 1e-6, "s/m")?
         }
         (None, Some(vf)) => {
             let f = *vf.get_ref();
@@ -138,42 +119,25 @@ fn validate_line(v: &V, l: &RawLine, at: Range<usize>) -> R<LineSpec> {
             1.0 / (f * C_M_PER_S)
         }
         (Some(d), Some(_)) => {
-            return Err(v.err(
-                d.span(),
-                "line.delay",
-                "give line.delay or line.velocity_factor, not both",
-            ))
+            return Err(v.err(d.span(), "line.delay", "give line.delay or line.velocity_factor, not both"))
         }
         (None, None) => {
-            return Err(v.err(
-                at,
-                "line",
-                "the line needs a delay (e.g. delay = \"5 ns/m\") or a velocity_factor",
-            ))
+            return Err(v.err(at, "line", "the line needs a delay (e.g. delay = \"5 ns/m\") or a velocity_factor"))
         }
     };
     let termination = match &l.termination {
-        None => Termination::BothEnds {
-            near_ohm: None,
-            far_ohm: None,
-        },
+        None => Termination::BothEnds { near_ohm: None, far_ohm: None },
         Some(t) => match t.get_ref() {
             RawTermination::Word(word) => {
                 let word = word.trim();
                 let spanned = Spanned::new(t.span(), word.to_owned());
                 match word {
-                    "both-ends" => Termination::BothEnds {
-                        near_ohm: None,
-                        far_ohm: None,
-                    },
+                    "both-ends" => Termination::BothEnds { near_ohm: None, far_ohm: None },
                     "far-end" => Termination::FarEnd { far_ohm: None },
                     "none" => Termination::Unterminated,
                     _ if word.starts_with(|c: char| c.is_ascii_digit() || c == '-' || c == '.') => {
                         let r = v.positive(&spanned, Dimension::Resistance, "line.termination")?;
-                        Termination::BothEnds {
-                            near_ohm: Some(r),
-                            far_ohm: Some(r),
-                        }
+                        Termination::BothEnds { near_ohm: Some(r), far_ohm: Some(r) }
                     }
                     _ => {
                         v.choice(&spanned, "line.termination", TERMINATIONS)?;
@@ -216,40 +180,13 @@ fn validate_line(v: &V, l: &RawLine, at: Range<usize>) -> R<LineSpec> {
             }
             let r = b.get_ref();
             Some(Bias {
-                supply_v: v.within(
-                    &r.supply,
-                    Dimension::Voltage,
-                    "line.bias.supply",
-                    0.1,
-                    100.0,
-                    "V",
-                )?,
-                pull_up_ohm: v.within(
-                    &r.pull_up,
-                    Dimension::Resistance,
-                    "line.bias.pull_up",
-                    1.0,
-                    1e9,
-                    "Ω",
-                )?,
-                pull_down_ohm: v.within(
-                    &r.pull_down,
-                    Dimension::Resistance,
-                    "line.bias.pull_down",
-                    1.0,
-                    1e9,
-                    "Ω",
-                )?,
+                supply_v: v.within(&r.supply, Dimension::Voltage, "line.bias.supply", 0.1, 100.0, "V")?,
+                pull_up_ohm: v.within(&r.pull_up, Dimension::Resistance, "line.bias.pull_up", 1.0, 1e9, "Ω")?,
+                pull_down_ohm: v.within(&r.pull_down, Dimension::Resistance, "line.bias.pull_down", 1.0, 1e9, "Ω")?,
             })
         }
     };
-    Ok(LineSpec {
-        bias,
-        length_m,
-        impedance_ohm,
-        delay_s_per_m,
-        termination,
-    })
+    Ok(LineSpec { bias, length_m, impedance_ohm, delay_s_per_m, termination })
 }
 
 fn validate_expectations(v: &V, raw: &RawScenario) -> R<Vec<Expectation>> {
@@ -300,7 +237,10 @@ fn check_unique_ids(v: &V, raw: &RawScenario, nodes: &[NodeSpec]) -> R<()> {
                     return Err(v.err(
                         raw.access.span(),
                         "traffic.id",
-                        format!("identifier {id} is used by \"{other}\" and \"{}\": identifiers must be unique", n.name),
+                        format!(
+                            "identifier {id} is used by \"{other}\" and \"{}\": identifiers must be unique",
+                            n.name
+                        ),
                     ));
                 }
             }
@@ -348,7 +288,9 @@ fn check_frame_times(v: &V, raw: &RawScenario, frame: &FrameFormat, nodes: &[Nod
         return Err(v.err(
             raw.frame.get_ref().bit_rate.span(),
             "frame.bit_rate",
-            format!("at this bit rate the longest data frame ({line_bits} line bits) would last longer than {MAX_TIME}"),
+            format!(
+                "at this bit rate the longest data frame ({line_bits} line bits) would last longer than {MAX_TIME}"
+            ),
         ));
     }
     Ok(())
@@ -356,21 +298,10 @@ fn check_frame_times(v: &V, raw: &RawScenario, frame: &FrameFormat, nodes: &[Nod
 
 fn validate_frame(v: &V, f: &RawFrame) -> R<FrameFormat> {
     // A bit time below 1 ps cannot be represented; 1 bit/s is the slow end.
-    let bit_rate = v.within(
-        &f.bit_rate,
-        Dimension::BitRate,
-        "frame.bit_rate",
-        1.0,
-        1e12,
-        "bit/s",
-    )?;
+    let bit_rate = v.within(&f.bit_rate, Dimension::BitRate, "frame.bit_rate", 1.0, 1e12, "bit/s")?;
     if let Some(o) = &f.overhead_bits {
         if *o.get_ref() > MAX_FRAME_BITS {
-            return Err(v.err(
-                o.span(),
-                "frame.overhead_bits",
-                format!("at most {MAX_FRAME_BITS} bits are supported"),
-            ));
+            return Err(v.err(o.span(), "frame.overhead_bits", format!("at most {MAX_FRAME_BITS} bits are supported")));
         }
     }
     let encoding = match &f.encoding {
@@ -427,26 +358,11 @@ fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec, timing: Timing) -> 
         check_pos(position_m, n.position.span(), &format!("{key}.position"))?;
         let name = n.name.get_ref().clone();
         if name.trim().is_empty() {
-            return Err(v.err(
-                n.name.span(),
-                &format!("{key}.name"),
-                "a node name must not be empty",
-            ));
+            return Err(v.err(n.name.span(), &format!("{key}.name"), "a node name must not be empty"));
         }
-        let transceiver = super::transceiver::resolve(
-            timing,
-            v,
-            defaults,
-            n.transceiver.as_ref(),
-            &key,
-            &name,
-            n.name.span(),
-        )?;
-        let turnaround = n
-            .turnaround
-            .as_ref()
-            .map(|t| v.time(t, &format!("{key}.turnaround")))
-            .transpose()?;
+        let transceiver =
+            super::transceiver::resolve(timing, v, defaults, n.transceiver.as_ref(), &key, &name, n.name.span())?;
+        let turnaround = n.turnaround.as_ref().map(|t| v.time(t, &format!("{key}.turnaround"))).transpose()?;
         pending.push(Pending {
             name,
             name_span: n.name.span(),
@@ -461,43 +377,23 @@ fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec, timing: Timing) -> 
         let r = row.get_ref();
         let count = *r.count.get_ref();
         if count == 0 {
-            return Err(v.err(
-                r.count.span(),
-                "nodes.count",
-                "nodes.count must be at least 1",
-            ));
+            return Err(v.err(r.count.span(), "nodes.count", "nodes.count must be at least 1"));
         }
         if count > MAX_NODES as u64 {
-            return Err(v.err(
-                r.count.span(),
-                "nodes.count",
-                format!("at most {MAX_NODES} nodes are supported"),
-            ));
+            return Err(v.err(r.count.span(), "nodes.count", format!("at most {MAX_NODES} nodes are supported")));
         }
         let first = v.qty(&r.first, Dimension::Length, "nodes.first")?;
         let spacing = v.non_negative(&r.spacing, Dimension::Length, "nodes.spacing")?;
         let width = count.to_string().len().max(2);
-        let turnaround = r
-            .turnaround
-            .as_ref()
-            .map(|t| v.time(t, "nodes.turnaround"))
-            .transpose()?;
+        let turnaround = r.turnaround.as_ref().map(|t| v.time(t, "nodes.turnaround")).transpose()?;
         for k in 0..count {
             if r.prefix.get_ref().chars().any(char::is_control) {
-                return Err(v.err(
-                    r.prefix.span(),
-                    "nodes.prefix",
-                    "a node name must not contain control characters",
-                ));
+                return Err(v.err(r.prefix.span(), "nodes.prefix", "a node name must not contain control characters"));
             }
             let name = format!("{}{:0width$}", r.prefix.get_ref(), k + 1);
             let position_m = first + spacing * k as f64;
             if position_m < 0.0 || position_m > line.length_m * (1.0 + 1e-12) {
-                let span = if k == 0 {
-                    r.first.span()
-                } else {
-                    r.spacing.span()
-                };
+                let span = if k == 0 { r.first.span() } else { r.spacing.span() };
                 return Err(v.err(
                     span,
                     "nodes",
@@ -532,18 +428,11 @@ fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec, timing: Timing) -> 
         return Err(v.err(
             0..0,
             "node",
-            format!(
-                "at most {MAX_NODES} nodes are supported, this scenario has {}",
-                pending.len()
-            ),
+            format!("at most {MAX_NODES} nodes are supported, this scenario has {}", pending.len()),
         ));
     }
     if pending.len() < 2 {
-        return Err(v.err(
-            0..0,
-            "node",
-            "a bus needs at least two nodes ([[node]] entries and/or a [nodes] row)",
-        ));
+        return Err(v.err(0..0, "node", "a bus needs at least two nodes ([[node]] entries and/or a [nodes] row)"));
     }
     let mut seen: HashMap<&str, usize> = HashMap::new();
     for (i, p) in pending.iter().enumerate() {
@@ -552,11 +441,7 @@ fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec, timing: Timing) -> 
             return Err(v
                 .err(
                     p.name_span.clone(),
-                    &if p.key == "nodes" {
-                        "nodes.prefix".to_owned()
-                    } else {
-                        format!("{}.name", p.key)
-                    },
+                    &if p.key == "nodes" { "nodes.prefix".to_owned() } else { format!("{}.name", p.key) },
                     format!("duplicate node name \"{}\"", p.name),
                 )
                 .with_hint(format!("the name is first used on line {l}")));
@@ -574,13 +459,8 @@ fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec, timing: Timing) -> 
                 } else {
                     format!("{}.traffic[{j}]", p.key)
                 };
-                let span = if src.span().is_empty() {
-                    t.span()
-                } else {
-                    src.span()
-                };
-                let (spec, limit) =
-                    validate_traffic(v, src.get_ref(), span, &key, &names, &p.name)?;
+                let span = if src.span().is_empty() { t.span() } else { src.span() };
+                let (spec, limit) = validate_traffic(v, src.get_ref(), span, &key, &names, &p.name)?;
                 traffic.push(spec);
                 if let Some(l) = limit {
                     queue_limit = Some(queue_limit.map_or(l, |q| q.min(l)));
@@ -622,32 +502,20 @@ fn validate_traffic(
         stray(&r.period, "period")?;
         stray(&r.phase, "phase")?;
         stray(&r.jitter, "jitter")?;
-        let rate = r.rate.as_ref().ok_or_else(|| {
-            v.err(
-                span.clone(),
-                key,
-                "a poisson source needs a rate, e.g. rate = \"2000/s\"",
-            )
-        })?;
-        Pattern::Poisson {
-            rate_per_s: v.positive(rate, Dimension::Rate, &format!("{key}.rate"))?,
-        }
+        let rate = r
+            .rate
+            .as_ref()
+            .ok_or_else(|| v.err(span.clone(), key, "a poisson source needs a rate, e.g. rate = \"2000/s\""))?;
+        Pattern::Poisson { rate_per_s: v.positive(rate, Dimension::Rate, &format!("{key}.rate"))? }
     } else {
         stray(&r.rate, "rate")?;
-        let period_raw = r.period.as_ref().ok_or_else(|| {
-            v.err(
-                span.clone(),
-                key,
-                "a periodic source needs a period, e.g. period = \"1 ms\"",
-            )
-        })?;
+        let period_raw = r
+            .period
+            .as_ref()
+            .ok_or_else(|| v.err(span.clone(), key, "a periodic source needs a period, e.g. period = \"1 ms\""))?;
         let period = v.time(period_raw, &format!("{key}.period"))?;
         if period == Picos::ZERO {
-            return Err(v.err(
-                period_raw.span(),
-                &format!("{key}.period"),
-                "period must be greater than zero",
-            ));
+            return Err(v.err(period_raw.span(), &format!("{key}.period"), "period must be greater than zero"));
         }
         let phase = v.opt_time(&r.phase, &format!("{key}.phase"), Picos::ZERO)?;
         let jitter = v.opt_time(&r.jitter, &format!("{key}.jitter"), Picos::ZERO)?;
@@ -659,51 +527,30 @@ fn validate_traffic(
                 format!("jitter ({jitter}) must be shorter than the period ({period})"),
             ));
         }
-        Pattern::Periodic {
-            period,
-            phase,
-            jitter,
-        }
+        Pattern::Periodic { period, phase, jitter }
     };
     let pk = format!("{key}.payload");
     let size = |s: &S| -> R<u64> {
         let bits = units::parse_bits(s.get_ref()).map_err(|e| v.err(s.span(), &pk, e.message))?;
         if bits > MAX_FRAME_BITS {
-            return Err(v.err(
-                s.span(),
-                &pk,
-                format!("a payload of more than {MAX_FRAME_BITS} bits is not supported"),
-            ));
+            return Err(v.err(s.span(), &pk, format!("a payload of more than {MAX_FRAME_BITS} bits is not supported")));
         }
         Ok(bits)
     };
     let payload = match r.payload.get_ref() {
         RawPayload::Fixed(s) => {
             let spanned = Spanned::new(r.payload.span(), s.clone());
-            Payload::Fixed {
-                bits: size(&spanned)?,
-            }
+            Payload::Fixed { bits: size(&spanned)? }
         }
         RawPayload::Range(list) => {
             if list.len() != 2 {
-                return Err(v.err(
-                    r.payload.span(),
-                    &pk,
-                    "a payload range takes two sizes: [min, max]",
-                ));
+                return Err(v.err(r.payload.span(), &pk, "a payload range takes two sizes: [min, max]"));
             }
             let (a, b) = (size(&list[0])?, size(&list[1])?);
             if a > b {
-                return Err(v.err(
-                    r.payload.span(),
-                    &pk,
-                    "the payload range's min exceeds its max",
-                ));
+                return Err(v.err(r.payload.span(), &pk, "the payload range's min exceeds its max"));
             }
-            Payload::Uniform {
-                min_bits: a,
-                max_bits: b,
-            }
+            Payload::Uniform { min_bits: a, max_bits: b }
         }
     };
     let to = match &r.to {
@@ -712,11 +559,7 @@ fn validate_traffic(
             let s = name.get_ref();
             match names.iter().position(|n| n == s) {
                 Some(_) if s == own => {
-                    return Err(v.err(
-                        name.span(),
-                        &format!("{key}.to"),
-                        "a node cannot send to itself",
-                    ))
+                    return Err(v.err(name.span(), &format!("{key}.to"), "a node cannot send to itself"))
                 }
                 Some(i) => Some(i),
                 None => return Err(unknown_node(v, name, &format!("{key}.to"), names)),
@@ -726,20 +569,8 @@ fn validate_traffic(
     let limit = r.queue_limit.as_ref().map(|q| *q.get_ref() as usize);
     if limit == Some(0) {
         let q = r.queue_limit.as_ref().expect("just checked");
-        return Err(v.err(
-            q.span(),
-            &format!("{key}.queue_limit"),
-            "queue_limit must be at least 1",
-        ));
+        return Err(v.err(q.span(), &format!("{key}.queue_limit"), "queue_limit must be at least 1"));
     }
     let id = r.id.as_ref().map(|i| *i.get_ref());
-    Ok((
-        TrafficSpec {
-            pattern,
-            payload,
-            to,
-            id,
-        },
-        limit,
-    ))
+    Ok((TrafficSpec { pattern, payload, to, id }, limit))
 }

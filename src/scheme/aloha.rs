@@ -38,13 +38,7 @@ pub struct Aloha {
 
 impl Aloha {
     pub fn new(spec: AlohaSpec, nodes: usize) -> Self {
-        Aloha {
-            spec,
-            flight: vec![None; nodes],
-            collisions: 0,
-            retries: 0,
-            given_up: 0,
-        }
+        Aloha { spec, flight: vec![None; nodes], collisions: 0, retries: 0, given_up: 0 }
     }
 
     /// The next instant at or after `t` a transmission may start.
@@ -70,13 +64,12 @@ impl Aloha {
             return;
         }
         if let Some(msg) = w.pop_message(node) {
-            self.flight[node] = Some(InFlight {
-                msg,
-                attempts: 0,
-                delivered: false,
-            });
+            self.flight[node] = Some(InFlight { msg, attempts: 0, delivered: false });
             w.set_holding(node, 1);
-            let at = self.start_time(w.now());
+            // After its own frame a node keeps the interframe gap.
+            let free = w.driver_free_at(node);
+            let earliest = if free > Picos::ZERO { free + w.spec().frame.interframe_gap } else { Picos::ZERO };
+            let at = self.start_time(w.now().max(earliest));
             self.send(w, node, at);
         }
     }
@@ -100,9 +93,7 @@ impl AccessScheme for Aloha {
     fn on_timer(&mut self, w: &mut World, node: NodeId, tag: u64) {
         match tag {
             OUTCOME => {
-                let f = self.flight[node]
-                    .as_mut()
-                    .expect("outcome of a message in flight");
+                let f = self.flight[node].as_mut().expect("outcome of a message in flight");
                 f.attempts += 1;
                 if f.delivered {
                     self.flight[node] = None;
@@ -157,11 +148,7 @@ impl AccessScheme for Aloha {
                 ("slotted", SchemeValue::Flag(self.spec.slotted)),
                 (
                     "slot_time_s",
-                    SchemeValue::Seconds(if self.spec.slotted {
-                        self.spec.slot_time.as_secs_f64()
-                    } else {
-                        0.0
-                    }),
+                    SchemeValue::Seconds(if self.spec.slotted { self.spec.slot_time.as_secs_f64() } else { 0.0 }),
                 ),
                 ("collisions", SchemeValue::Count(self.collisions)),
                 ("retransmissions", SchemeValue::Count(self.retries)),

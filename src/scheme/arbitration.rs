@@ -89,9 +89,7 @@ pub fn min_bit_time(spec: &Spec, arb: &ArbitrationSpec, line: &crate::line::Line
     let mut need = 0f64;
     for (i, ni) in spec.nodes.iter().enumerate() {
         for (j, nj) in spec.nodes.iter().enumerate() {
-            let lp = 2 * line.delay_ps(i, j)
-                + ni.transceiver.receiver_delay.0
-                + nj.transceiver.receiver_delay.0;
+            let lp = 2 * line.delay_ps(i, j) + ni.transceiver.receiver_delay.0 + nj.transceiver.receiver_delay.0;
             let a = (lp + nj.transceiver.disable_time.0) as f64 / arb.sample_point;
             let b = (lp + nj.transceiver.enable_time.0) as f64;
             need = need.max(a).max(b);
@@ -105,16 +103,7 @@ impl Arbitration {
         Arbitration {
             spec,
             bit: Picos::ZERO,
-            nodes: vec![
-                NodeState {
-                    msg: None,
-                    id: 0,
-                    phase: Phase::Idle,
-                    generation: 0,
-                    join_at: Picos::MAX
-                };
-                nodes
-            ],
+            nodes: vec![NodeState { msg: None, id: 0, phase: Phase::Idle, generation: 0, join_at: Picos::MAX }; nodes],
             quiet_from: vec![Picos::ZERO; nodes],
             ahead: vec![Vec::with_capacity(16); nodes],
             round: Vec::with_capacity(nodes),
@@ -192,14 +181,10 @@ impl Arbitration {
         if let Some(held) = self.nodes[node].msg {
             let held_id = self.nodes[node].id;
             let ids = &self.flow_ids[node];
-            let best = w
-                .queue_min_key(node, |m| ids[usize::from(m.flow)])
-                .is_some_and(|k| k < held_id);
+            let best = w.queue_min_key(node, |m| ids[usize::from(m.flow)]).is_some_and(|k| k < held_id);
             if best {
                 w.push_front(node, held);
-                let msg = w
-                    .pop_message_min_by_key(node, |m| ids[usize::from(m.flow)])
-                    .expect("queue not empty");
+                let msg = w.pop_message_min_by_key(node, |m| ids[usize::from(m.flow)]).expect("queue not empty");
                 self.nodes[node].id = ids[usize::from(msg.flow)];
                 self.nodes[node].msg = Some(msg);
             }
@@ -214,11 +199,7 @@ impl Arbitration {
     /// Send the start bit: `origin` is when bit 0 starts for this node.
     fn start(&mut self, w: &mut World, node: NodeId, origin: Picos) {
         let now = w.now();
-        if !self
-            .nodes
-            .iter()
-            .any(|s| matches!(s.phase, Phase::Arbitrating { .. }))
-        {
+        if !self.nodes.iter().any(|s| matches!(s.phase, Phase::Arbitrating { .. })) {
             self.round.clear();
             self.winners = 0;
             if w.in_window(now) {
@@ -228,18 +209,9 @@ impl Arbitration {
         self.round.push(self.nodes[node].id);
         let en = w.spec().nodes[node].transceiver.enable_time;
         let drive = w.drive_dominant(node, now, origin + self.bit);
-        self.note(
-            w,
-            node,
-            now + en,
-            origin + self.bit + w.spec().nodes[node].transceiver.disable_time,
-        );
+        self.note(w, node, now + en, origin + self.bit + w.spec().nodes[node].transceiver.disable_time);
         self.nodes[node].generation += 1;
-        self.nodes[node].phase = Phase::Arbitrating {
-            origin,
-            bit: 0,
-            drive: Some(drive),
-        };
+        self.nodes[node].phase = Phase::Arbitrating { origin, bit: 0, drive: Some(drive) };
         let sample = origin + Picos((self.bit.0 as f64 * self.spec.sample_point).round() as u64);
         self.timer(w, node, sample, SAMPLE);
         // Waiting nodes join on the first start edge they see.
@@ -290,23 +262,15 @@ impl Arbitration {
                     w.now()
                 }
                 None => {
-                    let enable = (origin + Picos(tb.0 * u64::from(next)))
-                        .saturating_sub(en)
-                        .max(w.now());
+                    let enable = (origin + Picos(tb.0 * u64::from(next))).saturating_sub(en).max(w.now());
                     drive_next = Some(w.drive_dominant(node, enable, end));
                     enable + en
                 }
             };
             self.note(w, node, valid, end + dis);
         }
-        self.nodes[node].phase = Phase::Arbitrating {
-            origin,
-            bit: next,
-            drive: drive_next,
-        };
-        let at = origin
-            + Picos(tb.0 * u64::from(next))
-            + Picos((tb.0 as f64 * self.spec.sample_point).round() as u64);
+        self.nodes[node].phase = Phase::Arbitrating { origin, bit: next, drive: drive_next };
+        let at = origin + Picos(tb.0 * u64::from(next)) + Picos((tb.0 as f64 * self.spec.sample_point).round() as u64);
         self.timer(w, node, at, SAMPLE);
     }
 
@@ -325,17 +289,10 @@ impl Arbitration {
             // Still driving the last identifier bit: stay enabled into the frame.
             w.continue_from_dominant(node, occ);
         }
-        let enable = boundary
-            .saturating_sub(en)
-            .max(w.driver_free_at(node))
-            .max(now);
+        let enable = boundary.saturating_sub(en).max(w.driver_free_at(node)).max(now);
         let msg = self.nodes[node].msg.expect("a contender holds a message");
         w.count_access_attempt();
-        let tx = w.transmit(
-            node,
-            enable,
-            &[FrameOut::data(msg, w.spec().frame.overhead_bits)],
-        );
+        let tx = w.transmit(node, enable, &[FrameOut::data(msg, w.spec().frame.overhead_bits)]);
         self.note(w, node, tx.enable, tx.off);
         self.nodes[node].phase = Phase::Sending;
         debug!(t_ps = now.0, node = %w.spec().nodes[node].name, id, "won arbitration");
@@ -346,11 +303,7 @@ impl Arbitration {
     /// had exactly one winner; none (every contender dropped out) or several
     /// (each believed it won) is an arbitration failure.
     fn round_over(&mut self, w: &World) {
-        if self
-            .nodes
-            .iter()
-            .any(|s| matches!(s.phase, Phase::Arbitrating { .. }))
-        {
+        if self.nodes.iter().any(|s| matches!(s.phase, Phase::Arbitrating { .. })) {
             return;
         }
         if self.winners != 1 && w.in_window(w.now()) {
@@ -374,12 +327,7 @@ impl AccessScheme for Arbitration {
             .spec()
             .nodes
             .iter()
-            .map(|n| {
-                n.traffic
-                    .iter()
-                    .map(|t| t.id.expect("validated: every source has an id"))
-                    .collect()
-            })
+            .map(|n| n.traffic.iter().map(|t| t.id.expect("validated: every source has an id")).collect())
             .collect();
         self.min_bit = min_bit_time(w.spec(), &self.spec, w.line());
     }
@@ -444,10 +392,7 @@ impl AccessScheme for Arbitration {
             name: "arbitration",
             fields: vec![
                 ("bit_time_s", SchemeValue::Seconds(self.bit.as_secs_f64())),
-                (
-                    "min_bit_time_s",
-                    SchemeValue::Seconds(self.min_bit.as_secs_f64()),
-                ),
+                ("min_bit_time_s", SchemeValue::Seconds(self.min_bit.as_secs_f64())),
                 ("rounds", SchemeValue::Count(self.rounds)),
                 ("lost", SchemeValue::Count(self.lost)),
                 ("arbitration_failures", SchemeValue::Count(self.failures)),

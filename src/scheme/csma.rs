@@ -11,6 +11,10 @@
 //! - on an idle line after waiting, a p-persistent node sends with
 //!   probability p, or else defers one `slot_time` and senses again.
 //!
+//! Every carrier sense counts as one channel access attempt (including each
+//! re-sense of a waiting persistent node), and a node keeps the interframe
+//! gap after its own transmission before it senses again.
+//!
 //! Without collision detection a frame runs its full length; `ack_timeout`
 //! after its end the sender learns its fate (ideal feedback) and, after a
 //! failure, reschedules after `backoff`.
@@ -98,8 +102,14 @@ impl Csma {
         }
     }
 
-    /// A channel access attempt: sense the line.
+    /// A channel access attempt: sense the line. A node that has just sent
+    /// keeps the interframe gap first.
     fn attempt(&mut self, w: &mut World, node: NodeId) {
+        let earliest = w.driver_free_at(node) + w.spec().frame.interframe_gap;
+        if w.driver_free_at(node) > Picos::ZERO && w.now() < earliest {
+            self.timer(w, node, earliest, ATTEMPT);
+            return;
+        }
         w.count_access_attempt();
         match w.carrier_until(node) {
             None => self.send(w, node),
@@ -123,8 +133,10 @@ impl Csma {
         self.timer(w, node, until, IDLE);
     }
 
-    /// The line looks idle after waiting: the p-persistent trial.
+    /// The line looks idle after waiting: the p-persistent trial. Every
+    /// carrier sense counts as a channel access attempt.
     fn trial(&mut self, w: &mut World, node: NodeId) {
+        w.count_access_attempt();
         if let Some(until) = w.carrier_until(node) {
             self.wait_idle(w, node, until);
             return;
@@ -145,11 +157,7 @@ impl Csma {
     fn send(&mut self, w: &mut World, node: NodeId) {
         let msg = self.nodes[node].msg.expect("a message in hand");
         let at = w.now().max(w.driver_free_at(node));
-        let tx = w.transmit(
-            node,
-            at,
-            &[FrameOut::data(msg, w.spec().frame.overhead_bits)],
-        );
+        let tx = w.transmit(node, at, &[FrameOut::data(msg, w.spec().frame.overhead_bits)]);
         self.bump(node);
         let st = &mut self.nodes[node];
         st.tx = Some((tx.occupancy, tx.release));
@@ -165,9 +173,7 @@ impl Csma {
     }
 
     fn detect_delay(&self, w: &World, node: NodeId) -> Picos {
-        self.spec
-            .detect_delay
-            .unwrap_or(w.spec().nodes[node].transceiver.receiver_delay)
+        self.spec.detect_delay.unwrap_or(w.spec().nodes[node].transceiver.receiver_delay)
     }
 
     /// Schedule collision detection between the new transmission of `k` and
@@ -322,14 +328,8 @@ impl AccessScheme for Csma {
             name: "csma",
             fields: vec![
                 ("persistence", SchemeValue::Fraction(p)),
-                (
-                    "collision_detect",
-                    SchemeValue::Flag(self.spec.collision_detect),
-                ),
-                (
-                    "slot_time_s",
-                    SchemeValue::Seconds(self.spec.slot_time.as_secs_f64()),
-                ),
+                ("collision_detect", SchemeValue::Flag(self.spec.collision_detect)),
+                ("slot_time_s", SchemeValue::Seconds(self.spec.slot_time.as_secs_f64())),
                 ("deferrals", SchemeValue::Count(self.deferrals)),
                 ("collisions", SchemeValue::Count(self.collisions)),
                 ("collisions_detected", SchemeValue::Count(self.detected)),

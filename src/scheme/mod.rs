@@ -55,9 +55,7 @@ pub fn build(spec: &Spec) -> Box<dyn AccessScheme> {
         AccessSpec::Aloha(a) => Box::new(aloha::Aloha::new(a.clone(), spec.nodes.len())),
         AccessSpec::Csma(c) => Box::new(csma::Csma::new(c.clone(), spec.nodes.len())),
         AccessSpec::Tdma(t) => Box::new(tdma::Tdma::new(t.clone())),
-        AccessSpec::Arbitration(a) => {
-            Box::new(arbitration::Arbitration::new(a.clone(), spec.nodes.len()))
-        }
+        AccessSpec::Arbitration(a) => Box::new(arbitration::Arbitration::new(a.clone(), spec.nodes.len())),
     }
 }
 

@@ -123,8 +123,7 @@ impl Polling {
     fn reply(&mut self, w: &mut World, slave: NodeId, poll: u64) {
         let now = w.now();
         let master = self.spec.master;
-        let wait =
-            self.spec.turnaround[slave] + sample_latency(&self.spec.response_latency, w.rng(slave));
+        let wait = self.spec.turnaround[slave] + sample_latency(&self.spec.response_latency, w.rng(slave));
         let limit = match self.spec.max_per_poll {
             0 => usize::MAX,
             n => n as usize,
@@ -133,11 +132,7 @@ impl Polling {
         let counted = w.in_window(now);
         w.begin_tx(slave, now + wait);
         if take == 0 {
-            w.add_frame(FrameOut::control(
-                FrameKind::EmptyReply,
-                Dest::Node(master),
-                self.spec.empty_reply_bits,
-            ));
+            w.add_frame(FrameOut::control(FrameKind::EmptyReply, Dest::Node(master), self.spec.empty_reply_bits));
             if counted {
                 self.empty_replies += 1;
             }
@@ -163,8 +158,7 @@ impl Polling {
         if starts_at_master > self.deadline {
             self.no_reply(w, poll);
         } else {
-            let master_wait = self.spec.turnaround[master]
-                + sample_latency(&self.spec.response_latency, w.rng(master));
+            let master_wait = self.spec.turnaround[master] + sample_latency(&self.spec.response_latency, w.rng(master));
             let next = w.seen_at(slave, master, tx.release) + master_wait;
             w.set_timer(master, next, NEXT_POLL);
         }

@@ -91,8 +91,7 @@ impl Tdma {
                 continue;
             }
             let start = t_ref + self.true_span(node, self.offset[k] + self.spec.guard);
-            self.slot_end[k] =
-                t_ref + self.true_span(node, self.offset[k] + self.spec.slots[k].length);
+            self.slot_end[k] = t_ref + self.true_span(node, self.offset[k] + self.spec.slots[k].length);
             w.set_timer(node, start.max(w.now()), ((k as u64) << 8) | SLOT);
         }
     }
@@ -108,11 +107,7 @@ impl Tdma {
         while w.queue_len(node) > 0 {
             let msg = w.pop_message(node).expect("queue checked");
             let f = FrameOut::data(msg, overhead);
-            let gap = if sent > 0 {
-                frame.interframe_gap
-            } else {
-                Picos::ZERO
-            };
+            let gap = if sent > 0 { frame.interframe_gap } else { Picos::ZERO };
             let f_end = cursor + gap + frame.duration(frame.encoding.line_bits(f.data_bits));
             if f_end > end {
                 w.push_front(node, msg);
@@ -161,9 +156,7 @@ impl AccessScheme for Tdma {
             };
         }
         let tk = self.spec.timekeeper;
-        self.cycle_local = self
-            .spec
-            .cycle(&w.spec().frame, w.spec().nodes[tk].transceiver.enable_time);
+        self.cycle_local = self.spec.cycle(&w.spec().frame, w.spec().nodes[tk].transceiver.enable_time);
         self.schedule_beacon(w, 0);
     }
 
@@ -212,23 +205,14 @@ impl AccessScheme for Tdma {
             .spec
             .slots
             .iter()
-            .map(|s| {
-                (s.length - self.spec.guard - w.spec().nodes[s.owner].transceiver.enable_time)
-                    .as_secs_f64()
-            })
+            .map(|s| (s.length - self.spec.guard - w.spec().nodes[s.owner].transceiver.enable_time).as_secs_f64())
             .sum();
         SchemeReport {
             name: "tdma",
             fields: vec![
                 ("cycle_s", SchemeValue::Seconds(cycle)),
-                (
-                    "guard_s",
-                    SchemeValue::Seconds(self.spec.guard.as_secs_f64()),
-                ),
-                (
-                    "usable_fraction",
-                    SchemeValue::Fraction(if cycle > 0.0 { usable / cycle } else { 0.0 }),
-                ),
+                ("guard_s", SchemeValue::Seconds(self.spec.guard.as_secs_f64())),
+                ("usable_fraction", SchemeValue::Fraction(if cycle > 0.0 { usable / cycle } else { 0.0 })),
                 ("beacons", SchemeValue::Count(self.beacons)),
                 ("beacons_missed", SchemeValue::Count(self.missed)),
                 ("slots_used", SchemeValue::Count(self.used)),

@@ -23,9 +23,7 @@
 
 use tracing::debug;
 
-use super::{
-    first_other_node, sample_latency, AccessScheme, DurationStat, SchemeReport, SchemeValue,
-};
+use super::{first_other_node, sample_latency, AccessScheme, DurationStat, SchemeReport, SchemeValue};
 use crate::engine::{Dest, FrameKind, FrameOut, Reception, TxTimes, World};
 use crate::spec::{NodeId, TokenSpec};
 use crate::units::Picos;
@@ -40,7 +38,9 @@ pub struct Token {
     /// The occupancy carrying a lost token frame.
     lost: Option<u64>,
     /// When the lost token frame left the wire at its sender (release).
-    lost_at: Picos,
+    lost_at: Option<Picos>,
+    /// Regenerations with no token lost (a watchdog shorter than a normal gap).
+    spurious: u64,
     next_fault: usize,
     /// Watchdog: deadline and generation of the live timer.
     deadline: Picos,
@@ -63,7 +63,8 @@ impl Token {
             spec,
             next_of,
             lost: None,
-            lost_at: Picos::ZERO,
+            lost_at: None,
+            spurious: 0,
             next_fault: 0,
             deadline: Picos::MAX,
             generation: 0,
@@ -97,16 +98,8 @@ impl Token {
         while sent < limit && w.queue_len(node) > 0 {
             let msg = w.pop_message(node).expect("queue checked");
             let frame = FrameOut::data(msg, overhead);
-            let gap = if sent > 0 {
-                w.spec().frame.interframe_gap
-            } else {
-                Picos::ZERO
-            };
-            let frame_end = end
-                + gap
-                + w.spec()
-                    .frame
-                    .duration(w.spec().frame.encoding.line_bits(frame.data_bits));
+            let gap = if sent > 0 { w.spec().frame.interframe_gap } else { Picos::ZERO };
+            let frame_end = end + gap + w.spec().frame.duration(w.spec().frame.encoding.line_bits(frame.data_bits));
             if let Some(hold) = self.spec.token_hold {
                 if sent > 0 && frame_end - enable > hold {
                     w.push_front(node, msg);
@@ -119,21 +112,15 @@ impl Token {
             sent += 1;
         }
         let next = self.next_of[node];
-        w.add_frame(FrameOut::control(
-            FrameKind::Token,
-            Dest::Node(next),
-            self.spec.token_bits,
-        ));
+        w.add_frame(FrameOut::control(FrameKind::Token, Dest::Node(next), self.spec.token_bits));
         let tx = w.finish_tx();
         if w.in_window(enable) {
             self.passes += 1;
         }
-        if self.next_fault < self.spec.lose_token_at.len()
-            && self.spec.lose_token_at[self.next_fault] <= enable
-        {
+        if self.next_fault < self.spec.lose_token_at.len() && self.spec.lose_token_at[self.next_fault] <= enable {
             self.next_fault += 1;
             self.lost = Some(tx.occupancy);
-            self.lost_at = tx.release;
+            self.lost_at = Some(tx.release);
             if w.in_window(enable) {
                 self.lost_tokens += 1;
             }
@@ -180,9 +167,12 @@ impl AccessScheme for Token {
         }
         // Silence for token_timeout at the recovery node: regenerate the token.
         self.deadline = Picos::MAX;
-        if w.in_window(w.now()) {
-            self.recoveries
-                .record((w.now() - self.lost_at.min(w.now())).0);
+        match self.lost_at.take() {
+            // Recovery time: from the end of the lost token frame.
+            Some(at) if w.in_window(w.now()) => self.recoveries.record((w.now() - at.min(w.now())).0),
+            Some(_) => {}
+            None if w.in_window(w.now()) => self.spurious += 1,
+            None => {}
         }
         debug!(t_ps = w.now().0, node = %w.spec().nodes[node].name, "token regenerated");
         self.lost = None;
@@ -197,8 +187,7 @@ impl AccessScheme for Token {
             return; // the lost token: nobody accepts it
         }
         let node = rx.at;
-        let wait =
-            self.spec.turnaround[node] + sample_latency(&self.spec.response_latency, w.rng(node));
+        let wait = self.spec.turnaround[node] + sample_latency(&self.spec.response_latency, w.rng(node));
         let enable = w.now() + wait;
         self.hold(w, node, enable);
     }
@@ -207,26 +196,15 @@ impl AccessScheme for Token {
         SchemeReport {
             name: "token",
             fields: vec![
-                (
-                    "rotation_mean_s",
-                    SchemeValue::Seconds(self.rotations.mean_s()),
-                ),
-                (
-                    "rotation_max_s",
-                    SchemeValue::Seconds(self.rotations.max_s()),
-                ),
+                ("rotation_mean_s", SchemeValue::Seconds(self.rotations.mean_s())),
+                ("rotation_max_s", SchemeValue::Seconds(self.rotations.max_s())),
                 ("rotations", SchemeValue::Count(self.rotations.count)),
                 ("token_passes", SchemeValue::Count(self.passes)),
                 ("tokens_lost", SchemeValue::Count(self.lost_tokens)),
                 ("recoveries", SchemeValue::Count(self.recoveries.count)),
-                (
-                    "recovery_mean_s",
-                    SchemeValue::Seconds(self.recoveries.mean_s()),
-                ),
-                (
-                    "recovery_max_s",
-                    SchemeValue::Seconds(self.recoveries.max_s()),
-                ),
+                ("recovery_mean_s", SchemeValue::Seconds(self.recoveries.mean_s())),
+                ("recovery_max_s", SchemeValue::Seconds(self.recoveries.max_s())),
+                ("spurious_regenerations", SchemeValue::Count(self.spurious)),
             ],
         }
     }

@@ -36,19 +36,12 @@ impl LatencyStats {
         // Auto-resizing from a small initial range: the histogram grows (and
         // allocates) only when a value of a new order of magnitude appears.
         let hist = Histogram::new(3).expect("3 significant digits is a valid precision");
-        LatencyStats {
-            hist,
-            count: 0,
-            sum_ps: 0,
-            max_ps: 0,
-        }
+        LatencyStats { hist, count: 0, sum_ps: 0, max_ps: 0 }
     }
 
     #[inline]
     pub fn record(&mut self, ps: u64) {
-        self.hist
-            .record(ps.max(1))
-            .expect("an auto-resizing histogram accepts any u64");
+        self.hist.record(ps.max(1)).expect("an auto-resizing histogram accepts any u64");
         self.count += 1;
         self.sum_ps += u128::from(ps);
         self.max_ps = self.max_ps.max(ps);

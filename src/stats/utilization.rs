@@ -186,16 +186,7 @@ mod tests {
         u.add(Piece::Overhead, 15, 20);
         u.add(Piece::Payload, 20, 35);
         let t = u.finish();
-        assert_eq!(
-            t,
-            UtilizationTotals {
-                payload: 15,
-                overhead: 5,
-                gaps: 10,
-                idle: 70,
-                wasted: 0
-            }
-        );
+        assert_eq!(t, UtilizationTotals { payload: 15, overhead: 5, gaps: 10, idle: 70, wasted: 0 });
         assert_eq!(t.sum(), 100);
     }
 
@@ -210,16 +201,7 @@ mod tests {
         let t = u.finish();
         // 20..45 payload (25), 45..50 two drivers (5), 50..66 wasted frame (16),
         // 66..70 gap (4), 70..80 idle (10).
-        assert_eq!(
-            t,
-            UtilizationTotals {
-                payload: 25,
-                overhead: 0,
-                gaps: 4,
-                idle: 10,
-                wasted: 21
-            }
-        );
+        assert_eq!(t, UtilizationTotals { payload: 25, overhead: 0, gaps: 4, idle: 10, wasted: 21 });
         assert_eq!(t.sum(), 60);
     }
 }

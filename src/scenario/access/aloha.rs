@@ -5,13 +5,7 @@ use crate::scenario::check::latency;
 use crate::spec::{AccessSpec, AlohaSpec, Latency};
 use crate::units::Picos;
 
-pub const KEYS: &[&str] = &[
-    "slotted",
-    "slot_time",
-    "ack_timeout",
-    "backoff",
-    "max_attempts",
-];
+pub const KEYS: &[&str] = &["slotted", "slot_time", "ack_timeout", "backoff", "max_attempts"];
 
 pub fn validate(c: &Access) -> R<AccessSpec> {
     let (v, a) = (c.v, c.a);
@@ -30,18 +24,12 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
     )?;
     if !slotted {
         if let Some(s) = &a.slot_time {
-            return Err(v.err(
-                s.span(),
-                "access.slot_time",
-                "slot_time applies only with slotted = true",
-            ));
+            return Err(v.err(s.span(), "access.slot_time", "slot_time applies only with slotted = true"));
         }
     }
     let backoff = match &a.backoff {
         Some(b) => latency(v, b, "access.backoff")?,
-        None => Latency::Exponential {
-            mean: Picos(slot_time.0.max(1) * 10),
-        },
+        None => Latency::Exponential { mean: Picos(slot_time.0.max(1) * 10) },
     };
     Ok(AccessSpec::Aloha(AlohaSpec {
         slotted,

@@ -38,11 +38,7 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
         },
     };
     let collision_detect = a.collision_detect.as_ref().is_some_and(|x| *x.get_ref());
-    let detect_delay = a
-        .detect_delay
-        .as_ref()
-        .map(|d| v.time(d, "access.detect_delay"))
-        .transpose()?;
+    let detect_delay = a.detect_delay.as_ref().map(|d| v.time(d, "access.detect_delay")).transpose()?;
     if !collision_detect {
         for (field, key) in [
             (a.detect_delay.as_ref().map(|x| x.span()), "detect_delay"),
@@ -61,25 +57,14 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
     // Default slot: a round trip plus the transceiver times, rounded up to
     // whole bit times, so that a collision is certain to be seen within it.
     let detect = detect_delay.unwrap_or(c.max_time(|n| n.transceiver.receiver_delay));
-    let raw = lag
-        + lag
-        + c.max_time(|n| n.transceiver.enable_time)
-        + c.max_time(|n| n.transceiver.disable_time)
-        + detect;
+    let raw =
+        lag + lag + c.max_time(|n| n.transceiver.enable_time) + c.max_time(|n| n.transceiver.disable_time) + detect;
     let tb = c.frame.bit_time().0.max(1);
     let slot_time = c.slot_time(Picos(raw.0.div_ceil(tb).max(1) * tb))?;
     let ack_timeout = match c.ack_timeout()? {
         Some(_) if collision_detect => {
-            let span = a
-                .ack_timeout
-                .as_ref()
-                .map(|x| x.span())
-                .unwrap_or(c.span.clone());
-            return Err(v.err(
-                span,
-                "access.ack_timeout",
-                "ack_timeout applies only without collision_detect",
-            ));
+            let span = a.ack_timeout.as_ref().map(|x| x.span()).unwrap_or(c.span.clone());
+            return Err(v.err(span, "access.ack_timeout", "ack_timeout applies only without collision_detect"));
         }
         Some(t) => t,
         None if collision_detect => Picos::ZERO,
@@ -88,15 +73,9 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
     let backoff = match &a.backoff {
         Some(b) => latency(v, b, "access.backoff")?,
         // Long against a frame, as the classic analyses assume.
-        None => Latency::Exponential {
-            mean: Picos((c.longest_data_frame().0 + slot_time.0) * 10),
-        },
+        None => Latency::Exponential { mean: Picos((c.longest_data_frame().0 + slot_time.0) * 10) },
     };
-    let jam_bits = a
-        .jam_bits
-        .as_ref()
-        .map(|j| *j.get_ref())
-        .unwrap_or(DEFAULT_JAM_BITS);
+    let jam_bits = a.jam_bits.as_ref().map(|j| *j.get_ref()).unwrap_or(DEFAULT_JAM_BITS);
     Ok(AccessSpec::Csma(CsmaSpec {
         persistence,
         collision_detect,
@@ -106,10 +85,6 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
         ack_timeout,
         backoff,
         backoff_given: a.backoff.is_some(),
-        max_attempts: a
-            .max_attempts
-            .as_ref()
-            .map(|m| *m.get_ref())
-            .unwrap_or(if collision_detect { 16 } else { 0 }),
+        max_attempts: a.max_attempts.as_ref().map(|m| *m.get_ref()).unwrap_or(if collision_detect { 16 } else { 0 }),
     }))
 }

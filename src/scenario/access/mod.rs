@@ -54,32 +54,14 @@ pub fn validate(
     };
     for (key, at) in a.present() {
         if !COMMON.contains(&key) && !allowed.contains(&key) {
-            let mut e = v.err(
-                at,
-                &format!("access.{key}"),
-                format!("`{key}` does not apply to scheme \"{scheme}\""),
-            );
-            let mut keys: Vec<&str> = COMMON
-                .iter()
-                .chain(allowed)
-                .copied()
-                .filter(|k| *k != "scheme")
-                .collect();
+            let mut e = v.err(at, &format!("access.{key}"), format!("`{key}` does not apply to scheme \"{scheme}\""));
+            let mut keys: Vec<&str> = COMMON.iter().chain(allowed).copied().filter(|k| *k != "scheme").collect();
             keys.sort_unstable();
             e = e.with_hint(format!("keys of \"{scheme}\": {}", keys.join(", ")));
             return Err(e);
         }
     }
-    let ctx = Access {
-        v,
-        a,
-        span,
-        nodes,
-        line,
-        frame,
-        names: nodes.iter().map(|n| n.name.clone()).collect(),
-        scheme,
-    };
+    let ctx = Access { v, a, span, nodes, line, frame, names: nodes.iter().map(|n| n.name.clone()).collect(), scheme };
     match scheme {
         "polling" => polling::validate(&ctx),
         "token" => token::validate(&ctx),
@@ -93,10 +75,7 @@ pub fn validate(
 impl<'a> Access<'a> {
     /// Resolve a node name.
     pub fn find(&self, s: &S, key: &str) -> R<NodeId> {
-        self.names
-            .iter()
-            .position(|n| n == s.get_ref())
-            .ok_or_else(|| unknown_node(self.v, s, key, &self.names))
+        self.names.iter().position(|n| n == s.get_ref()).ok_or_else(|| unknown_node(self.v, s, key, &self.names))
     }
 
     /// A required key, or an error naming it with an example.
@@ -127,25 +106,15 @@ impl<'a> Access<'a> {
                     let key = format!("access.order[{i}]");
                     let id = self.find(s, &key)?;
                     if Some(id) == exclude {
-                        return Err(self.v.err(
-                            s.span(),
-                            &key,
-                            format!("\"{}\" cannot be in the {what}", s.get_ref()),
-                        ));
+                        return Err(self.v.err(s.span(), &key, format!("\"{}\" cannot be in the {what}", s.get_ref())));
                     }
                     out.push(id);
                 }
                 Ok(out)
             }
             None => {
-                let mut ids: Vec<NodeId> = (0..self.nodes.len())
-                    .filter(|&i| Some(i) != exclude)
-                    .collect();
-                ids.sort_by(|&x, &y| {
-                    self.nodes[x]
-                        .position_m
-                        .total_cmp(&self.nodes[y].position_m)
-                });
+                let mut ids: Vec<NodeId> = (0..self.nodes.len()).filter(|&i| Some(i) != exclude).collect();
+                ids.sort_by(|&x, &y| self.nodes[x].position_m.total_cmp(&self.nodes[y].position_m));
                 Ok(ids)
             }
         }
@@ -156,11 +125,7 @@ impl<'a> Access<'a> {
         for (i, n) in self.nodes.iter().enumerate() {
             if !n.traffic.is_empty() && !order.contains(&i) {
                 return Err(self.v.err(
-                    self.a
-                        .order
-                        .as_ref()
-                        .map(|o| o.span())
-                        .unwrap_or(self.span.clone()),
+                    self.a.order.as_ref().map(|o| o.span()).unwrap_or(self.span.clone()),
                     "access.order",
                     format!("\"{}\" has traffic but is not in the {what}", n.name),
                 ));
@@ -171,12 +136,7 @@ impl<'a> Access<'a> {
 
     /// Per-node turnaround: the node's own, else `access.turnaround`.
     pub fn turnarounds(&self) -> R<Vec<Picos>> {
-        let default = self
-            .a
-            .turnaround
-            .as_ref()
-            .map(|t| self.v.time(t, "access.turnaround"))
-            .transpose()?;
+        let default = self.a.turnaround.as_ref().map(|t| self.v.time(t, "access.turnaround")).transpose()?;
         self.nodes
             .iter()
             .map(|n| {
@@ -184,7 +144,10 @@ impl<'a> Access<'a> {
                     self.v.err(
                         self.span.clone(),
                         "access.turnaround",
-                        format!("node \"{}\" has no turnaround: set access.turnaround or the node's turnaround", n.name),
+                        format!(
+                            "node \"{}\" has no turnaround: set access.turnaround or the node's turnaround",
+                            n.name
+                        ),
                     )
                 })
             })
@@ -205,22 +168,11 @@ impl<'a> Access<'a> {
         let (lo, hi) = self
             .nodes
             .iter()
-            .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), n| {
-                (lo.min(n.position_m), hi.max(n.position_m))
-            });
-        let line = crate::line::LoadedLine::new(
-            self.line.impedance_ohm,
-            self.line.delay_s_per_m,
-            self.line.length_m,
-            total,
-        );
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), n| (lo.min(n.position_m), hi.max(n.position_m)));
+        let line =
+            crate::line::LoadedLine::new(self.line.impedance_ohm, self.line.delay_s_per_m, self.line.length_m, total);
         let wire = Picos(((hi - lo) * line.delay_s_per_m * 1e12).round() as u64);
-        wire + self
-            .nodes
-            .iter()
-            .map(|n| n.transceiver.receiver_delay)
-            .max()
-            .unwrap_or(Picos::ZERO)
+        wire + self.nodes.iter().map(|n| n.transceiver.receiver_delay).max().unwrap_or(Picos::ZERO)
     }
 
     /// The largest value of a per-node transceiver time.
@@ -234,11 +186,7 @@ impl<'a> Access<'a> {
             Some(s) => {
                 let t = self.v.time(s, "access.slot_time")?;
                 if t == Picos::ZERO {
-                    return Err(self.v.err(
-                        s.span(),
-                        "access.slot_time",
-                        "slot_time must be greater than zero",
-                    ));
+                    return Err(self.v.err(s.span(), "access.slot_time", "slot_time must be greater than zero"));
                 }
                 Ok(t)
             }
@@ -266,10 +214,7 @@ impl<'a> Access<'a> {
 
     /// Time on the wire of the longest data frame any source can send.
     pub fn longest_data_frame(&self) -> Picos {
-        (0..self.nodes.len())
-            .map(|n| self.longest_data_frame_of(n))
-            .max()
-            .unwrap_or(Picos::ZERO)
+        (0..self.nodes.len()).map(|n| self.longest_data_frame_of(n)).max().unwrap_or(Picos::ZERO)
     }
 
     /// Time on the wire of the longest data frame node `n` can send (zero without traffic).
@@ -293,15 +238,9 @@ impl<'a> Access<'a> {
     /// default `frame.overhead_bits`, and at least one bit, so that every
     /// hand-over takes time.
     pub fn control_bits(&self, field: &Option<toml::Spanned<u64>>, key: &str) -> R<u64> {
-        let bits = field
-            .as_ref()
-            .map(|x| *x.get_ref())
-            .unwrap_or(self.frame.overhead_bits);
+        let bits = field.as_ref().map(|x| *x.get_ref()).unwrap_or(self.frame.overhead_bits);
         if bits == 0 {
-            let span = field
-                .as_ref()
-                .map(|f| f.span())
-                .unwrap_or(self.span.clone());
+            let span = field.as_ref().map(|f| f.span()).unwrap_or(self.span.clone());
             return Err(self
                 .v
                 .err(
@@ -309,15 +248,10 @@ impl<'a> Access<'a> {
                     &format!("access.{key}"),
                     format!("{key} must be at least 1 (a frame without bits takes no time)"),
                 )
-                .with_hint(format!(
-                    "set {key}, or frame.overhead_bits, which is its default"
-                )));
+                .with_hint(format!("set {key}, or frame.overhead_bits, which is its default")));
         }
         if bits > crate::scenario::validate::MAX_FRAME_BITS {
-            let span = field
-                .as_ref()
-                .map(|f| f.span())
-                .unwrap_or(self.span.clone());
+            let span = field.as_ref().map(|f| f.span()).unwrap_or(self.span.clone());
             return Err(self.v.err(
                 span,
                 &format!("access.{key}"),

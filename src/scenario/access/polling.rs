@@ -3,13 +3,7 @@
 use super::{Access, R};
 use crate::spec::{AccessSpec, PollingSpec};
 
-pub const KEYS: &[&str] = &[
-    "master",
-    "max_per_poll",
-    "request_bits",
-    "empty_reply_bits",
-    "reply_timeout",
-];
+pub const KEYS: &[&str] = &["master", "max_per_poll", "request_bits", "empty_reply_bits", "reply_timeout"];
 
 pub fn validate(c: &Access) -> R<AccessSpec> {
     let (v, a) = (c.v, c.a);
@@ -19,19 +13,12 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
         return Err(v.err(
             master_raw.span(),
             "access.master",
-            format!(
-                "the master \"{}\" has traffic, but under polling only slaves send data",
-                c.names[master]
-            ),
+            format!("the master \"{}\" has traffic, but under polling only slaves send data", c.names[master]),
         ));
     }
     let order = c.order(Some(master), "poll order")?;
     c.all_senders_in(&order, "poll order")?;
-    let timeout_raw = c.required(
-        &a.reply_timeout,
-        "reply_timeout",
-        "reply_timeout = \"2 us\"",
-    )?;
+    let timeout_raw = c.required(&a.reply_timeout, "reply_timeout", "reply_timeout = \"2 us\"")?;
     Ok(AccessSpec::Polling(PollingSpec {
         master,
         order,

@@ -4,16 +4,8 @@ use super::{Access, R};
 use crate::spec::{AccessSpec, Drift, Slot, TdmaSpec};
 use crate::units::Picos;
 
-pub const KEYS: &[&str] = &[
-    "timekeeper",
-    "beacon_bits",
-    "slot_length",
-    "slots",
-    "guard",
-    "drift_ppm",
-    "clock_ppm",
-    "compensate",
-];
+pub const KEYS: &[&str] =
+    &["timekeeper", "beacon_bits", "slot_length", "slots", "guard", "drift_ppm", "clock_ppm", "compensate"];
 
 pub fn validate(c: &Access) -> R<AccessSpec> {
     let (v, a) = (c.v, c.a);
@@ -21,22 +13,14 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
     let timekeeper = c.find(tk_raw, "access.timekeeper")?;
     let guard_raw = c.required(&a.guard, "guard", "guard = \"50 ns\"")?;
     let guard = v.time(guard_raw, "access.guard")?;
-    let equal = a
-        .slot_length
-        .as_ref()
-        .map(|l| v.time(l, "access.slot_length"))
-        .transpose()?;
+    let equal = a.slot_length.as_ref().map(|l| v.time(l, "access.slot_length")).transpose()?;
     let slots = match (&a.slots, &a.order) {
         (Some(_), Some(o)) => {
             return Err(v.err(o.span(), "access.order", "give slots or order, not both"));
         }
         (Some(list), None) => {
             if list.get_ref().is_empty() {
-                return Err(v.err(
-                    list.span(),
-                    "access.slots",
-                    "the cycle has no slots: list at least one",
-                ));
+                return Err(v.err(list.span(), "access.slots", "the cycle has no slots: list at least one"));
             }
             let mut out = Vec::new();
             for (i, s) in list.get_ref().iter().enumerate() {
@@ -60,20 +44,13 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
         }
         (None, _) => {
             let length = equal.ok_or_else(|| {
-                v.err(
-                    c.span.clone(),
-                    "access.slot_length",
-                    "tdma needs slot_length (equal slots) or a slots list",
-                )
+                v.err(c.span.clone(), "access.slot_length", "tdma needs slot_length (equal slots) or a slots list")
             })?;
             // By default every node that has traffic gets one slot, in position order.
             let order = if a.order.is_some() {
                 c.order(None, "slot order")?
             } else {
-                c.order(None, "slot order")?
-                    .into_iter()
-                    .filter(|&n| !c.nodes[n].traffic.is_empty())
-                    .collect()
+                c.order(None, "slot order")?.into_iter().filter(|&n| !c.nodes[n].traffic.is_empty()).collect()
             };
             if order.is_empty() {
                 return Err(v.err(
@@ -88,10 +65,7 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
                     (
                         n,
                         length,
-                        a.slot_length
-                            .as_ref()
-                            .map(|l| l.span())
-                            .unwrap_or(c.span.clone()),
+                        a.slot_length.as_ref().map(|l| l.span()).unwrap_or(c.span.clone()),
                         "access.slot_length".to_owned(),
                     )
                 })
@@ -102,33 +76,14 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
     c.all_senders_in(&owners, "slot list")?;
     let spread = a.drift_ppm.as_ref().map(|d| *d.get_ref()).unwrap_or(0.0);
     if !(0.0..=10_000.0).contains(&spread) {
-        let span = a
-            .drift_ppm
-            .as_ref()
-            .map(|d| d.span())
-            .unwrap_or(c.span.clone());
-        return Err(v.err(
-            span,
-            "access.drift_ppm",
-            "drift_ppm must lie between 0 and 10000",
-        ));
+        let span = a.drift_ppm.as_ref().map(|d| d.span()).unwrap_or(c.span.clone());
+        return Err(v.err(span, "access.drift_ppm", "drift_ppm must lie between 0 and 10000"));
     }
-    let mut drift = vec![
-        if spread > 0.0 {
-            Drift::Within(spread)
-        } else {
-            Drift::Fixed(0.0)
-        };
-        c.nodes.len()
-    ];
+    let mut drift = vec![if spread > 0.0 { Drift::Within(spread) } else { Drift::Fixed(0.0) }; c.nodes.len()];
     if let Some(map) = &a.clock_ppm {
         for (name, ppm) in map.get_ref() {
             let id = c.names.iter().position(|n| n == name).ok_or_else(|| {
-                v.err(
-                    map.span(),
-                    &format!("access.clock_ppm.{name}"),
-                    format!("no node is called \"{name}\""),
-                )
+                v.err(map.span(), &format!("access.clock_ppm.{name}"), format!("no node is called \"{name}\""))
             })?;
             if !ppm.is_finite() || ppm.abs() > 10_000.0 {
                 return Err(v.err(
@@ -165,10 +120,7 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
     Ok(AccessSpec::Tdma(TdmaSpec {
         timekeeper,
         beacon_bits: c.control_bits(&a.beacon_bits, "beacon_bits")?,
-        slots: slots
-            .into_iter()
-            .map(|(owner, length, _, _)| Slot { owner, length })
-            .collect(),
+        slots: slots.into_iter().map(|(owner, length, _, _)| Slot { owner, length }).collect(),
         guard,
         drift,
         compensate: a.compensate.as_ref().is_some_and(|x| *x.get_ref()),

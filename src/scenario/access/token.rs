@@ -4,14 +4,7 @@ use super::{Access, R};
 use crate::spec::{AccessSpec, TokenSpec};
 use crate::units::Picos;
 
-pub const KEYS: &[&str] = &[
-    "token_bits",
-    "max_per_token",
-    "token_hold",
-    "token_timeout",
-    "recovery_node",
-    "faults",
-];
+pub const KEYS: &[&str] = &["token_bits", "max_per_token", "token_hold", "token_timeout", "recovery_node", "faults"];
 
 const FAULTS: &[&str] = &["lose-token"];
 
@@ -26,11 +19,7 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
         ));
     }
     c.all_senders_in(&order, "token ring")?;
-    let token_hold = a
-        .token_hold
-        .as_ref()
-        .map(|t| v.time(t, "access.token_hold"))
-        .transpose()?;
+    let token_hold = a.token_hold.as_ref().map(|t| v.time(t, "access.token_hold")).transpose()?;
     if token_hold == Some(Picos::ZERO) {
         return Err(v.err(
             a.token_hold.as_ref().unwrap().span(),
@@ -38,11 +27,7 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
             "token_hold must be greater than zero",
         ));
     }
-    let token_timeout = a
-        .token_timeout
-        .as_ref()
-        .map(|t| v.time(t, "access.token_timeout"))
-        .transpose()?;
+    let token_timeout = a.token_timeout.as_ref().map(|t| v.time(t, "access.token_timeout")).transpose()?;
     let recovery_node = match &a.recovery_node {
         Some(n) => c.find(n, "access.recovery_node")?,
         None => order[0],
@@ -57,11 +42,7 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
         }
         if !lose_token_at.is_empty() && token_timeout.is_none() {
             return Err(v
-                .err(
-                    list.span(),
-                    "access.faults",
-                    "a lost token is never recovered without access.token_timeout",
-                )
+                .err(list.span(), "access.faults", "a lost token is never recovered without access.token_timeout")
                 .with_hint("set token_timeout, e.g. token_timeout = \"20 us\""));
         }
         lose_token_at.sort();
