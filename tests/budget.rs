@@ -441,3 +441,74 @@ traffic = {{ pattern = "poisson", rate = "1000000/s", payload = "64 B", queue_li
     assert_eq!(at["contention"]["events"], 0, "at the minimum guard {g} ps (+2 ps rounding)");
     assert!(below["contention"]["events"].as_u64().unwrap() > 0, "below the minimum guard");
 }
+
+#[test]
+fn uncompensated_tdma_guard_covers_receiver_delay_ranges() {
+    // Receiver delays anywhere in 2–20 ns, drawn per node: without
+    // compensation the releasing owner's longest lag and the next owner's
+    // shortest set the guard. At the budget's guard no seed shows contention.
+    let toml = |guard_ps: u64, seed: u64| {
+        format!(
+            r#"
+seed = {seed}
+timing = "random"
+duration = "5 ms"
+[line]
+length = "10 m"
+impedance = "100 ohm"
+delay = "5 ns/m"
+[transceiver]
+drive_current = "11.3 mA"
+enable_time = "7 ns"
+disable_time = "9 ns"
+receiver_delay = ["2 ns", "20 ns"]
+load = "5 pF"
+receiver = "type2"
+[frame]
+bit_rate = "100 Mbit/s"
+overhead_bits = 48
+[access]
+scheme = "tdma"
+timekeeper = "tk"
+guard = "{guard_ps} ps"
+slot_length = "6 us"
+order = ["p", "r"]
+[[node]]
+name = "tk"
+position = "0 m"
+[[node]]
+name = "p"
+position = "9 m"
+traffic = {{ pattern = "poisson", rate = "1000000/s", payload = "64 B", queue_limit = 10 }}
+[[node]]
+name = "r"
+position = "1 m"
+traffic = {{ pattern = "poisson", rate = "1000000/s", payload = "64 B", queue_limit = 10 }}
+"#
+        )
+    };
+    let b = budget(&toml(50_000, 1), &[]);
+    let guard =
+        b["handovers"].as_array().unwrap().iter().map(|h| h["min_turnaround_s"].as_f64().unwrap()).fold(0.0, f64::max);
+    let g_ps = (guard * 1e12).ceil() as u64 + 2;
+    for seed in 1..=6 {
+        let j = common::run_toml(&toml(g_ps, seed));
+        assert_eq!(j["contention"]["events"], 0, "seed {seed} at guard {g_ps} ps");
+    }
+}
+
+#[test]
+fn arbitration_accepts_a_biased_line() {
+    // TIA-485 receivers read 0 V as undefined, but 5 V through 390 Ω each
+    // way across 60 Ω holds the idle line at 357 mV: recessive reads high.
+    let line = "length = \"10 m\"\nimpedance = \"120 ohm\"\ndelay = \"5 ns/m\"\ntermination = \"120 ohm\"\n[line.bias]\nsupply = \"5 V\"\npull_up = \"390 ohm\"\npull_down = \"390 ohm\"";
+    let tx = format!("family = \"tia485\"\nload = \"10 pF\"\n{TIMING}");
+    let text = bus(line, &tx, "scheme = \"arbitration\"", &[0.0, 10.0]).replace(
+        "name = \"n1\"\nposition = \"10 m\"\n",
+        "name = \"n1\"\nposition = \"10 m\"\ntraffic = { pattern = \"periodic\", period = \"1 ms\", payload = \"4 B\", id = 7 }\n",
+    );
+    let b = budget(&text, &[]);
+    assert_eq!(b["nodes"]["n0"]["idle_state"], "high");
+    let unbiased = text.replace("[line.bias]\nsupply = \"5 V\"\npull_up = \"390 ohm\"\npull_down = \"390 ohm\"", "");
+    assert!(refused(&unbiased).contains("recessive"));
+}

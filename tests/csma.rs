@@ -153,3 +153,15 @@ fn ethernet_style_backoff_stays_below_the_ideal_contention_bound() {
     // (Stations that keep losing to a recent winner reach max_attempts and
     // give messages up: the capture effect of binary exponential backoff.)
 }
+
+#[test]
+fn a_sender_keeps_the_interframe_gap_so_others_get_the_line() {
+    // Saturated 1-persistent CSMA/CD with a 20 µs interframe gap: after each
+    // frame the sender pauses, so waiting stations win the line in turn.
+    let text = scenario(56, 8, 100_000.0, "persistence = 1\ncollision_detect = true", 1)
+        .replace("overhead_bits = 48", "overhead_bits = 48\ninterframe_gap = \"20 us\"");
+    let j = run_toml(&text);
+    let senders =
+        j["latency_s"]["nodes"].as_object().unwrap().values().filter(|l| l["count"].as_u64().unwrap() > 100).count();
+    assert!(senders >= 7, "only {senders} of 8 stations got frames through");
+}
