@@ -25,3 +25,26 @@ pub mod units;
 pub fn simulate(spec: &spec::Spec) -> report::Report {
     engine::Simulation::new(spec).run()
 }
+
+/// Run `n` replications: seeds derived from the scenario's (replication 0
+/// keeps the scenario seed). Runs on up to `jobs` threads; the result does
+/// not depend on `jobs`.
+pub fn replicate(spec: &spec::Spec, n: u64, jobs: usize) -> Vec<report::Report> {
+    let seeds: Vec<u64> =
+        (0..n).map(|k| if k == 0 { spec.seed } else { engine::rng::replication_seed(spec.seed, k) }).collect();
+    let next = std::sync::atomic::AtomicUsize::new(0);
+    let slots: Vec<std::sync::Mutex<Option<report::Report>>> =
+        seeds.iter().map(|_| std::sync::Mutex::new(None)).collect();
+    std::thread::scope(|s| {
+        for _ in 0..jobs.clamp(1, seeds.len().max(1)) {
+            s.spawn(|| loop {
+                let i = next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+                let Some(&seed) = seeds.get(i) else { break };
+                let mut one = spec.clone();
+                one.seed = seed;
+                *slots[i].lock().expect("no poisoned slot") = Some(simulate(&one));
+            });
+        }
+    });
+    slots.into_iter().map(|m| m.into_inner().expect("no poisoned slot").expect("every replication ran")).collect()
+}

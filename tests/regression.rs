@@ -166,3 +166,94 @@ fn bad_regression_inputs() {
     assert_eq!(halfwire(&["diff", &good, &fruit]).status.code(), Some(2));
     assert_ne!(halfwire(&["diff", &good, &fruit, "--force"]).status.code(), Some(2));
 }
+
+#[test]
+fn replications_give_intervals_that_shrink_with_n() {
+    let run = |n: &str| {
+        let out = halfwire(&[
+            "run",
+            "scenarios/fruit-grader.toml",
+            "--format",
+            "json",
+            "--duration",
+            "10 ms",
+            "--replications",
+            n,
+        ]);
+        assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+        let v: Value = serde_json::from_slice(&out.stdout).unwrap();
+        let m = v["replications"]["metrics"]["latency_s.all.mean"].clone();
+        (m["ci95_high"].as_f64().unwrap() - m["mean"].as_f64().unwrap(), v)
+    };
+    let (h5, v5) = run("5");
+    let (h20, _) = run("20");
+    // Expected ratio ≈ (t(0.975;19)/√20)/(t(0.975;4)/√5) = 0.38 (Student t tables).
+    let ratio = h20 / h5;
+    assert!(ratio > 0.15 && ratio < 0.7, "half-width ratio {ratio}");
+    assert_eq!(v5["replications"]["count"], 5);
+    // Reproducible: the same replications give the same intervals.
+    let (again, _) = run("5");
+    assert_eq!(h5, again);
+}
+
+#[test]
+fn confidence_expectations_hold_at_the_interval_limit() {
+    let dir = tempfile::tempdir().unwrap();
+    // The mean latency over 10 replications of 10 ms is about 23 µs with a
+    // half-width near 0.7 µs: a 23.5 µs bound holds on the mean; at the
+    // upper confidence limit it does not.
+    let body = |confidence: bool| {
+        fruit_with(&format!(
+            "[[expect]]\nmetric = \"latency_s.all.mean\"\nop = \"<=\"\nvalue = \"23.5 us\"\nconfidence = {confidence}\n"
+        ))
+        .replace("duration = \"50 ms\"", "duration = \"10 ms\"")
+    };
+    let plain = write(dir.path(), "plain.toml", &body(false));
+    let strict = write(dir.path(), "strict.toml", &body(true));
+    let a = halfwire(&["check", &plain, "--replications", "10", "--format", "json"]);
+    let b = halfwire(&["check", &strict, "--replications", "10", "--format", "json"]);
+    let va: Value = serde_json::from_slice(&a.stdout).unwrap();
+    let vb: Value = serde_json::from_slice(&b.stdout).unwrap();
+    let mean = va["scenarios"][0]["outcomes"][0]["measured"].as_f64().unwrap();
+    let limit = vb["scenarios"][0]["outcomes"][0]["limit"].as_f64().unwrap();
+    assert!(mean <= 23.5e-6 && limit > 23.5e-6, "mean {mean}, upper limit {limit}");
+    assert_eq!(a.status.code(), Some(0));
+    assert_eq!(b.status.code(), Some(1));
+}
+
+#[test]
+fn reports_validate_against_the_versioned_schema() {
+    // Validated with an independent JSON Schema implementation (the jsonschema crate).
+    let schema: Value =
+        serde_json::from_str(&std::fs::read_to_string("schemas/halfwire-report-1.schema.json").unwrap()).unwrap();
+    let validator = jsonschema::validator_for(&schema).expect("the schema itself is valid");
+    let mut checked = 0;
+    for entry in std::fs::read_dir("scenarios").unwrap() {
+        let path = entry.unwrap().path();
+        if path.extension().and_then(|e| e.to_str()) != Some("toml") {
+            continue;
+        }
+        let out = halfwire(&["run", path.to_str().unwrap(), "--format", "json"]);
+        let report: Value = serde_json::from_slice(&out.stdout).unwrap();
+        let errors: Vec<String> =
+            validator.iter_errors(&report).map(|e| format!("{} at {}", e, e.instance_path)).collect();
+        assert!(errors.is_empty(), "{}: {errors:?}", path.display());
+        checked += 1;
+    }
+    assert!(checked >= 8);
+    // Replicated reports too; and a report that breaks the contract fails.
+    let out = halfwire(&[
+        "run",
+        "scenarios/buoy-link.toml",
+        "--format",
+        "json",
+        "--duration",
+        "60 ms",
+        "--replications",
+        "3",
+    ]);
+    let mut report: Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert!(validator.is_valid(&report));
+    report["utilization"]["idle"] = 1.5.into();
+    assert!(!validator.is_valid(&report));
+}

@@ -25,6 +25,10 @@ pub struct CheckArgs {
     /// Scenarios run at once (default: the number of cores).
     #[arg(long)]
     pub jobs: Option<usize>,
+    /// Run each scenario N times with independent seeds: expectations compare
+    /// the mean, and `confidence = true` ones the 95 % confidence limit.
+    #[arg(long, value_name = "N")]
+    pub replications: Option<u64>,
 }
 
 /// One scenario's result.
@@ -93,7 +97,12 @@ pub fn check(args: CheckArgs) -> Result<u8, Failure> {
         work.push((f.clone(), spec, resolved));
     }
     let jobs = args.jobs.unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |n| n.get())).max(1);
-    let results = run_all(&work, jobs);
+    if let Some(n) = args.replications {
+        if !(2..=10_000).contains(&n) {
+            return Err(Failure::input("--replications takes 2 to 10000 (an interval needs at least two)"));
+        }
+    }
+    let results = run_all(&work, jobs, args.replications);
     let failed: usize = results.iter().map(|r| r.outcomes.iter().filter(|o| !o.pass).count()).sum();
     let total: usize = results.iter().map(|r| r.outcomes.len()).sum();
     if let Some(path) = &args.junit {
@@ -116,7 +125,11 @@ pub fn check(args: CheckArgs) -> Result<u8, Failure> {
 
 /// Run the scenarios on `jobs` threads; results in file order whatever the
 /// finishing order, so the output never depends on `jobs`.
-fn run_all(work: &[(PathBuf, Spec, Vec<check::Resolved>)], jobs: usize) -> Vec<ScenarioResult> {
+fn run_all(
+    work: &[(PathBuf, Spec, Vec<check::Resolved>)],
+    jobs: usize,
+    replications: Option<u64>,
+) -> Vec<ScenarioResult> {
     let next = std::sync::atomic::AtomicUsize::new(0);
     let slots: Vec<std::sync::Mutex<Option<ScenarioResult>>> =
         work.iter().map(|_| std::sync::Mutex::new(None)).collect();
@@ -126,9 +139,24 @@ fn run_all(work: &[(PathBuf, Spec, Vec<check::Resolved>)], jobs: usize) -> Vec<S
                 let i = next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
                 let Some((file, spec, resolved)) = work.get(i) else { break };
                 let started = std::time::Instant::now();
-                let report = serde_json::to_value(halfwire::simulate(spec)).expect("serializable");
-                let metrics = check::flatten(&report);
-                let outcomes = resolved.iter().map(|r| check::evaluate(r, &metrics, None)).collect();
+                let outcomes = match replications {
+                    None => {
+                        let report = serde_json::to_value(halfwire::simulate(spec)).expect("serializable");
+                        let metrics = check::flatten(&report);
+                        resolved.iter().map(|r| check::evaluate(r, &metrics, None)).collect()
+                    }
+                    Some(n) => {
+                        // Replications run one after another here: the scenarios already share the cores.
+                        let flat: Vec<_> = halfwire::replicate(spec, n, 1)
+                            .iter()
+                            .map(|r| check::flatten(&serde_json::to_value(r).expect("serializable")))
+                            .collect();
+                        let summary = halfwire::stats::replication::summarize(&flat);
+                        let means = summary.iter().map(|(k, m)| (k.clone(), m.mean)).collect();
+                        let intervals = summary.iter().map(|(k, m)| (k.clone(), (m.ci95_low, m.ci95_high))).collect();
+                        resolved.iter().map(|r| check::evaluate(r, &means, Some(&intervals))).collect()
+                    }
+                };
                 *slots[i].lock().expect("no poisoned slot") = Some(ScenarioResult {
                     file: file.display().to_string(),
                     name: spec.name.clone(),

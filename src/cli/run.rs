@@ -39,6 +39,10 @@ pub struct RunArgs {
     /// Simulated-time window for --events, e.g. "0us..50us" (default: the whole run).
     #[arg(long, value_name = "A..B")]
     pub window: Option<String>,
+    /// Run N replications with independent seeds derived from the scenario's,
+    /// and add the mean, standard error and 95 % confidence interval of every metric.
+    #[arg(long, value_name = "N", conflicts_with = "events")]
+    pub replications: Option<u64>,
 }
 
 /// Parse "A..B" with units on both ends.
@@ -79,6 +83,9 @@ fn apply_overrides(spec: &mut Spec, args: &RunArgs) -> Result<(), Failure> {
 pub fn run(args: RunArgs) -> Result<u8, Failure> {
     let mut spec = halfwire::scenario::load(&args.file)?;
     apply_overrides(&mut spec, &args)?;
+    if let Some(n) = args.replications {
+        return replicated(&spec, n, args.format);
+    }
     if args.window.is_some() && args.events.is_none() {
         return Err(Failure::input("--window needs an output that uses it: give --events FILE"));
     }
@@ -225,4 +232,58 @@ fn render_events(spec: &Spec, events: &[BusEvent]) -> String {
         out.push('\n');
     }
     out
+}
+
+/// `--replications N`: the first replication's report plus the interval of every metric.
+fn replicated(spec: &Spec, n: u64, format: Format) -> Result<u8, Failure> {
+    if !(2..=10_000).contains(&n) {
+        return Err(Failure::input("--replications takes 2 to 10000 (an interval needs at least two)"));
+    }
+    let jobs = std::thread::available_parallelism().map_or(1, |j| j.get());
+    let started = Instant::now();
+    let reports = halfwire::replicate(spec, n, jobs);
+    let wall = started.elapsed().as_secs_f64();
+    let flat: Vec<_> =
+        reports.iter().map(|r| halfwire::check::flatten(&serde_json::to_value(r).expect("serializable"))).collect();
+    let summary = halfwire::stats::replication::summarize(&flat);
+    let mut first = reports.into_iter().next().expect("n ≥ 2");
+    first.set_wall_time(wall);
+    let out = match format {
+        Format::Json => {
+            let mut v = serde_json::to_value(&first).expect("serializable");
+            v["replications"] = serde_json::json!({ "count": n, "metrics": summary });
+            let mut s = serde_json::to_string_pretty(&v).expect("serializable");
+            s.push('\n');
+            s
+        }
+        Format::Text => {
+            let mut o = text::render(&first, console::colors_enabled());
+            o.push_str(&format!("\nReplications: {n}, 95 % confidence intervals (Student t)\n"));
+            for key in [
+                "throughput.payload_bit_s",
+                "throughput.carried",
+                "latency_s.all.mean",
+                "latency_s.all.p99",
+                "latency_s.all.max",
+                "contention.events",
+                "floating.windows",
+                "frames.dropped",
+            ] {
+                if let Some(m) = summary.get(key) {
+                    let show = |x: f64| halfwire::check::show(key, x);
+                    o.push_str(&format!(
+                        "  {:<28} {:>14} ± {:<12} [{} … {}]\n",
+                        key,
+                        show(m.mean),
+                        show(m.ci95_high - m.mean),
+                        show(m.ci95_low),
+                        show(m.ci95_high)
+                    ));
+                }
+            }
+            o
+        }
+    };
+    print_stdout(&out)?;
+    Ok(0)
 }

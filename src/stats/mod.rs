@@ -1,6 +1,7 @@
 //! Counters and accumulators filled by the engine during the measured window.
 
 pub mod latency;
+pub mod replication;
 pub mod utilization;
 
 pub use latency::{LatencyStats, LatencySummary};
