@@ -85,7 +85,7 @@ pub fn diff(args: DiffArgs) -> Result<u8, Failure> {
                 }
                 per.insert(metric.to_owned(), percent(p, metric)?);
             }
-            None => global = percent(t, "")?,
+            None => global = percent(t, "(global)")?,
         }
     }
     let changes = diff::compare(&b, &n, |m| per.get(m).copied().unwrap_or(global));
