@@ -126,6 +126,9 @@ impl Arbitration {
     /// receiver will show it, delayed; a node learns of it only then.
     fn note(&mut self, w: &World, src: NodeId, on: Picos, off: Picos) {
         for j in 0..self.quiet_from.len() {
+            // Fold what has already begun to show, so that the list holds
+            // only activity still on its way, however long a node stays idle.
+            self.fold(j, w.now());
             let (from, to) = (w.seen_at(src, j, on), w.seen_at(src, j, off));
             self.ahead[j].push((from, to));
         }
