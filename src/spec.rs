@@ -266,11 +266,19 @@ pub enum Payload {
 }
 
 impl Payload {
-    pub fn mean_bits(&self) -> f64 {
+    /// The largest payload this source can draw.
+    pub fn max_bits(&self) -> u64 {
         match *self {
-            Payload::Fixed { bits } => bits as f64,
-            Payload::Uniform { min_bits, max_bits } => (min_bits + max_bits) as f64 / 2.0,
+            Payload::Fixed { bits } => bits,
+            Payload::Uniform { max_bits, .. } => max_bits,
         }
+    }
+}
+
+impl NodeSpec {
+    /// The largest payload any of this node's sources can draw (0 without traffic).
+    pub fn longest_payload_bits(&self) -> u64 {
+        self.traffic.iter().map(|t| t.payload.max_bits()).max().unwrap_or(0)
     }
 }
 
@@ -449,6 +457,40 @@ pub enum Persistence {
     P(f64),
 }
 
+/// The largest enable, disable and receiver times over every node's range:
+/// the worst case for sizing a slot.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct WorstTimes {
+    pub enable: Picos,
+    pub disable: Picos,
+    pub receiver: Picos,
+}
+
+impl WorstTimes {
+    pub fn of(nodes: &[NodeSpec]) -> Self {
+        let max = |f: fn(&Transceiver) -> Picos| nodes.iter().map(|n| f(&n.transceiver)).max().unwrap_or(Picos::ZERO);
+        WorstTimes {
+            enable: max(|t| t.enable_range.max),
+            disable: max(|t| t.disable_range.max),
+            receiver: max(|t| t.receiver_range.max),
+        }
+    }
+
+    /// How long until every node can see a signal: the largest wire delay
+    /// between two nodes plus the largest receiver delay.
+    pub fn lag(&self, max_wire: Picos) -> Picos {
+        max_wire + self.receiver
+    }
+}
+
+impl AlohaSpec {
+    /// The smallest slot in which frames sent in different slots never meet:
+    /// the longest frame plus the enable and disable times and the worst lag.
+    pub fn min_slot(worst: WorstTimes, max_wire: Picos, longest_frame: Picos) -> Picos {
+        worst.enable + longest_frame + worst.disable + worst.lag(max_wire)
+    }
+}
+
 /// Carrier-sense multiple access, optionally with collision detection.
 #[derive(Clone, Debug, PartialEq)]
 pub struct CsmaSpec {
@@ -515,6 +557,18 @@ impl TdmaSpec {
     /// The whole cycle in the timekeeper's time.
     pub fn cycle(&self, frame: &FrameFormat, timekeeper_enable: Picos) -> Picos {
         self.slots.iter().fold(self.beacon_slot(frame, timekeeper_enable), |acc, s| acc + s.length)
+    }
+}
+
+impl CsmaSpec {
+    /// The smallest CSMA/CD slot: a collision is seen everywhere within a
+    /// round trip plus the enable, disable and detection times, rounded up
+    /// to whole bit times. `detect` defaults to the worst receiver delay.
+    pub fn min_slot(worst: WorstTimes, max_wire: Picos, detect: Option<Picos>, bit_time: Picos) -> Picos {
+        let lag = worst.lag(max_wire);
+        let raw = lag + lag + worst.enable + worst.disable + detect.unwrap_or(worst.receiver);
+        let tb = bit_time.0.max(1);
+        Picos(raw.0.div_ceil(tb).max(1) * tb)
     }
 }
 

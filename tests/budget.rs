@@ -40,48 +40,8 @@ fn bus(line: &str, transceiver: &str, access: &str, positions: &[f64]) -> String
 const TIMING: &str = "enable_time = \"7 ns\"\ndisable_time = \"9 ns\"\nreceiver_delay = \"5 ns\"";
 const POLL: &str = "scheme = \"polling\"\nmaster = \"n0\"\nturnaround = \"20 ns\"\nreply_timeout = \"5 us\"";
 
-/// The TDMA pair of tests/tdma.rs: timekeeper at 0 m, P at 2 m with a slot of
-/// `slot_p_ps`, R at 9 m whose clock runs 100 ppm fast; both always busy.
-fn tdma_pair(guard_ps: u64, slot_p_ps: u64) -> String {
-    format!(
-        r#"
-duration = "20 ms"
-[line]
-length = "10 m"
-impedance = "100 ohm"
-delay = "5 ns/m"
-[transceiver]
-drive_current = "11.3 mA"
-enable_time = "7 ns"
-disable_time = "9 ns"
-receiver_delay = "5 ns"
-load = "5 pF"
-receiver = "type2"
-[frame]
-bit_rate = "100 Mbit/s"
-overhead_bits = 48
-[access]
-scheme = "tdma"
-timekeeper = "tk"
-beacon_bits = 32
-guard = "{guard_ps} ps"
-slots = [{{ node = "p", length = "{slot_p_ps} ps" }}, {{ node = "r", length = "8 us" }}]
-compensate = true
-clock_ppm = {{ r = 100.0 }}
-[[node]]
-name = "tk"
-position = "0 m"
-[[node]]
-name = "p"
-position = "2 m"
-traffic = {{ pattern = "poisson", rate = "1000000/s", payload = "64 B", queue_limit = 10 }}
-[[node]]
-name = "r"
-position = "9 m"
-traffic = {{ pattern = "poisson", rate = "1000000/s", payload = "64 B", queue_limit = 10 }}
-"#
-    )
-}
+/// R's clock 100 ppm fast, beacon delays compensated.
+const R_FAST: &str = "compensate = true\nclock_ppm = { r = 100.0 }";
 
 fn close(a: f64, b: f64, rel: f64) -> bool {
     ((a - b) / b).abs() < rel
@@ -250,7 +210,7 @@ fn tdma_guard_minimum_matches_the_derivation() {
     // takes the worst clocks on both sides, here ε_P = 0, so it must equal
     // (1+ε)(dis + d + O_R(1 − 1/(1+ε))) with O_R = L_P.
     let eps: f64 = 100e-6;
-    let b = budget(&tdma_pair(50_000, 5_657_000), &[]);
+    let b = budget(&common::tdma_pair(50_000, 5_657_000, 8_000_000, R_FAST), &[]);
     let pr = b["handovers"].as_array().unwrap().iter().find(|h| h["from"] == "p" && h["to"] == "r").unwrap().clone();
     let d = (7.0 * common::loaded_tpd(5e-9, 100.0, 15e-12, 10.0) * 1e12).round() * 1e-12;
     let o_r = 5657e-9;
@@ -394,7 +354,7 @@ fn termination_per_end_and_current_ranges() {
 fn tdma_guard_minimum_holds_in_the_run() {
     // P fills its slot (L_P = g + e + T), R's clock runs 100 ppm fast: at the
     // budget's minimum guard the run shows no contention, a little below it does.
-    let scenario = |g_ps: u64| tdma_pair(g_ps, g_ps + 7_000 + 5_600_000);
+    let scenario = |g_ps: u64| common::tdma_pair(g_ps, g_ps + 7_000 + 5_600_000, 8_000_000, R_FAST);
     // The budget's P → R minimum depends on the guard (through O_R = L_P):
     // iterate to the fixed point g = min(g).
     let mut g = 45_000u64;

@@ -4,52 +4,8 @@
 
 mod common;
 
-use common::{loaded_tpd, run_toml};
+use common::{loaded_tpd, run_toml, tdma_pair};
 use serde_json::Value;
-
-/// Timekeeper at 0 m, P at 2 m and R at 9 m (unequal spacing); P owns the
-/// first slot, R the second; both always have a 64-byte message ready.
-fn scenario(guard_ps: u64, slot_p_ps: u64, slot_r_ps: u64, extra: &str) -> String {
-    format!(
-        r#"
-duration = "20 ms"
-warmup = "1 ms"
-[line]
-length = "10 m"
-impedance = "100 ohm"
-delay = "5 ns/m"
-[transceiver]
-drive_current = "11.3 mA"
-enable_time = "7 ns"
-disable_time = "9 ns"
-receiver_delay = "5 ns"
-load = "5 pF"
-receiver = "type2"
-[frame]
-bit_rate = "100 Mbit/s"
-overhead_bits = 48
-interframe_gap = "40 ns"
-[access]
-scheme = "tdma"
-timekeeper = "tk"
-beacon_bits = 32
-guard = "{guard_ps} ps"
-slots = [{{ node = "p", length = "{slot_p_ps} ps" }}, {{ node = "r", length = "{slot_r_ps} ps" }}]
-{extra}
-[[node]]
-name = "tk"
-position = "0 m"
-[[node]]
-name = "p"
-position = "2 m"
-traffic = {{ pattern = "poisson", rate = "1000000/s", payload = "64 B", queue_limit = 100 }}
-[[node]]
-name = "r"
-position = "9 m"
-traffic = {{ pattern = "poisson", rate = "1000000/s", payload = "64 B", queue_limit = 100 }}
-"#
-    )
-}
 
 const EN: f64 = 7e-9;
 const DIS: f64 = 9e-9;
@@ -77,7 +33,7 @@ fn guard_bound_with_clock_error() {
         let g_ps = (g * 1e12).round() as u64;
         let slot_p = g_ps + 7_000 + 5_600_000;
         let slot_r = slot_p + 1_000_000;
-        run_toml(&scenario(g_ps, slot_p, slot_r, "compensate = true\nclock_ppm = { r = 100.0 }"))
+        run_toml(&tdma_pair(g_ps, slot_p, slot_r, "compensate = true\nclock_ppm = { r = 100.0 }"))
     };
     let safe = run(g_star + 3e-12); // ±3 ps: each clock conversion is rounded to the picosecond
     let short = run(g_star - 3e-12);
@@ -87,7 +43,7 @@ fn guard_bound_with_clock_error() {
     assert!(safe["frames"]["delivered"].as_u64().unwrap() > 1000);
     // Without the clock error the same guard is ample; without compensation
     // the lag difference (R is 7 m further from the timekeeper) helps R here.
-    let exact = run_toml(&scenario(
+    let exact = run_toml(&tdma_pair(
         ((DIS + d) * 1e12).round() as u64 + 1_000,
         ((DIS + d) * 1e12).round() as u64 + 1_000 + 5_607_000,
         10_000_000,
@@ -101,7 +57,7 @@ fn throughput_equals_the_slot_utilisation() {
     // Two frames fit each slot: L = g + e + 2T + ifg + 100 ns slack.
     let g = 100_000u64;
     let slot = g + 7_000 + 2 * 5_600_000 + 40_000 + 100_000;
-    let j = run_toml(&scenario(g, slot, slot, ""));
+    let j = run_toml(&tdma_pair(g, slot, slot, ""));
     // Cycle = beacon slot (g + e + 32 bits) + both slots.
     let cycle = (g + 7_000 + 320_000 + 2 * slot) as f64 * 1e-12;
     let expected = 4.0 * DUR / cycle;
@@ -121,7 +77,7 @@ fn throughput_equals_the_slot_utilisation() {
 fn a_slot_too_short_for_a_frame_is_refused() {
     let dir = tempfile::tempdir().unwrap();
     let path = dir.path().join("t.toml");
-    std::fs::write(&path, scenario(100_000, 1_000_000, 10_000_000, "")).unwrap();
+    std::fs::write(&path, tdma_pair(100_000, 1_000_000, 10_000_000, "")).unwrap();
     let out = common::halfwire(&["run", path.to_str().unwrap()]);
     assert_eq!(out.status.code(), Some(2));
     let err = String::from_utf8_lossy(&out.stderr);

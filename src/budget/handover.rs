@@ -11,7 +11,7 @@
 use serde::Serialize;
 
 use crate::line::LineModel;
-use crate::spec::{AccessSpec, Drift, NodeId, Spec};
+use crate::spec::{AccessSpec, AlohaSpec, CsmaSpec, Drift, NodeId, Spec, WorstTimes};
 use crate::units::Picos;
 
 /// One hand-over and its minimum.
@@ -94,16 +94,19 @@ pub fn handovers(spec: &Spec, line: &LineModel, float_limit: Option<Picos>) -> V
         AccessSpec::Tdma(t) => out.extend(tdma(spec, line, t)),
         AccessSpec::Csma(c) => {
             if c.collision_detect {
-                let min = csma_slot(spec, line, c.detect_delay);
+                let min = CsmaSpec::min_slot(
+                    WorstTimes::of(&spec.nodes),
+                    line.max_node_delay,
+                    c.detect_delay,
+                    spec.frame.bit_time(),
+                );
                 out.push(whole_bus("slot", min, c.slot_time));
             }
         }
         AccessSpec::Aloha(a) => {
             if a.slotted {
-                let longest = longest_frame(spec);
-                let en = spec.nodes.iter().map(|n| n.transceiver.enable_time).max().unwrap_or(Picos::ZERO);
-                let dis = spec.nodes.iter().map(|n| n.transceiver.disable_time).max().unwrap_or(Picos::ZERO);
-                out.push(whole_bus("slot", en + longest + dis + max_lag(spec, line), a.slot_time));
+                let min = AlohaSpec::min_slot(WorstTimes::of(&spec.nodes), line.max_node_delay, longest_frame(spec));
+                out.push(whole_bus("slot", min, a.slot_time));
             }
         }
         AccessSpec::Arbitration(a) => {
@@ -138,33 +141,9 @@ fn whole_bus(kind: &'static str, min: Picos, configured: Picos) -> Handover {
     }
 }
 
-fn max_lag(spec: &Spec, line: &LineModel) -> Picos {
-    line.max_node_delay + spec.nodes.iter().map(|n| n.transceiver.receiver_delay).max().unwrap_or(Picos::ZERO)
-}
-
 fn longest_frame(spec: &Spec) -> Picos {
-    let bits = spec
-        .nodes
-        .iter()
-        .flat_map(|n| &n.traffic)
-        .map(|t| match t.payload {
-            crate::spec::Payload::Fixed { bits } => bits,
-            crate::spec::Payload::Uniform { max_bits, .. } => max_bits,
-        })
-        .max()
-        .unwrap_or(0);
+    let bits = spec.nodes.iter().map(crate::spec::NodeSpec::longest_payload_bits).max().unwrap_or(0);
     spec.frame.duration(spec.frame.data_line_bits(bits))
-}
-
-/// The CSMA/CD slot: a collision is seen everywhere within a round trip
-/// plus the transceiver times and the detection delay.
-fn csma_slot(spec: &Spec, line: &LineModel, detect: Option<Picos>) -> Picos {
-    let max = |f: fn(&crate::spec::NodeSpec) -> Picos| spec.nodes.iter().map(f).max().unwrap_or(Picos::ZERO);
-    let lag = max_lag(spec, line);
-    let detect = detect.unwrap_or(max(|n| n.transceiver.receiver_delay));
-    let raw = lag + lag + max(|n| n.transceiver.enable_time) + max(|n| n.transceiver.disable_time) + detect;
-    let tb = spec.frame.bit_time().0.max(1);
-    Picos(raw.0.div_ceil(tb).max(1) * tb)
 }
 
 /// TDMA: guard for every slot boundary, with the worst clock errors (the

@@ -60,8 +60,9 @@ pub struct Budget {
 impl Budget {
     pub fn compute(spec: &Spec, options: Options) -> Budget {
         let line = LineModel::new(spec);
+        let (_, weakest_v) = figures::weakest(&line);
         let nodes = (0..spec.nodes.len())
-            .map(|i| (spec.nodes[i].name.clone(), figures::node_figures(spec, &line, i)))
+            .map(|i| (spec.nodes[i].name.clone(), figures::node_figures(spec, &line, i, weakest_v)))
             .collect();
         let limits = Limits {
             max_bit_rate_bit_s: checks::max_bit_rate(spec, options.stub_fraction),

@@ -82,10 +82,6 @@ impl FloatingSweep {
         self
     }
 
-    pub fn is_hazard(&self, node: usize) -> bool {
-        self.hazard[node]
-    }
-
     /// Feed an occupancy as seen at receiver `node` only: it arrives at `from`
     /// and leaves at `to`; `next_arrival` bounds the window from above.
     pub fn feed(&mut self, node: usize, from: u64, to: u64, next_arrival: u64) {

@@ -156,19 +156,6 @@ impl Bus {
         })
     }
 
-    /// Does the receiver output of `node` show a driven line at `t`?
-    /// Occupancies of `node` itself are ignored when `others_only`.
-    pub fn sensed_busy(&self, line: &LineModel, node: NodeId, t: u64, others_only: bool) -> bool {
-        let rx = self.receiver_delay[node];
-        self.log.iter().any(|o| {
-            if others_only && o.node == node {
-                return false;
-            }
-            let lag = line.delay_ps(o.node, node) + rx;
-            o.a + lag <= t && t < o.b + lag
-        })
-    }
-
     /// If the receiver of `node` shows another driver at `t`, until when the
     /// activity it shows at `t` lasts (signals that reach it later are not
     /// known to it yet).
@@ -288,10 +275,5 @@ impl Bus {
         self.process(line, now, true, trace);
         self.floating.finish(end, |i| line.delay_row(i));
         self.util.finish();
-    }
-
-    /// Entries currently held (for tests of the memory bound).
-    pub fn held(&self) -> usize {
-        self.log.len()
     }
 }

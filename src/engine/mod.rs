@@ -191,21 +191,7 @@ impl Simulation {
         while let Some((t, ev)) = w.queue.pop() {
             if let Event::Deliver { frame, to } = ev {
                 w.now = w.now.max(t);
-                let f = w.frames[frame as usize];
-                let corrupted = f.aborted || w.bus.is_corrupted(&w.line, f.src, to as usize, f.s, f.e);
-                w.trace.push(BusEvent {
-                    t: f.e,
-                    node: f.src,
-                    kind: BusEventKind::FrameEnd { frame: f.kind.name(), to: to as usize, corrupted },
-                });
-                let rec = &mut w.frames[frame as usize];
-                rec.remaining -= 1;
-                rec.corrupted_any |= corrupted;
-                if rec.remaining == 0 {
-                    let any = rec.corrupted_any;
-                    add_frame_pieces(w, &f, any);
-                    w.bus.frame_resolved(f.occupancy);
-                }
+                resolve_delivery(w, frame, to as usize);
             }
         }
         let close = w.now.max(end);
@@ -253,11 +239,9 @@ impl Simulation {
 
     fn on_deliver(&mut self, idx: u32, to: NodeId) {
         let w = &mut self.world;
-        let f = w.frames[idx as usize];
-        let corrupted = f.aborted || w.bus.is_corrupted(&w.line, f.src, to, f.s, f.e);
+        let (f, corrupted) = resolve_delivery(w, idx, to);
         let now = w.now;
-        let counted = w.in_window(now);
-        if counted {
+        if w.in_window(now) {
             if f.kind == FrameKind::Data {
                 let st = &mut w.stats;
                 st.frames.attempts += 1;
@@ -283,23 +267,6 @@ impl Simulation {
                 }
             }
         }
-        if w.trace.enabled() {
-            w.trace.push(BusEvent {
-                t: f.e,
-                node: f.src,
-                kind: BusEventKind::FrameEnd { frame: f.kind.name(), to, corrupted },
-            });
-        }
-        let rec = &mut w.frames[idx as usize];
-        rec.remaining -= 1;
-        rec.corrupted_any |= corrupted;
-        let done = rec.remaining == 0;
-        let any = rec.corrupted_any;
-        if done {
-            add_frame_pieces(w, &f, any);
-            w.bus.frame_resolved(f.occupancy);
-            w.free_frames.push(idx);
-        }
         let rx = Reception {
             kind: f.kind,
             from: f.src,
@@ -311,6 +278,29 @@ impl Simulation {
         };
         self.scheme.on_receive(&mut self.world, &rx);
     }
+}
+
+/// The physics of one delivery, shared by the run and by closing it: is the
+/// frame corrupted at `to`; trace it; and once its last delivery is done,
+/// classify its line time, release its occupancy and free its record.
+fn resolve_delivery(w: &mut World, idx: u32, to: NodeId) -> (world::FrameRec, bool) {
+    let f = w.frames[idx as usize];
+    let corrupted = f.aborted || w.bus.is_corrupted(&w.line, f.src, to, f.s, f.e);
+    w.trace.push(BusEvent {
+        t: f.e,
+        node: f.src,
+        kind: BusEventKind::FrameEnd { frame: f.kind.name(), to, corrupted },
+    });
+    let rec = &mut w.frames[idx as usize];
+    rec.remaining -= 1;
+    rec.corrupted_any |= corrupted;
+    if rec.remaining == 0 {
+        let any = rec.corrupted_any;
+        add_frame_pieces(w, &f, any);
+        w.bus.frame_resolved(f.occupancy);
+        w.free_frames.push(idx);
+    }
+    (f, corrupted)
 }
 
 /// Utilization pieces of a resolved frame.

@@ -250,11 +250,6 @@ impl World {
         t + self.line.delay(from, to) + self.spec.nodes[to].transceiver.receiver_delay
     }
 
-    /// Does the receiver of `node` show another driver on the line now?
-    pub fn carrier_sensed(&self, node: NodeId) -> bool {
-        self.bus.sensed_busy(&self.line, node, self.now.0, true)
-    }
-
     /// If the receiver of `node` shows another driver now, until when the
     /// activity it shows lasts (a later signal may extend it: sense again then).
     pub fn carrier_until(&self, node: NodeId) -> Option<Picos> {

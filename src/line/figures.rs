@@ -88,8 +88,8 @@ pub fn line_figures(spec: &Spec, line: &LineModel) -> LineFigures {
     }
 }
 
-pub fn node_figures(spec: &Spec, line: &LineModel, node: usize) -> NodeFigures {
-    let (_, weakest_v) = weakest(line);
+/// `weakest_v` is the weakest driver's amplitude ([`weakest`]).
+pub fn node_figures(spec: &Spec, line: &LineModel, node: usize, weakest_v: f64) -> NodeFigures {
     NodeFigures {
         amplitude_step_v: line.amplitude_v[node],
         amplitude_dc_v: line.amplitude_dc_v[node],

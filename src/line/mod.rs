@@ -130,13 +130,4 @@ impl LineModel {
             loaded::reflection(self.ends.far_ohm, self.loaded.impedance_ohm),
         )
     }
-
-    /// The smallest driver amplitude on the bus and the node that produces it.
-    pub fn worst_amplitude(&self) -> (NodeId, f64) {
-        self.amplitude_v
-            .iter()
-            .copied()
-            .enumerate()
-            .fold((0, f64::INFINITY), |acc, (i, v)| if v < acc.1 { (i, v) } else { acc })
-    }
 }

@@ -274,15 +274,7 @@ fn check_arrival_count(v: &V, raw: &RawScenario, nodes: &[NodeSpec], duration: P
 
 /// The longest data frame must fit the supported time range.
 fn check_frame_times(v: &V, raw: &RawScenario, frame: &FrameFormat, nodes: &[NodeSpec]) -> R<()> {
-    let longest = nodes
-        .iter()
-        .flat_map(|n| &n.traffic)
-        .map(|t| match t.payload {
-            Payload::Fixed { bits } => bits,
-            Payload::Uniform { max_bits, .. } => max_bits,
-        })
-        .max()
-        .unwrap_or(0);
+    let longest = nodes.iter().map(NodeSpec::longest_payload_bits).max().unwrap_or(0);
     let line_bits = frame.data_line_bits(longest);
     if line_bits as f64 / frame.bit_rate > MAX_TIME.as_secs_f64() {
         return Err(v.err(

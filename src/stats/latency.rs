@@ -51,10 +51,6 @@ impl LatencyStats {
         self.count
     }
 
-    pub fn histogram(&self) -> &Histogram<u64> {
-        &self.hist
-    }
-
     pub fn mean_ps(&self) -> f64 {
         if self.count == 0 {
             0.0

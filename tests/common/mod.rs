@@ -226,3 +226,47 @@ pub fn halfwire(args: &[&str]) -> std::process::Output {
         .output()
         .expect("the halfwire binary runs")
 }
+
+/// A TDMA pair for the guard tests: timekeeper at 0 m, P at 2 m and R at 9 m (unequal spacing); P owns the
+/// first slot, R the second; both always have a 64-byte message ready.
+pub fn tdma_pair(guard_ps: u64, slot_p_ps: u64, slot_r_ps: u64, extra: &str) -> String {
+    format!(
+        r#"
+duration = "20 ms"
+warmup = "1 ms"
+[line]
+length = "10 m"
+impedance = "100 ohm"
+delay = "5 ns/m"
+[transceiver]
+drive_current = "11.3 mA"
+enable_time = "7 ns"
+disable_time = "9 ns"
+receiver_delay = "5 ns"
+load = "5 pF"
+receiver = "type2"
+[frame]
+bit_rate = "100 Mbit/s"
+overhead_bits = 48
+interframe_gap = "40 ns"
+[access]
+scheme = "tdma"
+timekeeper = "tk"
+beacon_bits = 32
+guard = "{guard_ps} ps"
+slots = [{{ node = "p", length = "{slot_p_ps} ps" }}, {{ node = "r", length = "{slot_r_ps} ps" }}]
+{extra}
+[[node]]
+name = "tk"
+position = "0 m"
+[[node]]
+name = "p"
+position = "2 m"
+traffic = {{ pattern = "poisson", rate = "1000000/s", payload = "64 B", queue_limit = 100 }}
+[[node]]
+name = "r"
+position = "9 m"
+traffic = {{ pattern = "poisson", rate = "1000000/s", payload = "64 B", queue_limit = 100 }}
+"#
+    )
+}

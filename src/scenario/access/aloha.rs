@@ -2,7 +2,7 @@
 
 use super::{Access, R};
 use crate::scenario::check::latency;
-use crate::spec::{AccessSpec, AlohaSpec, Latency};
+use crate::spec::{AccessSpec, AlohaSpec, Latency, WorstTimes};
 use crate::units::Picos;
 
 pub const KEYS: &[&str] = &["slotted", "slot_time", "ack_timeout", "backoff", "max_attempts"];
@@ -16,12 +16,7 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
     };
     // Default slot: the longest data frame plus the worst spread in arrival,
     // so that frames sent in different slots never meet.
-    let slot_time = c.slot_time(
-        c.max_time(|n| n.transceiver.enable_time)
-            + c.longest_data_frame()
-            + c.max_time(|n| n.transceiver.disable_time)
-            + c.max_lag(),
-    )?;
+    let slot_time = c.slot_time(AlohaSpec::min_slot(WorstTimes::of(c.nodes), c.max_wire(), c.longest_data_frame()))?;
     if !slotted {
         if let Some(s) = &a.slot_time {
             return Err(v.err(s.span(), "access.slot_time", "slot_time applies only with slotted = true"));

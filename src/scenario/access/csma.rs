@@ -3,7 +3,7 @@
 use super::{Access, R};
 use crate::scenario::check::latency;
 use crate::scenario::raw::RawPersistence;
-use crate::spec::{AccessSpec, CsmaSpec, Latency, Persistence};
+use crate::spec::{AccessSpec, CsmaSpec, Latency, Persistence, WorstTimes};
 use crate::units::Picos;
 
 pub const KEYS: &[&str] = &[
@@ -53,14 +53,8 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
             }
         }
     }
-    let lag = c.max_lag();
-    // Default slot: a round trip plus the transceiver times, rounded up to
-    // whole bit times, so that a collision is certain to be seen within it.
-    let detect = detect_delay.unwrap_or(c.max_time(|n| n.transceiver.receiver_delay));
-    let raw =
-        lag + lag + c.max_time(|n| n.transceiver.enable_time) + c.max_time(|n| n.transceiver.disable_time) + detect;
-    let tb = c.frame.bit_time().0.max(1);
-    let slot_time = c.slot_time(Picos(raw.0.div_ceil(tb).max(1) * tb))?;
+    let slot_time =
+        c.slot_time(CsmaSpec::min_slot(WorstTimes::of(c.nodes), c.max_wire(), detect_delay, c.frame.bit_time()))?;
     let ack_timeout = match c.ack_timeout()? {
         Some(_) if collision_detect => {
             let span = a.ack_timeout.as_ref().map(|x| x.span()).unwrap_or(c.span.clone());

@@ -14,7 +14,7 @@ use std::ops::Range;
 
 use super::check::{latency, unknown_node, R, V};
 use super::raw::{RawAccess, S};
-use crate::spec::{AccessSpec, FrameFormat, Latency, LineSpec, NodeId, NodeSpec};
+use crate::spec::{AccessSpec, FrameFormat, Latency, LineSpec, NodeId, NodeSpec, WorstTimes};
 use crate::units::Picos;
 
 /// Values of `access.scheme`.
@@ -164,6 +164,11 @@ impl<'a> Access<'a> {
     /// The largest wire delay between any two nodes plus the largest
     /// receiver delay: how long until every node can know a frame's fate.
     pub fn max_lag(&self) -> Picos {
+        WorstTimes::of(self.nodes).lag(self.max_wire())
+    }
+
+    /// The largest wire delay between two nodes, on the loaded line.
+    pub fn max_wire(&self) -> Picos {
         let total: f64 = self.nodes.iter().map(|n| n.transceiver.load_f).sum();
         let (lo, hi) = self
             .nodes
@@ -171,13 +176,7 @@ impl<'a> Access<'a> {
             .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), n| (lo.min(n.position_m), hi.max(n.position_m)));
         let line =
             crate::line::LoadedLine::new(self.line.impedance_ohm, self.line.delay_s_per_m, self.line.length_m, total);
-        let wire = Picos(((hi - lo) * line.delay_s_per_m * 1e12).round() as u64);
-        wire + self.nodes.iter().map(|n| n.transceiver.receiver_delay).max().unwrap_or(Picos::ZERO)
-    }
-
-    /// The largest value of a per-node transceiver time.
-    pub fn max_time(&self, f: fn(&NodeSpec) -> Picos) -> Picos {
-        self.nodes.iter().map(f).max().unwrap_or(Picos::ZERO)
+        Picos(((hi - lo) * line.delay_s_per_m * 1e12).round() as u64)
     }
 
     /// `access.slot_time` if given (> 0), else `default`.
@@ -222,16 +221,7 @@ impl<'a> Access<'a> {
         if self.nodes[n].traffic.is_empty() {
             return Picos::ZERO;
         }
-        let bits = self.nodes[n]
-            .traffic
-            .iter()
-            .map(|t| match t.payload {
-                crate::spec::Payload::Fixed { bits } => bits,
-                crate::spec::Payload::Uniform { max_bits, .. } => max_bits,
-            })
-            .max()
-            .unwrap_or(0);
-        self.frame.duration(self.frame.data_line_bits(bits))
+        self.frame.duration(self.frame.data_line_bits(self.nodes[n].longest_payload_bits()))
     }
 
     /// The size of a control frame (poll, reply, token) in data bits:
