@@ -5,6 +5,7 @@ use std::path::PathBuf;
 
 use clap::Args;
 use halfwire::budget::{self, Budget, Options};
+use halfwire::report::text::line_transit_row;
 use halfwire::units::{format_seconds, format_si};
 
 use super::output::print_stdout;
@@ -97,14 +98,7 @@ fn render(b: &Budget, ver: Option<&budget::Verification>) -> String {
     let _ = writeln!(o, "halfwire budget: {}  ({} scheme)", b.scenario, b.scheme);
     let _ = writeln!(o);
     let _ = writeln!(o, "Line");
-    let _ = writeln!(
-        o,
-        "  loaded impedance {}   loaded delay {}/m   end to end {}   load ratio {:.3}",
-        format_si(l.loaded_impedance_ohm, "Ω"),
-        format_seconds(l.loaded_delay_s_per_m),
-        format_seconds(l.end_to_end_delay_s),
-        l.load_ratio
-    );
+    line_transit_row(&mut o, l);
     let _ = writeln!(
         o,
         "  reflection near {:+.3}  far {:+.3}   DC load {}   idle line {}   unit loads {:.2} of {}",

@@ -4,7 +4,7 @@ use std::fmt::Write;
 
 use console::Style;
 
-use super::Report;
+use super::{LineFigures, Report};
 use crate::stats::LatencySummary;
 use crate::units::{format_seconds, format_si};
 
@@ -47,6 +47,18 @@ fn latency_row(out: &mut String, label: &str, l: &LatencySummary) {
 }
 
 /// Render the report for a terminal. `color` turns ANSI styling on.
+/// The line's transit figures as one row; the run and the budget reports share it.
+pub fn line_transit_row(out: &mut String, l: &LineFigures) {
+    let _ = writeln!(
+        out,
+        "  loaded impedance {}   loaded delay {}/m   end to end {}   load ratio {:.3}",
+        format_si(l.loaded_impedance_ohm, "Ω"),
+        format_seconds(l.loaded_delay_s_per_m),
+        format_seconds(l.end_to_end_delay_s),
+        l.load_ratio
+    );
+}
+
 pub fn render(r: &Report, color: bool) -> String {
     let st = Styles::new(color);
     let mut o = String::new();
@@ -62,14 +74,7 @@ pub fn render(r: &Report, color: bool) -> String {
     let _ = writeln!(o);
     let _ = writeln!(o, "{}", st.head.apply_to("Line"));
     let l = &r.line;
-    let _ = writeln!(
-        o,
-        "  loaded impedance {}   loaded delay {}/m   end to end {}   load ratio {:.3}",
-        format_si(l.loaded_impedance_ohm, "Ω"),
-        format_seconds(l.loaded_delay_s_per_m),
-        format_seconds(l.end_to_end_delay_s),
-        l.load_ratio
-    );
+    line_transit_row(&mut o, l);
     let margin = if l.worst_margin_v >= 0.0 {
         st.good.apply_to(format_si(l.worst_margin_v, "V"))
     } else {
