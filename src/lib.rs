@@ -18,6 +18,7 @@ pub mod scenario;
 pub mod scheme;
 pub mod spec;
 pub mod stats;
+pub mod sweep;
 pub mod traffic;
 pub mod units;
 

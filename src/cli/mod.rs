@@ -3,8 +3,11 @@
 mod budget;
 mod check;
 mod diff;
+mod merge;
 mod output;
+mod rows;
 mod run;
+mod sweep;
 
 use std::process::ExitCode;
 
@@ -28,6 +31,10 @@ enum Command {
     Check(check::CheckArgs),
     /// Compare two JSON reports metric by metric (exit 1 on a regression beyond tolerance).
     Diff(diff::DiffArgs),
+    /// Run a scenario over a grid of key values (all cores, resumable, shardable); rows as JSON lines.
+    Sweep(sweep::SweepArgs),
+    /// Combine sweep row files (shards, replications) into one row per point.
+    Merge(merge::MergeArgs),
 }
 
 /// A failure the command reports: a message and its exit status.
@@ -77,6 +84,8 @@ pub fn main() -> ExitCode {
         Command::Budget(args) => budget::budget(args),
         Command::Check(args) => check::check(args),
         Command::Diff(args) => diff::diff(args),
+        Command::Sweep(args) => sweep::sweep(args),
+        Command::Merge(args) => merge::merge(args),
     };
     match result {
         Ok(code) => ExitCode::from(code),

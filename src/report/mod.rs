@@ -5,6 +5,7 @@
 //! everything else is a pure function of the scenario and seed.
 
 pub mod json;
+pub mod tallies;
 pub mod text;
 
 use std::collections::BTreeMap;
@@ -39,6 +40,9 @@ pub struct Report {
     #[serde(skip_serializing_if = "Option::is_none")]
     pub stalled_at_s: Option<f64>,
     pub run: RunInfo,
+    /// The exact counters behind the figures (for merging; not in the JSON report).
+    #[serde(skip)]
+    pub tallies: tallies::Tallies,
 }
 
 #[derive(Clone, Debug, Serialize)]
@@ -222,6 +226,7 @@ impl Report {
             warnings,
             stalled_at_s: None,
             run: RunInfo { events: w.events, ..RunInfo::default() },
+            tallies: tallies::Tallies::from_world(w),
         }
     }
 

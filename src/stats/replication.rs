@@ -4,7 +4,7 @@
 
 use std::collections::BTreeMap;
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 use statrs::distribution::{ContinuousCDF, StudentsT};
 
 /// Two-sided 95 % quantile of Student's t with `df` degrees of freedom, t(0.975; df).
@@ -12,7 +12,7 @@ pub fn t975(df: u64) -> f64 {
     StudentsT::new(0.0, 1.0, df as f64).expect("df ≥ 1").inverse_cdf(0.975)
 }
 
-#[derive(Clone, Copy, Debug, Serialize, PartialEq)]
+#[derive(Clone, Copy, Debug, Serialize, Deserialize, PartialEq)]
 pub struct MetricCi {
     pub mean: f64,
     pub stderr: f64,

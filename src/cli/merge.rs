@@ -1,0 +1,100 @@
+//! `halfwire merge`: combine sweep rows (from shards, replications or a
+//! resumed sweep) into one row per point.
+
+use std::path::PathBuf;
+
+use clap::Args;
+use halfwire::sweep::row;
+
+use super::output::{check_writable, print_stdout, AtomicFile};
+use super::rows::{self, Csv};
+use super::Failure;
+
+#[derive(Debug, Args)]
+pub struct MergeArgs {
+    /// Row files written by `halfwire sweep` (JSON lines).
+    #[arg(required = true)]
+    pub files: Vec<PathBuf>,
+    /// Write the merged rows to this file instead of stdout.
+    #[arg(long, value_name = "FILE")]
+    pub out: Option<PathBuf>,
+    /// Also write the merged rows as CSV.
+    #[arg(long, value_name = "FILE")]
+    pub csv: Option<PathBuf>,
+}
+
+pub fn merge(args: MergeArgs) -> Result<u8, Failure> {
+    let inputs: Vec<&std::path::Path> = args.files.iter().map(PathBuf::as_path).collect();
+    for p in args.out.iter().chain(args.csv.iter()) {
+        check_writable(p, &inputs)?;
+    }
+    let mut all = Vec::new();
+    let mut first: Option<(String, PathBuf)> = None;
+    for path in &args.files {
+        let read = rows::read(path)?;
+        if read.truncated_at.is_some() {
+            eprintln!("warning: {}: the last line is cut short (a crashed run); it is left out", path.display());
+        }
+        for r in read.rows {
+            match &first {
+                None => first = Some((r.sweep.clone(), path.clone())),
+                Some((id, p)) if *id != r.sweep => {
+                    return Err(Failure::input(format!(
+                        "{} and {} are from different sweeps (ids {id} and {}): only rows of one sweep merge",
+                        p.display(),
+                        path.display(),
+                        r.sweep
+                    )))
+                }
+                Some(_) => {}
+            }
+            all.push(r);
+        }
+    }
+    let merged = row::merge(all).map_err(Failure::input)?;
+    if let Some(r) = merged.first() {
+        let missing: Vec<u64> = {
+            let have: std::collections::BTreeSet<u64> = merged.iter().map(|r| r.point).collect();
+            (0..r.points).filter(|p| !have.contains(p)).collect()
+        };
+        let short = merged.iter().filter(|m| (m.replications.len() as u64) < r.replications_per_point).count();
+        if !missing.is_empty() || short > 0 {
+            let list: Vec<String> = missing.iter().take(10).map(u64::to_string).collect();
+            eprintln!(
+                "warning: incomplete sweep: {} of {} points have no rows{}{}",
+                missing.len(),
+                r.points,
+                if list.is_empty() {
+                    String::new()
+                } else {
+                    format!(" (points {}{})", list.join(", "), if missing.len() > 10 { ", …" } else { "" })
+                },
+                if short > 0 { format!("; {short} points lack some replications") } else { String::new() }
+            );
+        }
+        eprintln!("halfwire merge: {} points of sweep {} from {} files", merged.len(), r.sweep, args.files.len());
+    }
+    let mut text = String::new();
+    for r in &merged {
+        text.push_str(&serde_json::to_string(r).expect("a row serializes"));
+        text.push('\n');
+    }
+    match &args.out {
+        Some(p) => {
+            let mut f = AtomicFile::create(p)?;
+            f.write(text.as_bytes())?;
+            f.commit()?;
+        }
+        None => print_stdout(&text)?,
+    }
+    if let Some(p) = &args.csv {
+        if p.exists() {
+            std::fs::remove_file(p).map_err(|e| Failure::input(format!("{}: {e}", p.display())))?;
+        }
+        let mut c = Csv::append(p)?;
+        for r in &merged {
+            c.write(r).map_err(Failure::input)?;
+        }
+    }
+    Ok(0)
+}

@@ -1,0 +1,171 @@
+//! Reading and writing sweep rows: JSON lines, appended and flushed one
+//! whole line at a time, and the optional CSV beside them.
+
+use std::fs::{File, OpenOptions};
+use std::io::{BufRead, BufReader, Seek, SeekFrom, Write};
+use std::path::{Path, PathBuf};
+
+use halfwire::sweep::row::Row;
+
+use super::Failure;
+
+/// Metrics given their own CSV column, in this order.
+pub const CSV_METRICS: [&str; 14] = [
+    "throughput.payload_bit_s",
+    "throughput.carried",
+    "latency_s.all.count",
+    "latency_s.all.mean",
+    "latency_s.all.p50",
+    "latency_s.all.p99",
+    "latency_s.all.p999",
+    "latency_s.all.max",
+    "contention.events",
+    "contention.overlap_max_s",
+    "floating.windows",
+    "floating.longest_s",
+    "frames.delivered",
+    "frames.dropped",
+];
+
+/// Rows read from a file, and where a truncated last line was.
+pub struct ReadRows {
+    pub rows: Vec<Row>,
+    /// Byte length of the complete lines, when the file ends in a partial line.
+    pub truncated_at: Option<u64>,
+}
+
+/// Read a rows file. A last line without its newline is a row cut short by
+/// a crash: it is left out (and reported). Any other bad line is an error.
+pub fn read(path: &Path) -> Result<ReadRows, Failure> {
+    let file = File::open(path).map_err(|e| Failure::input(format!("{}: cannot read: {e}", path.display())))?;
+    let mut reader = BufReader::new(file);
+    let mut rows = Vec::new();
+    let mut line = String::new();
+    let mut offset = 0u64;
+    let mut number = 0;
+    loop {
+        line.clear();
+        let n =
+            reader.read_line(&mut line).map_err(|e| Failure::input(format!("{}: cannot read: {e}", path.display())))?;
+        if n == 0 {
+            return Ok(ReadRows { rows, truncated_at: None });
+        }
+        number += 1;
+        if !line.ends_with('\n') {
+            return Ok(ReadRows { rows, truncated_at: Some(offset) });
+        }
+        offset += n as u64;
+        if line.trim().is_empty() {
+            continue;
+        }
+        let row: Row = serde_json::from_str(&line)
+            .map_err(|e| Failure::input(format!("{}:{number}:{}: not a sweep row: {e}", path.display(), e.column())))?;
+        if row.schema != halfwire::sweep::SCHEMA {
+            return Err(Failure::input(format!(
+                "{}:{number}: rows of format {:?}; this halfwire reads {}",
+                path.display(),
+                row.schema,
+                halfwire::sweep::SCHEMA
+            )));
+        }
+        rows.push(row);
+    }
+}
+
+/// Where rows go: stdout or a file opened for appending.
+pub enum Sink {
+    Stdout,
+    File(File, PathBuf),
+}
+
+impl Sink {
+    pub fn append(path: &Path) -> Result<Sink, Failure> {
+        let f = OpenOptions::new()
+            .create(true)
+            .append(true)
+            .open(path)
+            .map_err(|e| Failure::input(format!("{}: cannot open for writing: {e}", path.display())))?;
+        Ok(Sink::File(f, path.to_owned()))
+    }
+
+    /// Cut a partial last line left by a crash, so the next row starts on a line of its own.
+    pub fn truncate_partial(path: &Path, at: u64) -> Result<(), Failure> {
+        let f = OpenOptions::new()
+            .write(true)
+            .open(path)
+            .map_err(|e| Failure::input(format!("{}: cannot open for writing: {e}", path.display())))?;
+        f.set_len(at).map_err(|e| Failure::input(format!("{}: cannot truncate: {e}", path.display())))?;
+        Ok(())
+    }
+
+    /// Write one row as one JSON line and flush it.
+    pub fn write(&mut self, row: &Row) -> Result<(), String> {
+        let mut line = serde_json::to_string(row).expect("a row serializes");
+        line.push('\n');
+        match self {
+            Sink::Stdout => {
+                let mut out = std::io::stdout().lock();
+                out.write_all(line.as_bytes()).and_then(|_| out.flush()).map_err(|e| format!("stdout: {e}"))
+            }
+            Sink::File(f, path) => f
+                .write_all(line.as_bytes())
+                .and_then(|_| f.flush())
+                .map_err(|e| format!("{}: cannot write: {e}", path.display())),
+        }
+    }
+}
+
+/// The CSV beside the rows: one header, then one line per row.
+pub struct Csv {
+    writer: csv::Writer<File>,
+    path: PathBuf,
+    header_done: bool,
+}
+
+impl Csv {
+    pub fn append(path: &Path) -> Result<Csv, Failure> {
+        let mut f = OpenOptions::new()
+            .create(true)
+            .append(true)
+            .open(path)
+            .map_err(|e| Failure::input(format!("{}: cannot open for writing: {e}", path.display())))?;
+        let empty = f.seek(SeekFrom::End(0)).map_err(|e| Failure::input(format!("{}: {e}", path.display())))? == 0;
+        Ok(Csv { writer: csv::Writer::from_writer(f), path: path.to_owned(), header_done: !empty })
+    }
+
+    pub fn write(&mut self, row: &Row) -> Result<(), String> {
+        let fail = |e: csv::Error| format!("{}: cannot write: {e}", self.path.display());
+        if !self.header_done {
+            let mut head = vec!["point".to_owned(), "replications".to_owned()];
+            for p in &row.params {
+                head.push(p.key.clone());
+                head.push(format!("{} [{}]", p.key, p.unit.as_deref().unwrap_or("1")));
+            }
+            head.extend(CSV_METRICS.iter().map(|m| metric_header(m)));
+            head.push("expectations_failed".into());
+            self.writer.write_record(&head).map_err(fail)?;
+            self.header_done = true;
+        }
+        let mut rec =
+            vec![row.point.to_string(), row.replications.iter().map(u64::to_string).collect::<Vec<_>>().join(" ")];
+        for p in &row.params {
+            rec.push(p.value_text());
+            rec.push(p.si.map(|x| x.to_string()).unwrap_or_default());
+        }
+        for m in CSV_METRICS {
+            rec.push(row.metrics.get(m).map(|x| x.to_string()).unwrap_or_default());
+        }
+        rec.push(row.expectations.failed.join(" "));
+        self.writer.write_record(&rec).map_err(fail)?;
+        self.writer.flush().map_err(|e| format!("{}: cannot write: {e}", self.path.display()))
+    }
+}
+
+/// `latency_s.all.p99 [s]`: the metric with its unit.
+fn metric_header(m: &str) -> String {
+    let unit = match halfwire::check::dimension_of(m) {
+        Some(d) => halfwire::sweep::axis::base_unit(d),
+        None => "1",
+    };
+    format!("{m} [{unit}]")
+}

@@ -1,0 +1,231 @@
+//! `halfwire sweep`: one scenario over a grid of key values, on all cores,
+//! with rows appended as runs finish, resumable, and shardable over a
+//! batch engine's job array.
+
+use std::collections::HashSet;
+use std::io::IsTerminal;
+use std::path::PathBuf;
+use std::sync::Arc;
+use std::time::Instant;
+
+use clap::Args;
+use halfwire::sweep::row::Row;
+use halfwire::sweep::runner::{self, Control, Observer};
+use halfwire::sweep::shard::{self, Shard};
+use halfwire::sweep::{axis, Mode, Overrides, Plan, PlanError, RunId};
+use halfwire::units;
+
+use super::output::check_writable;
+use super::rows::{self, Csv, Sink};
+use super::Failure;
+
+#[derive(Debug, Args)]
+pub struct SweepArgs {
+    /// Scenario file (TOML).
+    pub file: PathBuf,
+    /// A scenario key and its values: KEY=a,b,c or KEY=A..B step S or KEY=A..B log N
+    /// (e.g. access.turnaround=10ns..60ns step 5ns). Several make a grid.
+    #[arg(long = "vary", value_name = "KEY=SPEC", required = true)]
+    pub vary: Vec<String>,
+    /// Pair the --vary values one to one instead of forming every combination.
+    #[arg(long)]
+    pub zip: bool,
+    /// Replications per point, with independent seeds.
+    #[arg(long, value_name = "N", default_value_t = 1)]
+    pub replications: u64,
+    /// Runs at a time (default: the number of cores).
+    #[arg(long, value_name = "N")]
+    pub jobs: Option<usize>,
+    /// Append rows (JSON lines) to this file instead of printing them.
+    #[arg(long, value_name = "FILE", conflicts_with = "resume")]
+    pub out: Option<PathBuf>,
+    /// Continue a sweep whose rows are in FILE: skip the runs already there and append the rest.
+    #[arg(long, value_name = "FILE")]
+    pub resume: Option<PathBuf>,
+    /// Also append one CSV line per row to this file.
+    #[arg(long, value_name = "FILE")]
+    pub csv: Option<PathBuf>,
+    /// Run only share I of N (0 ≤ I < N). Without it, a Slurm job array's or a
+    /// Kubernetes Indexed Job's index is used when present.
+    #[arg(long, value_name = "I/N")]
+    pub shard: Option<String>,
+    /// The shard count for a Kubernetes Indexed Job (its completions), or to override Slurm's.
+    #[arg(long, value_name = "N")]
+    pub shard_count: Option<u64>,
+    /// Override the scenario's seed at every point.
+    #[arg(long)]
+    pub seed: Option<u64>,
+    /// Override the scenario's duration at every point (e.g. "50 ms").
+    #[arg(long)]
+    pub duration: Option<String>,
+}
+
+fn plan_failure(e: PlanError) -> Failure {
+    Failure::input(e.to_string())
+}
+
+/// The shard to run, and a line saying where it came from.
+fn choose_shard(args: &SweepArgs) -> Result<(Shard, Option<String>), Failure> {
+    if let Some(s) = &args.shard {
+        let shard = Shard::parse(s).map_err(Failure::input)?;
+        return Ok((shard, Some(format!("shard {}/{} (from --shard)", shard.index, shard.count))));
+    }
+    match shard::from_env(|k| std::env::var(k).ok(), args.shard_count).map_err(Failure::input)? {
+        Some(f) => Ok((f.shard, Some(format!("shard {}/{} (from the {})", f.shard.index, f.shard.count, f.source)))),
+        None if args.shard_count.is_some() => Err(Failure::input(
+            "--shard-count is given, but no shard index: give --shard I/N, or run as an indexed job",
+        )),
+        None => Ok((Shard::WHOLE, None)),
+    }
+}
+
+pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
+    let file = args.file.display().to_string();
+    let text = std::fs::read_to_string(&args.file)
+        .map_err(|e| Failure::input(format!("{file}: cannot read the scenario: {e}")))?;
+    let axes = args.vary.iter().map(|v| axis::parse_vary(v)).collect::<Result<Vec<_>, _>>().map_err(Failure::input)?;
+    let duration = match &args.duration {
+        Some(d) => Some(units::parse_time(d).map_err(|e| Failure::input(format!("--duration: {e}")))?),
+        None => None,
+    };
+    let jobs = match args.jobs {
+        Some(0) => return Err(Failure::input("--jobs must be at least 1")),
+        Some(j) => j,
+        None => std::thread::available_parallelism().map_or(1, |j| j.get()),
+    };
+    let (shard, shard_note) = choose_shard(&args)?;
+    let mode = if args.zip { Mode::Zip } else { Mode::Grid };
+    let overrides = Overrides { seed: args.seed, duration };
+    let plan = Plan::new(&file, &text, axes, mode, args.replications, overrides).map_err(plan_failure)?;
+
+    let out_path = args.resume.as_ref().or(args.out.as_ref());
+    for p in out_path.into_iter().chain(args.csv.as_ref()) {
+        check_writable(p, &[args.file.as_path()])?;
+    }
+    let mut done: HashSet<RunId> = HashSet::new();
+    if let Some(path) = &args.resume {
+        if path.exists() {
+            let read = rows::read(path)?;
+            for r in &read.rows {
+                if r.sweep != plan.id() {
+                    return Err(Failure::input(format!(
+                        "{}: holds rows of another sweep (id {}; this sweep is {}): the scenario, the --vary values, \
+                         --zip, --replications, --seed or --duration differ",
+                        path.display(),
+                        r.sweep,
+                        plan.id()
+                    )));
+                }
+                done.extend(r.runs());
+            }
+            if let Some(at) = read.truncated_at {
+                eprintln!(
+                    "{}: dropping a partial last line (a run cut short by a crash); it will run again",
+                    path.display()
+                );
+                Sink::truncate_partial(path, at)?;
+            }
+        }
+    }
+    let runs: Vec<RunId> =
+        (0..plan.runs()).filter(|&n| shard.takes(n)).map(|n| plan.run_id(n)).filter(|r| !done.contains(r)).collect();
+    if let Some(note) = &shard_note {
+        eprintln!("halfwire sweep: {note}");
+    }
+    let skipped = done.len();
+    eprintln!(
+        "halfwire sweep {}: {} points × {} replication(s); {} runs in this share{}; {jobs} at a time",
+        plan.id(),
+        plan.points(),
+        plan.replications(),
+        runs.len(),
+        if skipped > 0 { format!(" ({skipped} already done)") } else { String::new() }
+    );
+    let sink = match out_path {
+        Some(p) => Sink::append(p)?,
+        None => Sink::Stdout,
+    };
+    let csv = match &args.csv {
+        Some(p) => Some(Csv::append(p)?),
+        None => None,
+    };
+    let total = runs.len() as u64;
+    let plan = Arc::new(plan);
+    let mut observer = Writer { sink, csv, bar: progress_bar(total), plan: plan.clone() };
+    let control = Arc::new(Control::default());
+    let started = Instant::now();
+    let runtime = tokio::runtime::Builder::new_current_thread()
+        .enable_all()
+        .max_blocking_threads(jobs)
+        .build()
+        .map_err(|e| Failure { code: 1, message: format!("cannot start the worker pool: {e}") })?;
+    let outcome = runtime.block_on(async {
+        let c = control.clone();
+        let signals = tokio::spawn(async move {
+            if tokio::signal::ctrl_c().await.is_ok() {
+                eprintln!("\ninterrupted: no new runs; waiting for the running ones (Ctrl-C again abandons them)");
+                c.stop();
+                if tokio::signal::ctrl_c().await.is_ok() {
+                    eprintln!("abandoning the running runs; the rows written so far are complete");
+                    c.abandon();
+                }
+            }
+        });
+        let outcome = runner::execute(plan.clone(), runs, jobs, control.clone(), &mut observer).await;
+        signals.abort();
+        outcome
+    });
+    if let Some(b) = &observer.bar {
+        b.finish_and_clear();
+    }
+    let outcome = outcome.map_err(|e| Failure { code: 1, message: e })?;
+    let wall = started.elapsed().as_secs_f64();
+    if control.stopped() {
+        eprintln!(
+            "halfwire sweep: stopped after {} runs ({} abandoned, {} not started); continue with --resume",
+            outcome.finished, outcome.abandoned, outcome.not_started
+        );
+        return Ok(130);
+    }
+    eprintln!("halfwire sweep: {} runs in {}", outcome.finished, units::format_seconds(wall));
+    Ok(0)
+}
+
+fn progress_bar(total: u64) -> Option<indicatif::ProgressBar> {
+    if !std::io::stderr().is_terminal() {
+        return None;
+    }
+    let b = indicatif::ProgressBar::new(total);
+    b.set_style(
+        indicatif::ProgressStyle::with_template("{spinner} runs {pos}/{len} [{bar:30}] eta {eta} · {wide_msg}")
+            .expect("valid template")
+            .progress_chars("=> "),
+    );
+    Some(b)
+}
+
+struct Writer {
+    sink: Sink,
+    csv: Option<Csv>,
+    bar: Option<indicatif::ProgressBar>,
+    plan: Arc<Plan>,
+}
+
+impl Observer for Writer {
+    fn started(&mut self, run: RunId) {
+        if let Some(b) = &self.bar {
+            b.set_message(format!("point {} ({}) #{}", run.point, self.plan.describe(run.point), run.replication));
+        }
+    }
+
+    fn finished(&mut self, row: Row) -> Result<(), String> {
+        self.sink.write(&row)?;
+        if let Some(c) = &mut self.csv {
+            c.write(&row)?;
+        }
+        if let Some(b) = &self.bar {
+            b.inc(1);
+        }
+        Ok(())
+    }
+}

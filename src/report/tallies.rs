@@ -1,0 +1,195 @@
+//! The exact integer counters behind a report, in a form that adds: two
+//! runs' tallies sum to the tallies of both, and the headline metrics are
+//! recomputed from the sum. This is what lets sweep rows from different
+//! replications, shards or machines merge exactly.
+
+use std::collections::BTreeMap;
+
+use serde::{Deserialize, Serialize};
+
+use crate::engine::World;
+use crate::stats::latency::{LatencyStats, LatencyTally};
+use crate::units::Picos;
+
+/// Counters of one run or of several merged. Every field is an integer
+/// (picoseconds, bits or counts), so merging is exact and order-free.
+#[derive(Clone, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
+pub struct Tallies {
+    /// Length of the measured window(s), summed.
+    pub measured_ps: u64,
+    pub payload_bits: u64,
+    pub carried_ps: u64,
+    pub attempts: u64,
+    pub delivered: u64,
+    pub corrupted: u64,
+    pub dropped: u64,
+    pub arrived: u64,
+    pub control: u64,
+    pub control_corrupted: u64,
+    pub queued_at_end: u64,
+    pub access_attempts: u64,
+    pub contention_events: u64,
+    pub overlap_total_ps: u64,
+    pub overlap_max_ps: u64,
+    pub floating_windows: u64,
+    pub floating_total_ps: u64,
+    pub floating_longest_ps: u64,
+    pub util_payload_ps: u64,
+    pub util_overhead_ps: u64,
+    pub util_gaps_ps: u64,
+    pub util_idle_ps: u64,
+    pub util_wasted_ps: u64,
+    pub latency: LatencyTally,
+    /// Per source node that has traffic.
+    pub latency_nodes: BTreeMap<String, LatencyTally>,
+}
+
+impl Default for LatencyTally {
+    fn default() -> Self {
+        LatencyStats::new().tally()
+    }
+}
+
+impl Tallies {
+    pub(crate) fn from_world(w: &World) -> Tallies {
+        let st = &w.stats;
+        let c = &w.bus.contention;
+        let f = w.bus.floating.totals;
+        let u = w.bus.util.totals;
+        let latency_nodes = w
+            .spec
+            .nodes
+            .iter()
+            .enumerate()
+            .filter(|(_, n)| !n.traffic.is_empty())
+            .map(|(i, n)| (n.name.clone(), st.latency_node[i].tally()))
+            .collect();
+        Tallies {
+            measured_ps: w.spec.measured().0,
+            payload_bits: st.payload_bits,
+            carried_ps: st.carried_ps,
+            attempts: st.frames.attempts,
+            delivered: st.frames.delivered,
+            corrupted: st.frames.corrupted,
+            dropped: st.frames.dropped,
+            arrived: st.frames.arrived,
+            control: st.frames.control_frames,
+            control_corrupted: st.frames.control_corrupted,
+            queued_at_end: w.queues.iter().map(|q| q.len() as u64).sum(),
+            access_attempts: st.frames.access_attempts,
+            contention_events: c.events,
+            overlap_total_ps: c.overlap_total_ps,
+            overlap_max_ps: c.overlap_max_ps,
+            floating_windows: f.windows,
+            floating_total_ps: f.total_ps,
+            floating_longest_ps: f.longest_ps,
+            util_payload_ps: u.payload,
+            util_overhead_ps: u.overhead,
+            util_gaps_ps: u.gaps,
+            util_idle_ps: u.idle,
+            util_wasted_ps: u.wasted,
+            latency: st.latency_all.tally(),
+            latency_nodes,
+        }
+    }
+
+    /// Add another run's tallies to these.
+    pub fn add(&mut self, o: &Tallies) -> Result<(), String> {
+        self.measured_ps += o.measured_ps;
+        self.payload_bits += o.payload_bits;
+        self.carried_ps += o.carried_ps;
+        self.attempts += o.attempts;
+        self.delivered += o.delivered;
+        self.corrupted += o.corrupted;
+        self.dropped += o.dropped;
+        self.arrived += o.arrived;
+        self.control += o.control;
+        self.control_corrupted += o.control_corrupted;
+        self.queued_at_end += o.queued_at_end;
+        self.access_attempts += o.access_attempts;
+        self.contention_events += o.contention_events;
+        self.overlap_total_ps += o.overlap_total_ps;
+        self.overlap_max_ps = self.overlap_max_ps.max(o.overlap_max_ps);
+        self.floating_windows += o.floating_windows;
+        self.floating_total_ps += o.floating_total_ps;
+        self.floating_longest_ps = self.floating_longest_ps.max(o.floating_longest_ps);
+        self.util_payload_ps += o.util_payload_ps;
+        self.util_overhead_ps += o.util_overhead_ps;
+        self.util_gaps_ps += o.util_gaps_ps;
+        self.util_idle_ps += o.util_idle_ps;
+        self.util_wasted_ps += o.util_wasted_ps;
+        self.latency = add_latency(&self.latency, &o.latency)?;
+        for (name, t) in &o.latency_nodes {
+            let sum = match self.latency_nodes.get(name) {
+                Some(mine) => add_latency(mine, t)?,
+                None => t.clone(),
+            };
+            self.latency_nodes.insert(name.clone(), sum);
+        }
+        Ok(())
+    }
+
+    /// The headline metrics, named as in the JSON report
+    /// (`throughput.carried`, `latency_s.all.p99`, …) and computed the same
+    /// way, so one run's tallies give exactly its report's figures.
+    pub fn metrics(&self) -> Result<BTreeMap<String, f64>, String> {
+        let mut m = BTreeMap::new();
+        let measured = Picos(self.measured_ps).as_secs_f64();
+        let per_s = |x: f64| if measured > 0.0 { x / measured } else { 0.0 };
+        let whole = self.measured_ps.max(1) as f64;
+        let ps = |x: u64| x as f64 * 1e-12;
+        let mut put = |k: &str, v: f64| {
+            m.insert(k.to_owned(), v);
+        };
+        put("simulated_s", measured);
+        put("throughput.payload_bit_s", per_s(self.payload_bits as f64));
+        put("throughput.carried", per_s(self.carried_ps as f64 * 1e-12));
+        put("throughput.access_attempts", self.access_attempts as f64);
+        put("frames.attempts", self.attempts as f64);
+        put("frames.delivered", self.delivered as f64);
+        put("frames.corrupted", self.corrupted as f64);
+        put("frames.dropped", self.dropped as f64);
+        put("frames.arrived", self.arrived as f64);
+        put("frames.control", self.control as f64);
+        put("frames.control_corrupted", self.control_corrupted as f64);
+        put("frames.queued_at_end", self.queued_at_end as f64);
+        put("contention.events", self.contention_events as f64);
+        put("contention.overlap_total_s", ps(self.overlap_total_ps));
+        put("contention.overlap_max_s", ps(self.overlap_max_ps));
+        put("floating.windows", self.floating_windows as f64);
+        put("floating.total_s", ps(self.floating_total_ps));
+        put("floating.longest_s", ps(self.floating_longest_ps));
+        put("utilization.payload", self.util_payload_ps as f64 / whole);
+        put("utilization.overhead", self.util_overhead_ps as f64 / whole);
+        put("utilization.gaps", self.util_gaps_ps as f64 / whole);
+        put("utilization.idle", self.util_idle_ps as f64 / whole);
+        put("utilization.wasted", self.util_wasted_ps as f64 / whole);
+        put_latency(&mut m, "latency_s.all", &self.latency)?;
+        for (name, t) in &self.latency_nodes {
+            put_latency(&mut m, &format!("latency_s.nodes.{name}"), t)?;
+        }
+        Ok(m)
+    }
+}
+
+fn add_latency(a: &LatencyTally, b: &LatencyTally) -> Result<LatencyTally, String> {
+    let mut sum = LatencyStats::from_tally(a)?;
+    sum.add(&LatencyStats::from_tally(b)?);
+    Ok(sum.tally())
+}
+
+fn put_latency(m: &mut BTreeMap<String, f64>, prefix: &str, t: &LatencyTally) -> Result<(), String> {
+    let s = LatencyStats::from_tally(t)?.summary();
+    for (k, v) in [
+        ("count", s.count as f64),
+        ("mean", s.mean),
+        ("p50", s.p50),
+        ("p90", s.p90),
+        ("p99", s.p99),
+        ("p999", s.p999),
+        ("max", s.max),
+    ] {
+        m.insert(format!("{prefix}.{k}"), v);
+    }
+    Ok(())
+}
