@@ -247,3 +247,33 @@ fn bad_input_is_an_error_with_exit_status_2() {
     std::fs::write(&b, "not json\n").unwrap();
     fails(&["merge", b.to_str().unwrap()], "b.jsonl:1:");
 }
+
+#[test]
+fn ctrl_c_stops_launching_and_leaves_complete_rows() {
+    let dir = tempfile::tempdir().unwrap();
+    let rows_file = dir.path().join("rows.jsonl");
+    let args = ["sweep", DEMO, "--vary=nodes.count=4,5,6,7,8", "--duration", "4 s", "--jobs", "1"];
+    let mut child = Command::new(env!("CARGO_BIN_EXE_halfwire"))
+        .args(args)
+        .args(["--out", rows_file.to_str().unwrap()])
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    let deadline = Instant::now() + Duration::from_secs(60);
+    while std::fs::read_to_string(&rows_file).map(|t| t.lines().count()).unwrap_or(0) < 1 && Instant::now() < deadline {
+        std::thread::sleep(Duration::from_millis(5));
+    }
+    // SIGINT, as Ctrl-C at a terminal sends.
+    let status = Command::new("kill").args(["-INT", &child.id().to_string()]).status().unwrap();
+    assert!(status.success());
+    let out = child.wait_with_output().unwrap();
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(130), "{err}");
+    assert!(err.contains("interrupted: no new runs"), "{err}");
+    assert!(err.contains("continue with --resume"), "{err}");
+    let kept = rows(&rows_file);
+    assert!((1..5).contains(&kept.len()), "{} rows", kept.len());
+    let err = ok(&halfwire(&[&args[..], &["--resume", rows_file.to_str().unwrap()]].concat()));
+    assert!(err.contains(&format!("({} already done)", kept.len())), "{err}");
+    assert_eq!(rows(&rows_file).len(), 5);
+}
