@@ -253,7 +253,7 @@ fn ctrl_c_stops_launching_and_leaves_complete_rows() {
     let dir = tempfile::tempdir().unwrap();
     let rows_file = dir.path().join("rows.jsonl");
     let args = ["sweep", DEMO, "--vary=nodes.count=4,5,6,7,8", "--duration", "4 s", "--jobs", "1"];
-    let mut child = Command::new(env!("CARGO_BIN_EXE_halfwire"))
+    let child = Command::new(env!("CARGO_BIN_EXE_halfwire"))
         .args(args)
         .args(["--out", rows_file.to_str().unwrap()])
         .stderr(Stdio::piped())
