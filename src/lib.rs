@@ -13,6 +13,7 @@ pub mod bus;
 pub mod check;
 pub mod engine;
 pub mod line;
+pub mod plot;
 pub mod report;
 pub mod scenario;
 pub mod scheme;
@@ -21,6 +22,7 @@ pub mod stats;
 pub mod sweep;
 pub mod traffic;
 pub mod units;
+pub mod wave;
 
 /// Run a validated scenario to the end (convenience for tests and benches).
 pub fn simulate(spec: &spec::Spec) -> report::Report {

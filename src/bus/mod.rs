@@ -263,7 +263,7 @@ impl Bus {
         };
         self.floating.feed_occupancy(k.node, k.a, k.b, |i| line.delay_row(i), next);
         self.util.add(if k.dominant { Piece::Dominant } else { Piece::Occupancy }, k.a, k.b);
-        trace.push(BusEvent { t: k.a, node: k.node, kind: BusEventKind::DriverEnable });
+        trace.push(BusEvent { t: k.a, node: k.node, kind: BusEventKind::DriverEnable { dominant: k.dominant } });
         trace.push(BusEvent { t: k.release, node: k.node, kind: BusEventKind::DriverRelease });
         trace.push(BusEvent { t: k.b, node: k.node, kind: BusEventKind::DriverOff });
     }

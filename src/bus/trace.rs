@@ -8,8 +8,11 @@ use crate::spec::NodeId;
 
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub enum BusEventKind {
-    /// Driver enable asserted.
-    DriverEnable,
+    /// Driver enable asserted. `dominant`: a dominant-state drive of
+    /// wired-AND signalling (bitwise arbitration), which drives the line low.
+    DriverEnable {
+        dominant: bool,
+    },
     /// Driver enable released (end of the last bit).
     DriverRelease,
     /// Driver output high-impedance (`disable_time` after release).

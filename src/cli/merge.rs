@@ -21,11 +21,13 @@ pub struct MergeArgs {
     /// Also write the merged rows as CSV.
     #[arg(long, value_name = "FILE")]
     pub csv: Option<PathBuf>,
+    #[command(flatten)]
+    pub plot: super::sweep::PlotArgs,
 }
 
 pub fn merge(args: MergeArgs) -> Result<u8, Failure> {
     let inputs: Vec<&std::path::Path> = args.files.iter().map(PathBuf::as_path).collect();
-    for p in args.out.iter().chain(args.csv.iter()) {
+    for p in args.out.iter().chain(args.csv.iter()).chain(args.plot.plot.iter()) {
         check_writable(p, &inputs)?;
     }
     let mut all = Vec::new();
@@ -87,6 +89,7 @@ pub fn merge(args: MergeArgs) -> Result<u8, Failure> {
         }
         None => print_stdout(&text)?,
     }
+    args.plot.draw(&merged)?;
     if let Some(p) = &args.csv {
         if p.exists() {
             std::fs::remove_file(p).map_err(|e| Failure::input(format!("{}: {e}", p.display())))?;

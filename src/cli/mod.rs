@@ -8,6 +8,7 @@ mod output;
 mod rows;
 mod run;
 mod sweep;
+mod waves;
 
 use std::process::ExitCode;
 

@@ -47,6 +47,11 @@ impl AtomicFile {
         self.tmp.write_all(data).map_err(|e| fail(&self.path, e))
     }
 
+    /// A second handle on the temporary file, for writers that want to own one.
+    pub fn handle(&self) -> Result<std::fs::File, Failure> {
+        self.tmp.reopen().map_err(|e| fail(&self.path, e))
+    }
+
     pub fn commit(mut self) -> Result<(), Failure> {
         self.tmp.flush().map_err(|e| fail(&self.path, e))?;
         // Temporary files are created private (0600); an output file gets the

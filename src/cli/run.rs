@@ -12,6 +12,7 @@ use halfwire::spec::Spec;
 use halfwire::units::{self, Picos};
 
 use super::output::{check_writable, print_stdout, AtomicFile};
+use super::waves::Waves;
 use super::Failure;
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
@@ -36,12 +37,21 @@ pub struct RunArgs {
     /// Write a JSON-lines log of bus events to this file.
     #[arg(long, value_name = "FILE")]
     pub events: Option<PathBuf>,
-    /// Simulated-time window for --events, e.g. "0us..50us" (default: the whole run).
+    /// Write the waveform as an IEEE 1364 VCD file (timescale 1 ps), limited to --window.
+    #[arg(long, value_name = "FILE")]
+    pub vcd: Option<PathBuf>,
+    /// Draw a timing diagram of --window as an SVG file.
+    #[arg(long, value_name = "FILE")]
+    pub svg: Option<PathBuf>,
+    /// Plot every node's latency percentiles (p50 to p99.99) as an SVG file.
+    #[arg(long, value_name = "FILE")]
+    pub plot_latency: Option<PathBuf>,
+    /// Simulated-time window for --events, --vcd and --svg, e.g. "0us..50us" (default: the whole run).
     #[arg(long, value_name = "A..B")]
     pub window: Option<String>,
     /// Run N replications with independent seeds derived from the scenario's,
     /// and add the mean, standard error and 95 % confidence interval of every metric.
-    #[arg(long, value_name = "N", conflicts_with = "events")]
+    #[arg(long, value_name = "N", conflicts_with_all = ["events", "vcd", "svg", "plot_latency"])]
     pub replications: Option<u64>,
 }
 
@@ -86,30 +96,42 @@ pub fn run(args: RunArgs) -> Result<u8, Failure> {
     if let Some(n) = args.replications {
         return replicated(&spec, n, args.format);
     }
-    if args.window.is_some() && args.events.is_none() {
-        return Err(Failure::input("--window needs an output that uses it: give --events FILE"));
+    let wants_waves = args.vcd.is_some() || args.svg.is_some();
+    if args.window.is_some() && args.events.is_none() && !wants_waves {
+        return Err(Failure::input("--window needs an output that uses it: give --events, --vcd or --svg FILE"));
     }
-    let window = match &args.events {
-        Some(path) => {
-            check_writable(path, &[args.file.as_path()])?;
-            Some(match &args.window {
-                Some(w) => parse_window(w, spec.duration)?,
-                None => (Picos::ZERO, spec.duration),
-            })
-        }
+    for path in [&args.events, &args.vcd, &args.svg, &args.plot_latency].into_iter().flatten() {
+        check_writable(path, &[args.file.as_path()])?;
+    }
+    let window = match &args.window {
+        Some(w) => parse_window(w, spec.duration)?,
+        None => (Picos::ZERO, spec.duration),
+    };
+    let events_window = args.events.as_ref().map(|_| window);
+    let mut log = match &args.events {
+        Some(path) => Some(EventLog::new(AtomicFile::create(path)?, window)),
         None => None,
     };
-    let mut log = match &args.events {
-        Some(path) => Some(EventLog::new(AtomicFile::create(path)?)),
-        None => None,
+    let mut waves = if wants_waves {
+        Some(Waves::new(&spec, (window.0 .0, window.1 .0), args.vcd.as_ref(), args.svg.as_ref())?)
+    } else {
+        None
     };
     let started = Instant::now();
-    let mut sim = Simulation::with_trace(&spec, window);
+    let mut sim = super::waves::simulation(&spec, events_window, wants_waves);
     let mut write_error = None;
-    drive(&mut sim, &spec, |sim| {
+    // Waveforms keep a slice's events in memory: keep slices short.
+    let step = if wants_waves { Some(Picos::from_us(20)) } else { None };
+    drive(&mut sim, &spec, step, |sim| {
+        let settled = sim.settled_before();
+        let events = sim.drain_trace();
+        if let Some(w) = &mut waves {
+            if let Err(e) = w.take(&events, settled.0) {
+                write_error.get_or_insert(e);
+            }
+        }
         if let Some(log) = &mut log {
-            let settled = sim.settled_before();
-            if let Err(e) = log.take(&spec, sim.drain_trace(), Some(settled)) {
+            if let Err(e) = log.take(&spec, events, Some(settled)) {
                 write_error.get_or_insert(e);
             }
         }
@@ -125,9 +147,15 @@ pub fn run(args: RunArgs) -> Result<u8, Failure> {
     }
     let (mut report, tail) = sim.finish_with_trace();
     report.set_wall_time(started.elapsed().as_secs_f64());
+    if let Some(w) = waves {
+        w.finish(&spec, &tail)?;
+    }
     if let Some(mut log) = log {
         log.take(&spec, tail, None)?;
         log.file.commit()?;
+    }
+    if let Some(path) = &args.plot_latency {
+        super::waves::plot_latency(&report, path)?;
     }
     let out = match args.format {
         Format::Json => json::render(&report),
@@ -141,17 +169,19 @@ pub fn run(args: RunArgs) -> Result<u8, Failure> {
 struct EventLog {
     file: AtomicFile,
     pending: Vec<BusEvent>,
+    window: (Picos, Picos),
 }
 
 impl EventLog {
-    fn new(file: AtomicFile) -> Self {
-        EventLog { file, pending: Vec::new() }
+    fn new(file: AtomicFile, window: (Picos, Picos)) -> Self {
+        EventLog { file, pending: Vec::new(), window }
     }
 
     /// Add events; write out every pending event before `settled` (all of
     /// them when `None`).
     fn take(&mut self, spec: &Spec, events: Vec<BusEvent>, settled: Option<Picos>) -> Result<(), Failure> {
-        self.pending.extend(events);
+        let (a, b) = (self.window.0 .0, self.window.1 .0);
+        self.pending.extend(events.into_iter().filter(|e| e.t >= a && e.t <= b));
         // Stable sort: events at one instant keep the order they were recorded in.
         self.pending.sort_by_key(|e| e.t);
         let cut = match settled {
@@ -167,10 +197,13 @@ impl EventLog {
 
 /// Run to the end in slices of simulated time, with a progress bar on a
 /// terminal once the run has taken more than a second.
-fn drive(sim: &mut Simulation, spec: &Spec, mut after_slice: impl FnMut(&mut Simulation)) {
+fn drive(sim: &mut Simulation, spec: &Spec, max_step: Option<Picos>, mut after_slice: impl FnMut(&mut Simulation)) {
     const SLICES: u64 = 200;
     let end = spec.duration;
-    let step = Picos((end.0 / SLICES).max(1));
+    let mut step = Picos((end.0 / SLICES).max(1));
+    if let Some(m) = max_step {
+        step = step.min(m).max(Picos(1));
+    }
     let started = Instant::now();
     let tty = std::io::stderr().is_terminal();
     let mut bar: Option<indicatif::ProgressBar> = None;
@@ -180,7 +213,7 @@ fn drive(sim: &mut Simulation, spec: &Spec, mut after_slice: impl FnMut(&mut Sim
         sim.run_until(t);
         after_slice(sim);
         if tty && bar.is_none() && started.elapsed() > Duration::from_secs(1) {
-            let b = indicatif::ProgressBar::new(SLICES);
+            let b = indicatif::ProgressBar::new(1000);
             b.set_style(
                 indicatif::ProgressStyle::with_template("{spinner} simulated {msg} [{bar:40}] {percent}% eta {eta}")
                     .expect("valid template")
@@ -189,7 +222,7 @@ fn drive(sim: &mut Simulation, spec: &Spec, mut after_slice: impl FnMut(&mut Sim
             bar = Some(b);
         }
         if let Some(b) = &bar {
-            b.set_position(t.0 / step.0);
+            b.set_position((t.0 as u128 * 1000 / end.0.max(1) as u128) as u64);
             b.set_message(format!("{t} of {end}"));
         }
     }
@@ -206,7 +239,7 @@ fn render_events(spec: &Spec, events: &[BusEvent]) -> String {
         let mut v = json!({ "t_ps": e.t, "t_s": e.t as f64 * 1e-12, "node": name(e.node) });
         let m = v.as_object_mut().expect("object");
         let kind = match e.kind {
-            BusEventKind::DriverEnable => "driver_enable",
+            BusEventKind::DriverEnable { .. } => "driver_enable",
             BusEventKind::DriverRelease => "driver_release",
             BusEventKind::DriverOff => "driver_off",
             BusEventKind::FrameStart { frame, to } => {

@@ -58,6 +58,33 @@ pub struct SweepArgs {
     /// Override the scenario's duration at every point (e.g. "50 ms").
     #[arg(long)]
     pub duration: Option<String>,
+    #[command(flatten)]
+    pub plot: PlotArgs,
+}
+
+/// `--plot FILE --y METRIC [--series KEY]`, shared by `sweep` and `merge`.
+#[derive(Debug, Args)]
+pub struct PlotArgs {
+    /// Draw a line chart of --y against the first varied key as an SVG file.
+    #[arg(long, value_name = "FILE.svg", requires = "y")]
+    pub plot: Option<PathBuf>,
+    /// The metric to plot, e.g. latency_s.all.p99 or throughput.carried.
+    #[arg(long, value_name = "METRIC", requires = "plot")]
+    pub y: Option<String>,
+    /// The varied key whose values make the series (default: the second --vary).
+    #[arg(long, value_name = "KEY", requires = "plot")]
+    pub series: Option<String>,
+}
+
+impl PlotArgs {
+    /// Draw the chart of merged rows.
+    pub fn draw(&self, rows: &[Row]) -> Result<(), Failure> {
+        let (Some(path), Some(metric)) = (&self.plot, &self.y) else { return Ok(()) };
+        let chart = halfwire::plot::sweep::chart(rows, metric, self.series.as_deref()).map_err(Failure::input)?;
+        super::waves::write_text(path, &chart.render())?;
+        eprintln!("halfwire: plot of {metric} written to {}", path.display());
+        Ok(())
+    }
 }
 
 fn plan_failure(e: PlanError) -> Failure {
@@ -97,9 +124,23 @@ pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
     let mode = if args.zip { Mode::Zip } else { Mode::Grid };
     let overrides = Overrides { seed: args.seed, duration };
     let plan = Plan::new(&file, &text, axes, mode, args.replications, overrides).map_err(plan_failure)?;
+    if let Some(metric) = &args.plot.y {
+        let names = halfwire::report::tallies::Tallies::metric_names(&plan.spec(0).map_err(plan_failure)?);
+        halfwire::plot::sweep::check_metric(metric, names.iter().map(String::as_str)).map_err(Failure::input)?;
+        let keys: Vec<&str> = plan.axes().iter().map(|a| a.key.as_str()).collect();
+        if let Some(s) = &args.plot.series {
+            if !keys[1..].contains(&s.as_str()) {
+                return Err(Failure::input(format!(
+                    "--series {s}: give one of the varied keys after the first (the x axis is {}; varied: {})",
+                    keys[0],
+                    keys.join(", ")
+                )));
+            }
+        }
+    }
 
     let out_path = args.resume.as_ref().or(args.out.as_ref());
-    for p in out_path.into_iter().chain(args.csv.as_ref()) {
+    for p in out_path.into_iter().chain(args.csv.as_ref()).chain(args.plot.plot.as_ref()) {
         check_writable(p, &[args.file.as_path()])?;
     }
     let mut done: HashSet<RunId> = HashSet::new();
@@ -151,7 +192,9 @@ pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
     };
     let total = runs.len() as u64;
     let plan = Arc::new(plan);
-    let mut observer = Writer { sink, csv, bar: progress_bar(total), plan: plan.clone() };
+    // A plot of a sweep printed to stdout needs the rows kept; with a file they are read back.
+    let keep = args.plot.plot.is_some() && out_path.is_none();
+    let mut observer = Writer { sink, csv, bar: progress_bar(total), plan: plan.clone(), kept: keep.then(Vec::new) };
     let control = Arc::new(Control::default());
     let started = Instant::now();
     let runtime = tokio::runtime::Builder::new_current_thread()
@@ -188,6 +231,14 @@ pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
         return Ok(130);
     }
     eprintln!("halfwire sweep: {} runs in {}", outcome.finished, units::format_seconds(wall));
+    if args.plot.plot.is_some() {
+        let rows = match (out_path, observer.kept.take()) {
+            (Some(p), _) => rows::read(p)?.rows,
+            (None, kept) => kept.unwrap_or_default(),
+        };
+        let merged = halfwire::sweep::row::merge(rows).map_err(Failure::input)?;
+        args.plot.draw(&merged)?;
+    }
     Ok(0)
 }
 
@@ -209,6 +260,7 @@ struct Writer {
     csv: Option<Csv>,
     bar: Option<indicatif::ProgressBar>,
     plan: Arc<Plan>,
+    kept: Option<Vec<Row>>,
 }
 
 impl Observer for Writer {
@@ -225,6 +277,9 @@ impl Observer for Writer {
         }
         if let Some(b) = &self.bar {
             b.inc(1);
+        }
+        if let Some(k) = &mut self.kept {
+            k.push(row);
         }
         Ok(())
     }

@@ -93,6 +93,15 @@ impl Tallies {
         }
     }
 
+    /// The names [`Tallies::metrics`] gives for a run of `spec`.
+    pub fn metric_names(spec: &crate::spec::Spec) -> Vec<String> {
+        let mut t = Tallies::default();
+        for n in spec.nodes.iter().filter(|n| !n.traffic.is_empty()) {
+            t.latency_nodes.insert(n.name.clone(), LatencyTally::default());
+        }
+        t.metrics().map(|m| m.into_keys().collect()).unwrap_or_default()
+    }
+
     /// Add another run's tallies to these.
     pub fn add(&mut self, o: &Tallies) -> Result<(), String> {
         self.measured_ps += o.measured_ps;

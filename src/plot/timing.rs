@@ -1,0 +1,352 @@
+//! The bus timing diagram: one lane per node with its driver occupancies,
+//! frames, data symbols (when the zoom allows), enable and release edges,
+//! and the intervals where its receiver input floats or is contended; a bus
+//! lane above with the line's occupancy, the contention overlaps and the
+//! gaps between one driver turning off and the next one enabling.
+
+use std::fmt::Write;
+
+use super::axis::{nice_step, trim};
+use super::{esc, text_width, Svg};
+use crate::units;
+use crate::wave::timing::Recording;
+use crate::wave::Level;
+
+const W: f64 = 1400.0;
+const LEFT: f64 = 160.0;
+const RIGHT: f64 = 30.0;
+const BUS_TOP: f64 = 58.0;
+const BUS_H: f64 = 44.0;
+
+const ENABLE_FILL: &str = "#d6e4f5";
+const ENABLE_STROKE: &str = "#3f6fae";
+const DATA_FILL: &str = "#2b65ad";
+const CONTROL_FILL: &str = "#5aa79a";
+const CONTENTION: &str = "#d7191c";
+const ENABLE_EDGE: &str = "#1a9850";
+const RELEASE_EDGE: &str = "#e66101";
+
+/// Lane height for `n` nodes: roomy for a few, compact for many.
+fn lane_height(n: usize) -> f64 {
+    match n {
+        0..=6 => 44.0,
+        7..=16 => 28.0,
+        _ => 20.0,
+    }
+}
+
+/// A time-axis unit for a window span: (seconds per unit, symbol).
+fn time_unit(span_s: f64, end_s: f64) -> (f64, &'static str) {
+    const UNITS: [(f64, &str); 5] = [(1e-12, "ps"), (1e-9, "ns"), (1e-6, "µs"), (1e-3, "ms"), (1.0, "s")];
+    // The unit that suits the span, moved up while labels would need more than five digits.
+    let mut i = UNITS.iter().position(|(scale, _)| span_s < scale * 2000.0).unwrap_or(4);
+    while i < 4 && end_s / UNITS[i].0 >= 99_999.5 {
+        i += 1;
+    }
+    UNITS[i]
+}
+
+pub fn render(rec: &Recording, names: &[String], scenario: &str, bit_rate: f64) -> String {
+    let (a, b) = rec.window;
+    let span = (b - a).max(1) as f64;
+    let pw = W - LEFT - RIGHT;
+    let px = |t: u64| LEFT + (t.saturating_sub(a)).min(b - a) as f64 / span * pw;
+    let n = names.len();
+    let lh = lane_height(n);
+    let lanes_top = BUS_TOP + BUS_H + 14.0;
+    let axis_y = lanes_top + lh * n as f64 + 6.0;
+    let legend_y = axis_y + 62.0;
+    let height = legend_y + 62.0;
+    let mut svg = Svg::new(W, height);
+    let fmt = |ps: u64| units::format_seconds(ps as f64 * 1e-12);
+    let (unit_s, unit_name) = time_unit(span * 1e-12, b as f64 * 1e-12);
+    let at = |ps: u64| format!("{} {unit_name}", trim(ps as f64 * 1e-12 / unit_s));
+    svg.text(LEFT, 24.0, &format!("Bus timing: {scenario}"), r#"font-size="16" font-weight="bold""#);
+    svg.text(
+        LEFT,
+        42.0,
+        &format!(
+            "window {} to {} · {} nodes · symbols are a stand-in pattern; every edge time is exact",
+            at(a),
+            at(b),
+            n
+        ),
+        r##"fill="#555""##,
+    );
+    // Time grid.
+    let step_ps = (nice_step(span * 1e-12, 10) * 1e12).max(1.0);
+    let first = (a as f64 / step_ps).ceil() as u64;
+    let mut k = first;
+    while (k as f64 * step_ps) <= b as f64 + 0.5 {
+        let t = (k as f64 * step_ps).round() as u64;
+        let x = px(t);
+        svg.line(x, BUS_TOP - 4.0, x, axis_y, r##"stroke="#ececec""##);
+        svg.line(x, axis_y, x, axis_y + 5.0, r##"stroke="#444""##);
+        let label = at(t);
+        svg.text(x, axis_y + 18.0, &label, r#"text-anchor="middle" class="tick""#);
+        k += 1;
+    }
+    svg.line(LEFT, axis_y, LEFT + pw, axis_y, r##"stroke="#444""##);
+    svg.text(LEFT + pw / 2.0, axis_y + 36.0, "simulated time", r#"text-anchor="middle""#);
+
+    bus_lane(&mut svg, rec, &px, &fmt);
+    for (i, name) in names.iter().enumerate() {
+        let y0 = lanes_top + lh * i as f64;
+        node_lane(&mut svg, rec, i, name, y0, lh, bit_rate, &px, span, pw);
+    }
+    legend(&mut svg, legend_y);
+    let defs = concat!(
+        r##"<pattern id="float" width="6" height="6" patternUnits="userSpaceOnUse" patternTransform="rotate(45)">"##,
+        r##"<rect width="6" height="6" fill="#fff6d5"/><line x1="0" y1="0" x2="0" y2="6" stroke="#b08900" stroke-width="1.6"/></pattern>"##,
+        r##"<pattern id="tail" width="5" height="5" patternUnits="userSpaceOnUse" patternTransform="rotate(-45)">"##,
+        r##"<rect width="5" height="5" fill="#eef3fa"/><line x1="0" y1="0" x2="0" y2="5" stroke="#a9bfdc" stroke-width="1"/></pattern>"##
+    );
+    svg.finish(&format!("Bus timing: {scenario}"), defs)
+}
+
+fn bus_lane(svg: &mut Svg, rec: &Recording, px: &dyn Fn(u64) -> f64, fmt: &dyn Fn(u64) -> String) {
+    let (y0, h) = (BUS_TOP, BUS_H);
+    svg.text(LEFT - 10.0, y0 + h / 2.0 + 4.0, "line", r#"text-anchor="end" font-weight="bold""#);
+    svg.rect(LEFT, y0, W - LEFT - RIGHT, h, r##"fill="#fafafa" stroke="#ccc""##);
+    // Occupancy count over time, each driver at its own position.
+    let mut steps: Vec<(u64, i32)> = Vec::new();
+    for o in &rec.occupancies {
+        steps.push((o.a, 1));
+        steps.push((o.b, -1));
+    }
+    steps.sort_by_key(|&(t, d)| (t, d));
+    let mut count = 0;
+    for i in 0..steps.len() {
+        count += steps[i].1;
+        let (t0, t1) = (steps[i].0, steps.get(i + 1).map_or(steps[i].0, |s| s.0));
+        if t1 > t0 && count > 0 {
+            let fill = if count > 1 { CONTENTION } else { ENABLE_STROKE };
+            svg.rect(
+                px(t0),
+                y0 + 6.0,
+                px(t1) - px(t0),
+                h - 26.0,
+                &format!(r#"fill="{fill}" opacity="0.55" class="occupied""#),
+            );
+        }
+    }
+    for c in &rec.contentions {
+        let (x0, x1) = (px(c.t), px(c.t + c.overlap));
+        let w = (x1 - x0).max(2.0);
+        svg.raw(&format!(
+            r#"<rect class="contention" data-t-ps="{}" x="{x0:.2}" y="{y0:.2}" width="{w:.2}" height="{h:.2}" fill="{CONTENTION}" opacity="0.8"/>"#,
+            c.t
+        ));
+        let label = format!("overlap {}", fmt(c.overlap));
+        if text_width(&label, 10.0) + 4.0 < w {
+            svg.text(x0 + w / 2.0, y0 + 10.0, &label, r#"text-anchor="middle" font-size="10" fill="white""#);
+        }
+    }
+    // Gaps between the latest driver turning off and the next enable.
+    let mut occ: Vec<_> = rec.occupancies.iter().collect();
+    occ.sort_by_key(|o| (o.a, o.node));
+    let mut latest: Option<(u64, usize)> = None;
+    let mut last_label_end = f64::NEG_INFINITY;
+    for o in occ {
+        if let Some((off, node)) = latest {
+            if o.a > off && node != o.node {
+                let (x0, x1) = (px(off), px(o.a));
+                let ym = y0 + h - 7.0;
+                svg.raw(&format!(
+                    r##"<path class="gap" data-gap-ps="{}" d="M{x0:.2},{:.2} V{ym:.2} H{x1:.2} V{:.2}" fill="none" stroke="#333" stroke-width="1"/>"##,
+                    o.a - off,
+                    ym - 4.0,
+                    ym - 4.0
+                ));
+                let label = fmt(o.a - off);
+                let lw = text_width(&label, 10.0);
+                let centre = (x0 + x1) / 2.0;
+                if lw + 2.0 < x1 - x0 + 40.0 && centre - lw / 2.0 > last_label_end + 4.0 {
+                    svg.text(
+                        centre,
+                        ym - 6.0,
+                        &label,
+                        r##"text-anchor="middle" font-size="10" fill="#222" class="gap-label""##,
+                    );
+                    last_label_end = centre + lw / 2.0;
+                }
+            }
+        }
+        if latest.map_or(true, |(off, _)| o.b >= off) {
+            latest = Some((o.b, o.node));
+        }
+    }
+}
+
+#[allow(clippy::too_many_arguments)]
+fn node_lane(
+    svg: &mut Svg,
+    rec: &Recording,
+    i: usize,
+    name: &str,
+    y0: f64,
+    lh: f64,
+    bit_rate: f64,
+    px: &dyn Fn(u64) -> f64,
+    span: f64,
+    pw: f64,
+) {
+    let font = if lh < 24.0 { 11.0 } else { 12.0 };
+    let stripe = if i % 2 == 0 { "#ffffff" } else { "#f4f6f8" };
+    svg.raw(&format!(r#"<g class="lane" data-node="{}">"#, esc(name)));
+    svg.rect(LEFT, y0, W - LEFT - RIGHT, lh, &format!(r#"fill="{stripe}""#));
+    svg.text(LEFT - 10.0, y0 + lh / 2.0 + font / 3.0, name, &format!(r#"text-anchor="end" font-size="{font}""#));
+    let pad = (lh * 0.12).max(2.0);
+    let (top, bot) = (y0 + pad, y0 + lh - pad);
+    // Receiver input undefined: floating (hatched) or contended (red).
+    for (t0, t1, l) in rec.spans(&rec.rx[i]) {
+        let (x0, x1) = (px(t0), px(t1));
+        match l {
+            Level::Floating => svg.rect(x0, y0, (x1 - x0).max(0.6), lh, r#"fill="url(#float)" class="floating""#),
+            Level::Contended => svg.rect(
+                x0,
+                y0,
+                (x1 - x0).max(1.5),
+                lh,
+                &format!(r#"fill="{CONTENTION}" opacity="0.35" class="rx-contended""#),
+            ),
+            _ => {}
+        }
+    }
+    let symbol_px = pw / (span * 1e-12 * bit_rate);
+    for o in rec.occupancies.iter().filter(|o| o.node == i) {
+        let (xa, xr, xb) = (px(o.a), px(o.release), px(o.b));
+        svg.rect(
+            xa,
+            top,
+            (xr - xa).max(0.8),
+            bot - top,
+            &format!(r#"fill="{ENABLE_FILL}" stroke="{ENABLE_STROKE}" stroke-width="0.8" class="enable-span""#),
+        );
+        svg.rect(
+            xr,
+            top,
+            xb - xr,
+            bot - top,
+            r##"fill="url(#tail)" stroke="#a9bfdc" stroke-width="0.6" stroke-dasharray="2,2" class="disable-tail""##,
+        );
+        for f in &o.frames {
+            let (xs, xe) = (px(f.s), px(f.e));
+            let fill = if matches!(f.kind, "data") { DATA_FILL } else { CONTROL_FILL };
+            let stroke =
+                if f.corrupted { format!(r#" stroke="{CONTENTION}" stroke-width="2""#) } else { String::new() };
+            svg.raw(&format!(
+                r#"<rect class="frame" data-kind="{}" x="{xs:.2}" y="{:.2}" width="{:.2}" height="{:.2}" fill="{fill}"{stroke}/>"#,
+                f.kind,
+                top + 1.5,
+                (xe - xs).max(0.8),
+                bot - top - 3.0
+            ));
+            if symbol_px < 3.0 && xe - xs > text_width(f.kind, 10.0) + 6.0 && lh >= 20.0 {
+                svg.text(
+                    (xs + xe) / 2.0,
+                    y0 + lh / 2.0 + 3.5,
+                    f.kind,
+                    r#"text-anchor="middle" font-size="10" fill="white""#,
+                );
+            }
+        }
+        // Data symbols, where each is at least 3 px wide.
+        if symbol_px >= 3.0 {
+            let (hi, lo) = (top + 3.0, bot - 3.0);
+            let mut pts: Vec<(f64, f64)> = Vec::new();
+            let flush = |pts: &mut Vec<(f64, f64)>, svg: &mut Svg| {
+                svg.polyline(pts, r#"stroke="white" stroke-width="1.2" class="symbols""#);
+                pts.clear();
+            };
+            for (t0, t1, l) in rec.spans(&rec.line[i]) {
+                if t1 <= o.a || t0 >= o.b {
+                    continue;
+                }
+                let (x0, x1) = (px(t0.max(o.a)), px(t1.min(o.b)));
+                match l {
+                    Level::High | Level::Low => {
+                        let y = if l == Level::High { hi } else { lo };
+                        pts.push((x0, y));
+                        pts.push((x1, y));
+                    }
+                    _ => flush(&mut pts, svg),
+                }
+            }
+            flush(&mut pts, svg);
+        }
+        let (wa, wb) = rec.window;
+        let mut edge = |t: u64, class: &str, colour: &str, up: bool| {
+            if t < wa || t > wb {
+                return;
+            }
+            let x = px(t);
+            // Smaller marks on narrow occupancies, so they do not hide them.
+            let half = ((xb - xa) / 4.0).clamp(1.5, 3.5);
+            let (yb, tip) = if up { (bot + pad, bot + pad - 2.0 * half) } else { (top - pad, top - pad + 2.0 * half) };
+            let mut d = String::new();
+            let _ = write!(d, "M{:.2},{yb:.2} L{:.2},{tip:.2} L{:.2},{yb:.2} Z", x - half, x, x + half);
+            svg.raw(&format!(r#"<path class="{class}" data-t-ps="{t}" d="{d}" fill="{colour}"/>"#));
+        };
+        edge(o.a, "edge-enable", ENABLE_EDGE, true);
+        edge(o.release, "edge-release", RELEASE_EDGE, false);
+    }
+    svg.raw("</g>");
+}
+
+fn legend(svg: &mut Svg, y: f64) {
+    let mut x = LEFT;
+    let mut item = |svg: &mut Svg, swatch: &str, label: &str| {
+        svg.raw(&swatch.replace("{x}", &format!("{x:.1}")).replace("{y}", &format!("{:.1}", y - 9.0)));
+        svg.text(x + 24.0, y + 1.0, label, r#"font-size="11""#);
+        x += 30.0 + text_width(label, 11.0);
+    };
+    item(
+        svg,
+        &format!(r#"<rect x="{{x}}" y="{{y}}" width="18" height="12" fill="{ENABLE_FILL}" stroke="{ENABLE_STROKE}"/>"#),
+        "enable asserted",
+    );
+    item(
+        svg,
+        r##"<rect x="{x}" y="{y}" width="18" height="12" fill="url(#tail)" stroke="#a9bfdc" stroke-dasharray="2,2"/>"##,
+        "disable time (output turning off)",
+    );
+    item(svg, &format!(r#"<rect x="{{x}}" y="{{y}}" width="18" height="12" fill="{DATA_FILL}"/>"#), "data frame");
+    item(svg, &format!(r#"<rect x="{{x}}" y="{{y}}" width="18" height="12" fill="{CONTROL_FILL}"/>"#), "control frame");
+    item(
+        svg,
+        &format!(
+            r#"<rect x="{{x}}" y="{{y}}" width="18" height="12" fill="white" stroke="{CONTENTION}" stroke-width="2"/>"#
+        ),
+        "corrupted at a receiver",
+    );
+    let y2 = y + 22.0;
+    let mut x = LEFT;
+    let mut item2 = |svg: &mut Svg, swatch: &str, label: &str| {
+        svg.raw(&swatch.replace("{x}", &format!("{x:.1}")).replace("{y}", &format!("{:.1}", y2 - 9.0)));
+        svg.text(x + 24.0, y2 + 1.0, label, r#"font-size="11""#);
+        x += 30.0 + text_width(label, 11.0);
+    };
+    item2(
+        svg,
+        &format!(
+            r#"<g transform="translate({{x}} {{y}})"><path d="M0,12 L4,4 L8,12 Z" fill="{ENABLE_EDGE}"/><path d="M10,0 L14,8 L18,0 Z" fill="{RELEASE_EDGE}"/></g>"#
+        ),
+        "enable / release edge",
+    );
+    item2(
+        svg,
+        r#"<rect x="{x}" y="{y}" width="18" height="12" fill="url(#float)"/>"#,
+        "receiver input floating (no driver, no failsafe)",
+    );
+    item2(
+        svg,
+        &format!(r#"<rect x="{{x}}" y="{{y}}" width="18" height="12" fill="{CONTENTION}" opacity="0.8"/>"#),
+        "two drivers at once (contention)",
+    );
+    item2(
+        svg,
+        r##"<rect x="{x}" y="{y}" width="18" height="12" fill="none" stroke="#333"/>"##,
+        "gap: last driver off → next enable, with its length",
+    );
+}
