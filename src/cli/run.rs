@@ -121,7 +121,7 @@ pub fn run(args: RunArgs) -> Result<u8, Failure> {
     let mut sim = super::waves::simulation(&spec, events_window, wants_waves);
     let mut write_error = None;
     // Waveforms keep a slice's events in memory: keep slices short.
-    let step = if wants_waves { Some(Picos::from_us(20)) } else { None };
+    let step = if wants_waves { Some(Picos::from_ms(1)) } else { None };
     drive(&mut sim, &spec, step, |sim| {
         let settled = sim.settled_before();
         let events = sim.drain_trace();

@@ -38,9 +38,9 @@ fn lane_height(n: usize) -> f64 {
 /// A time-axis unit for a window span: (seconds per unit, symbol).
 fn time_unit(span_s: f64, end_s: f64) -> (f64, &'static str) {
     const UNITS: [(f64, &str); 5] = [(1e-12, "ps"), (1e-9, "ns"), (1e-6, "µs"), (1e-3, "ms"), (1.0, "s")];
-    // The unit that suits the span, moved up while labels would need more than five digits.
+    // The unit that suits the span, moved up while labels would need more than four digits before the point.
     let mut i = UNITS.iter().position(|(scale, _)| span_s < scale * 2000.0).unwrap_or(4);
-    while i < 4 && end_s / UNITS[i].0 >= 99_999.5 {
+    while i < 4 && end_s / UNITS[i].0 >= 9_999.5 {
         i += 1;
     }
     UNITS[i]

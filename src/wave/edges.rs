@@ -35,6 +35,7 @@ pub struct WaveModel<S: WaveSink> {
     nodes: usize,
     /// Wire delay plus receiver delay, driver-major: shift[n * nodes + r].
     shift: Vec<u64>,
+    max_shift: u64,
     idle: Vec<Level>,
     bit_rate: f64,
     encoding: Encoding,
@@ -84,6 +85,7 @@ impl<S: WaveSink> WaveModel<S> {
             sink,
             window,
             nodes,
+            max_shift: shift.iter().copied().max().unwrap_or(0),
             shift,
             idle,
             bit_rate: spec.frame.bit_rate,
@@ -167,8 +169,7 @@ impl<S: WaveSink> WaveModel<S> {
 
     fn add_occupancy(&mut self, o: &Occupancy) {
         let (from, to) = self.window;
-        let max_shift = self.shift.iter().copied().max().unwrap_or(0);
-        if o.b + max_shift < from || o.a > to {
+        if o.b + self.max_shift < from || o.a > to {
             return;
         }
         if o.b >= from {
@@ -362,4 +363,45 @@ fn pattern(s: u64, node: usize, k: u64) -> u64 {
     z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
     z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
     z ^ (z >> 31)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::bus::trace::BusEventKind as K;
+    use crate::wave::timing::Recording;
+
+    #[test]
+    fn symbols_sit_on_the_bit_grid_and_receivers_see_them_shifted() {
+        let spec = crate::scenario::parse_str(include_str!("../../scenarios/fruit-grader.toml"), "fruit").unwrap();
+        let line = LineModel::new(&spec);
+        let n = spec.nodes.len();
+        let (a, s, e, release, b) = (1_000_000, 1_007_000, 1_107_000, 1_107_000, 1_114_000);
+        let ev = |t, kind| BusEvent { t, node: 0, kind };
+        let mut m = WaveModel::new(&spec, &line, (0, 2_000_000), Recording::new(n, (0, 2_000_000)));
+        m.feed(&[
+            ev(s, K::FrameStart { frame: "poll", to: 1 }),
+            ev(e, K::FrameEnd { frame: "poll", to: 1, corrupted: false }),
+            ev(a, K::DriverEnable { dominant: false }),
+            ev(release, K::DriverRelease),
+            ev(b, K::DriverOff),
+        ]);
+        let rec = m.finish().unwrap();
+        // 100 Mbit/s: 10 symbols of 10 ns each between s and e; every change on the grid.
+        let changes = &rec.line[0];
+        assert_eq!(changes.first(), Some(&(0, Level::Off)));
+        assert_eq!(changes[1], (a, Level::High), "driving the idle level from the enable");
+        assert_eq!(changes.last(), Some(&(b, Level::Off)));
+        for &(t, _) in &changes[2..changes.len() - 1] {
+            assert!(t == e || (t >= s && t < e && (t - s) % 10_000 == 0), "change at {t} is off the bit grid");
+        }
+        // Node 1's receiver sees the same levels, wire delay plus receiver delay later.
+        let shift = line.delay_ps(0, 1) + spec.nodes[1].transceiver.receiver_delay.0;
+        let driven: Vec<(u64, Level)> = changes[1..changes.len() - 1].to_vec();
+        let heard: Vec<(u64, Level)> = rec.rx[1][1..rec.rx[1].len() - 1].to_vec();
+        assert_eq!(heard, driven.iter().map(|&(t, l)| (t + shift, l)).collect::<Vec<_>>());
+        // Type-2 receivers read the idle line as low (a failsafe threshold): never x.
+        assert_eq!(rec.rx[1].first(), Some(&(0, Level::Low)));
+        assert_eq!(rec.rx[1].last(), Some(&(b + shift, Level::Low)));
+    }
 }
