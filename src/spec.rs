@@ -232,6 +232,9 @@ pub struct NodeSpec {
     /// Maximum number of queued messages; arrivals beyond it are dropped and
     /// counted. `None` means [`DEFAULT_QUEUE_LIMIT`].
     pub queue_limit: Option<usize>,
+    /// Its protocol logic runs in an external process (`halfwire cosim`);
+    /// the access scheme's built-in behaviour does not run for it.
+    pub external: bool,
 }
 
 /// One traffic source at a node.

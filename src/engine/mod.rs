@@ -7,6 +7,7 @@
 //! whatever occupancies have become final. Nothing here does I/O; the caller
 //! drives the run with [`Simulation::run_until`] and reads the [`Report`].
 
+pub mod external;
 pub mod queue;
 pub mod rng;
 mod world;
@@ -64,6 +65,10 @@ pub(crate) enum Event {
     Arrival { source: u32 },
     Timer { node: u32, tag: u64 },
     Deliver { frame: u32, to: u32 },
+    /// A timer armed by an external node.
+    External { node: u32, tag: u64 },
+    /// The line at a watching node's receiver turns busy or idle.
+    LineEdge { node: u32, busy: bool },
 }
 
 /// One simulation run.
@@ -75,6 +80,8 @@ pub struct Simulation {
     started: bool,
     /// Set when simulated time stopped advancing (see [`STALL_EVENTS`]).
     stalled: Option<Picos>,
+    /// Co-simulation: external nodes and their gateway.
+    cosim: Option<Box<external::Cosim>>,
 }
 
 /// Events at one instant after which a run counts as stalled: a scenario
@@ -92,7 +99,7 @@ impl Simulation {
         let world = World::new(spec.clone(), trace);
         let scheme = scheme::build(spec);
         let sources = traffic::sources(spec);
-        Simulation { world, scheme, sources, started: false, stalled: None }
+        Simulation { world, scheme, sources, started: false, stalled: None, cosim: None }
     }
 
     pub fn now(&self) -> Picos {
@@ -128,6 +135,9 @@ impl Simulation {
             }
         }
         self.scheme.start(&mut self.world);
+        if let Some(c) = &mut self.cosim {
+            c.start(&self.world.spec);
+        }
     }
 
     /// Process every event before `until` (capped at the scenario duration).
@@ -137,8 +147,18 @@ impl Simulation {
         }
         let until = until.min(self.world.spec.duration);
         let mut same_instant = 0u64;
-        while let Some(t) = self.world.queue.peek_time() {
-            if t >= until || self.stalled.is_some() {
+        loop {
+            if self.stalled.is_some() || self.aborted().is_some() {
+                break;
+            }
+            // Lockstep: before time moves on, every external node hears what
+            // happened to it at this instant and answers.
+            if self.cosim.as_ref().is_some_and(|c| c.has_pending()) && self.world.queue.peek_time() != Some(self.world.now) {
+                self.exchange();
+                continue;
+            }
+            let Some(t) = self.world.queue.peek_time() else { break };
+            if t >= until {
                 break;
             }
             if t == self.world.now {
@@ -157,6 +177,8 @@ impl Simulation {
                 Event::Arrival { source } => self.on_arrival(source as usize),
                 Event::Timer { node, tag } => self.scheme.on_timer(&mut self.world, node as usize, tag),
                 Event::Deliver { frame, to } => self.on_deliver(frame, to as usize),
+                Event::External { node, tag } => self.notify(node as usize, external::Notice::Timer { tag }),
+                Event::LineEdge { node, busy } => self.on_line_edge(node as usize, busy),
             }
             let w = &mut self.world;
             w.bus.process(&w.line, t.0, false, &mut w.trace);
@@ -183,9 +205,14 @@ impl Simulation {
     /// new traffic, timers or scheme decisions happen after the end), so the
     /// utilization of the last instants is classified by their real fate.
     pub fn finish_with_trace(mut self) -> (Report, Vec<BusEvent>) {
-        let end = self.world.spec.duration;
+        let mut end = self.world.spec.duration;
         if self.world.now < end && self.stalled.is_none() {
             self.run_until(end);
+        }
+        if let Some(t) = self.aborted() {
+            // A run ended early covers the time up to its end.
+            end = t.max(self.world.spec.warmup).min(end);
+            self.world.spec.duration = end;
         }
         let w = &mut self.world;
         while let Some((t, ev)) = w.queue.pop() {
@@ -200,6 +227,17 @@ impl Simulation {
         let mut report = Report::build(&self.world, scheme);
         if let Some(t) = self.stalled {
             report.stalled_at_s = Some(t.as_secs_f64());
+        }
+        if let Some(c) = &self.cosim {
+            report.aborted_at_s = c.aborted.map(|t| t.as_secs_f64());
+            report.run.cosim_exchanges = Some(c.exchanges);
+            for f in &c.faults {
+                report.warnings.push(crate::report::Warning {
+                    code: "cosim_client_fault",
+                    node: Some(self.world.spec.nodes[f.node].name.clone()),
+                    message: format!("at {} (virtual time): {}", f.at, f.message),
+                });
+            }
         }
         let events = std::mem::take(&mut self.world.trace.events);
         (report, events)
@@ -234,6 +272,11 @@ impl Simulation {
             return;
         }
         w.queues[node].push_back(msg);
+        if self.is_external(node) {
+            let to = msg.dest;
+            self.notify(node, external::Notice::Message { payload_bits: msg.payload_bits, to });
+            return;
+        }
         self.scheme.on_message(&mut self.world, node);
     }
 
@@ -276,6 +319,20 @@ impl Simulation {
             sent_end: Picos(f.e),
             occupancy: f.occupancy,
         };
+        if self.is_external(to) {
+            let notice = external::Notice::Frame {
+                from: f.src,
+                kind: f.kind,
+                data_bits: f.data_bits,
+                payload_bits: f.message.map(|m| m.payload_bits),
+                corrupted,
+                start: Picos(f.s),
+                end: Picos(f.e),
+                occupancy: f.occupancy,
+            };
+            self.notify(to, notice);
+            return;
+        }
         self.scheme.on_receive(&mut self.world, &rx);
     }
 }

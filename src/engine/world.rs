@@ -117,6 +117,8 @@ pub struct World {
     /// Per node: when its latest transmission releases the enable. A
     /// transceiver has one driver, so a new transmission may not start earlier.
     last_release: Vec<u64>,
+    /// Nodes that asked to hear line busy/idle changes (co-simulation).
+    pub(crate) line_watch: Vec<bool>,
 }
 
 impl World {
@@ -172,6 +174,7 @@ impl World {
             events: 0,
             tx: None,
             last_release: vec![0; n],
+            line_watch: vec![false; n],
             spec,
         }
     }
@@ -311,8 +314,8 @@ impl World {
     }
 
     /// Append a frame to the open transmission, after the interframe gap if
-    /// it is not the first.
-    pub fn add_frame(&mut self, f: FrameOut) {
+    /// it is not the first. Returns the time its first bit leaves the driver.
+    pub fn add_frame(&mut self, f: FrameOut) -> Picos {
         let mut tx = self.tx.expect("add_frame without begin_tx");
         if tx.frames > 0 {
             tx.cursor += self.spec.frame.interframe_gap.0;
@@ -374,6 +377,12 @@ impl World {
             });
         }
         self.tx = Some(tx);
+        Picos(s)
+    }
+
+    /// Bus id of the transmission being assembled.
+    pub fn tx_occupancy(&self) -> u64 {
+        self.tx.expect("a transmission is open").occupancy
     }
 
     /// Close the open transmission: the enable is released at the end of the
@@ -385,6 +394,15 @@ impl World {
         let release = tx.cursor;
         let off = release + disable;
         self.bus.insert(tx.occupancy, tx.node, tx.enable, release, off, tx.frames, false);
+        if self.line_watch.iter().any(|&w| w) {
+            // The line turns busy at each watching receiver when this driver's
+            // signal reaches it, and idle when its output-off does.
+            for r in (0..self.line_watch.len()).filter(|&r| self.line_watch[r]) {
+                let shift = self.line.delay_ps(tx.node, r) + self.spec.nodes[r].transceiver.receiver_delay.0;
+                self.queue.push(Picos(tx.enable + shift), Event::LineEdge { node: r as u32, busy: true });
+                self.queue.push(Picos(off + shift), Event::LineEdge { node: r as u32, busy: false });
+            }
+        }
         TxTimes {
             enable: Picos(tx.enable),
             first_bit: Picos(first_bit),

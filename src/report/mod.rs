@@ -39,6 +39,9 @@ pub struct Report {
     /// Set when simulated time stopped advancing: the run ended there.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub stalled_at_s: Option<f64>,
+    /// Set when a co-simulation ended early (a client fault under `abort`, or Ctrl-C).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub aborted_at_s: Option<f64>,
     pub run: RunInfo,
     /// The exact counters behind the figures (for merging; not in the JSON report).
     #[serde(skip)]
@@ -134,6 +137,9 @@ pub struct RunInfo {
     pub wall_s: f64,
     pub events: u64,
     pub events_per_s: f64,
+    /// Co-simulation: batches exchanged with external nodes.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub cosim_exchanges: Option<u64>,
 }
 
 impl Report {
@@ -225,6 +231,7 @@ impl Report {
             scheme,
             warnings,
             stalled_at_s: None,
+            aborted_at_s: None,
             run: RunInfo { events: w.events, ..RunInfo::default() },
             tallies: tallies::Tallies::from_world(w),
         }

@@ -204,6 +204,8 @@ pub struct RawNode {
     pub traffic: Option<Spanned<OneOrMany<RawTraffic>>>,
     pub turnaround: Option<S>,
     pub transceiver: Option<RawTransceiver>,
+    /// Driven by an external process under `halfwire cosim`.
+    pub external: Option<Spanned<bool>>,
 }
 
 #[derive(Debug, Deserialize)]

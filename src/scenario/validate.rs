@@ -62,7 +62,29 @@ pub fn validate(raw: &RawScenario, file: &str, src: &str) -> R<Spec> {
     let expect = validate_expectations(&v, raw)?;
     let spec = Spec { expect, name, seed, duration, warmup, timing, line, frame, nodes, access };
     check_recessive(&v, raw, &spec)?;
+    check_external(&v, raw, &spec)?;
     Ok(spec)
+}
+
+/// External nodes stand in for polling slaves: the master, and the nodes of
+/// the other schemes, keep their built-in behaviour.
+fn check_external(v: &V, raw: &RawScenario, spec: &Spec) -> R<()> {
+    for (i, n) in raw.node.iter().flatten().enumerate() {
+        let Some(e) = n.get_ref().external.as_ref().filter(|e| *e.get_ref()) else { continue };
+        let key = format!("node[{i}].external");
+        match &spec.access {
+            AccessSpec::Polling(p) if p.master == i => {
+                return Err(v.err(e.span(), &key, "the polling master cannot be external: only slaves can"));
+            }
+            AccessSpec::Polling(_) => {}
+            other => {
+                return Err(v
+                    .err(e.span(), &key, format!("external nodes are supported under polling, not {}", other.name()))
+                    .with_hint("an external node takes a polling slave's place; the master stays built in"));
+            }
+        }
+    }
+    Ok(())
 }
 
 /// Bitwise arbitration reads a released driver as recessive: the undriven
@@ -322,6 +344,7 @@ struct Pending<'r> {
     transceiver: Transceiver,
     traffic: Option<&'r Spanned<OneOrMany<RawTraffic>>>,
     turnaround: Option<Picos>,
+    external: bool,
 }
 
 fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec, timing: Timing) -> R<Vec<NodeSpec>> {
@@ -363,6 +386,7 @@ fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec, timing: Timing) -> 
             transceiver,
             traffic: n.traffic.as_ref(),
             turnaround,
+            external: n.external.as_ref().is_some_and(|e| *e.get_ref()),
         });
     }
     if let Some(row) = &raw.nodes {
@@ -413,6 +437,7 @@ fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec, timing: Timing) -> 
                 transceiver,
                 traffic: r.traffic.as_ref(),
                 turnaround,
+                external: false,
             });
         }
     }
@@ -466,6 +491,7 @@ fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec, timing: Timing) -> 
             traffic,
             turnaround: p.turnaround,
             queue_limit,
+            external: p.external,
         });
     }
     Ok(out)

@@ -43,6 +43,11 @@ pub trait AccessScheme: std::fmt::Debug {
     /// The receiver output of `rx.at` has shown the last bit of a frame.
     fn on_receive(&mut self, world: &mut World, rx: &Reception);
 
+    /// An external node (co-simulation) has just scheduled transmission `tx`
+    /// carrying frames of `kinds`. Schemes that coordinate with the node (a
+    /// polling master waiting for a reply) react here.
+    fn on_external_tx(&mut self, _world: &mut World, _node: NodeId, _tx: &crate::engine::TxTimes, _kinds: &[crate::engine::FrameKind]) {}
+
     /// The scheme's own figures for the report.
     fn report(&self, world: &World) -> SchemeReport;
 }

@@ -27,12 +27,14 @@
 use tracing::debug;
 
 use super::{sample_latency, AccessScheme, DurationStat, SchemeReport, SchemeValue};
-use crate::engine::{Dest, FrameKind, FrameOut, Reception, World};
+use crate::engine::{Dest, FrameKind, FrameOut, Reception, TxTimes, World};
 use crate::spec::{NodeId, PollingSpec};
 use crate::units::Picos;
 
 const NEXT_POLL: u64 = 1;
 const TIMEOUT: u64 = 2;
+/// Timeouts of polls to external slaves: this plus the poll's number.
+const EXTERNAL_TIMEOUT: u64 = 1 << 32;
 
 #[derive(Debug)]
 pub struct Polling {
@@ -45,6 +47,10 @@ pub struct Polling {
     timeout_armed: bool,
     /// Bus id of the master's latest poll.
     current_poll: u64,
+    /// Number of the latest poll (all polls, for the external timeout tags).
+    poll_seq: u64,
+    /// The latest poll went to an external slave and its reply has not been accepted yet.
+    awaiting_external: bool,
     /// Per node: until when its own reply keeps its enable asserted.
     busy_until: Vec<Picos>,
     ignored: u64,
@@ -66,6 +72,8 @@ impl Polling {
             deadline: Picos::ZERO,
             timeout_armed: false,
             current_poll: u64::MAX,
+            poll_seq: 0,
+            awaiting_external: false,
             busy_until: vec![Picos::ZERO; nodes],
             ignored: 0,
             cycle_start: None,
@@ -100,6 +108,15 @@ impl Polling {
         // If the slave cannot even see the poll before the deadline, the timeout
         // is certain to fire first: arm it now. Otherwise it is armed, when
         // needed, at the slave's decision.
+        self.poll_seq += 1;
+        self.awaiting_external = w.spec().nodes[slave].external;
+        if self.awaiting_external {
+            // An external slave's answer is not known in advance: the timeout
+            // is armed now and ignored if the reply arrives in time.
+            self.timeout_armed = false;
+            w.set_timer(master, self.deadline, EXTERNAL_TIMEOUT + self.poll_seq);
+            return;
+        }
         self.timeout_armed = w.seen_at(master, slave, tx.release) > self.deadline;
         if self.timeout_armed {
             w.set_timer(master, self.deadline, TIMEOUT);
@@ -179,6 +196,18 @@ impl AccessScheme for Polling {
     }
 
     fn on_timer(&mut self, w: &mut World, _node: NodeId, tag: u64) {
+        if tag >= EXTERNAL_TIMEOUT {
+            if tag - EXTERNAL_TIMEOUT != self.poll_seq || !self.awaiting_external {
+                return; // answered in time, or a poll ago
+            }
+            self.awaiting_external = false;
+            if w.in_window(w.now()) {
+                self.timeouts += 1;
+            }
+            debug!(t_ps = w.now().0, "reply timeout (external slave)");
+            self.advance(w);
+            return;
+        }
         match tag {
             NEXT_POLL => self.advance(w),
             TIMEOUT => {
@@ -210,6 +239,28 @@ impl AccessScheme for Polling {
             return;
         }
         self.reply(w, rx.at, rx.occupancy);
+    }
+
+    fn on_external_tx(&mut self, w: &mut World, slave: NodeId, tx: &TxTimes, kinds: &[FrameKind]) {
+        let now = w.now();
+        if w.in_window(now) {
+            if kinds.contains(&FrameKind::Data) {
+                self.data_replies += 1;
+            } else if kinds.contains(&FrameKind::EmptyReply) {
+                self.empty_replies += 1;
+            }
+        }
+        let master = self.spec.master;
+        if !self.awaiting_external || self.spec.order[self.idx] != slave {
+            return; // not an answer to the poll the master waits on
+        }
+        if w.seen_at(slave, master, tx.first_bit) > self.deadline {
+            return; // too late: the timeout fires first
+        }
+        self.awaiting_external = false;
+        let master_wait = self.spec.turnaround[master] + sample_latency(&self.spec.response_latency, w.rng(master));
+        let next = w.seen_at(slave, master, tx.release) + master_wait;
+        w.set_timer(master, next, NEXT_POLL);
     }
 
     fn report(&self, _w: &World) -> SchemeReport {
