@@ -11,6 +11,7 @@
 pub mod budget;
 pub mod bus;
 pub mod check;
+pub mod cosim;
 pub mod engine;
 pub mod line;
 pub mod plot;

@@ -2,7 +2,9 @@
 
 mod budget;
 mod check;
+mod cosim;
 mod diff;
+mod gateway;
 mod merge;
 mod output;
 mod rows;
@@ -36,6 +38,8 @@ enum Command {
     Sweep(sweep::SweepArgs),
     /// Combine sweep row files (shards, replications) into one row per point.
     Merge(merge::MergeArgs),
+    /// Run a scenario whose external nodes are driven by other processes over loopback TCP (lockstep).
+    Cosim(cosim::CosimArgs),
 }
 
 /// A failure the command reports: a message and its exit status.
@@ -87,6 +91,7 @@ pub fn main() -> ExitCode {
         Command::Diff(args) => diff::diff(args),
         Command::Sweep(args) => sweep::sweep(args),
         Command::Merge(args) => merge::merge(args),
+        Command::Cosim(args) => cosim::cosim(args),
     };
     match result {
         Ok(code) => ExitCode::from(code),

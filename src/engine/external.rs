@@ -85,6 +85,12 @@ pub trait Gateway: std::fmt::Debug {
     fn exchange(&mut self, batch: &Batch) -> Result<Vec<Intent>, String>;
     /// The node broke the protocol or failed: tell it, and disconnect it.
     fn fault(&mut self, node: NodeId, at: Picos, message: &str);
+    /// An outside stop request (Ctrl-C): the run ends at the current instant.
+    fn interrupted(&self) -> bool {
+        false
+    }
+    /// The run is over: say goodbye to every node still connected.
+    fn close(&mut self, _at: Picos, _reason: &str) {}
 }
 
 /// A client fault, as the report lists it.
@@ -148,6 +154,14 @@ impl Simulation {
         sim
     }
 
+    /// Tell the gateway the run is over (`reason`: why).
+    pub fn close_external(&mut self, reason: &str) {
+        let now = self.world.now;
+        if let Some(c) = &mut self.cosim {
+            c.gateway.close(now, reason);
+        }
+    }
+
     /// When a client fault ended the run.
     pub fn aborted(&self) -> Option<Picos> {
         self.cosim.as_ref().and_then(|c| c.aborted)
@@ -200,6 +214,10 @@ impl Simulation {
         let now = self.world.now;
         let mut i = 0;
         while i < pending.len() && c.aborted.is_none() {
+            if c.gateway.interrupted() {
+                c.aborted = Some(now);
+                break;
+            }
             let node = pending[i].0;
             let j = pending[i..].iter().position(|(n, _)| *n != node).map_or(pending.len(), |k| i + k);
             if !c.silent[node] {
@@ -213,10 +231,15 @@ impl Simulation {
                     payloads: &c.payloads,
                 };
                 c.exchanges += 1;
-                let result = c.gateway.exchange(&batch).and_then(|intents| {
-                    intents.into_iter().try_for_each(|intent| self.apply(&mut c, node, intent))
-                });
+                let result = c
+                    .gateway
+                    .exchange(&batch)
+                    .and_then(|intents| intents.into_iter().try_for_each(|intent| self.apply(&mut c, node, intent)));
                 if let Err(message) = result {
+                    if c.gateway.interrupted() {
+                        c.aborted = Some(now);
+                        break;
+                    }
                     c.gateway.fault(node, now, &message);
                     c.faults.push(Fault { node, at: now, message });
                     c.silent[node] = true;

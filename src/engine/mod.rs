@@ -62,13 +62,27 @@ pub struct Reception {
 /// Events in the queue. Kept small and `Copy`: the queue never allocates per event.
 #[derive(Clone, Copy, Debug)]
 pub(crate) enum Event {
-    Arrival { source: u32 },
-    Timer { node: u32, tag: u64 },
-    Deliver { frame: u32, to: u32 },
+    Arrival {
+        source: u32,
+    },
+    Timer {
+        node: u32,
+        tag: u64,
+    },
+    Deliver {
+        frame: u32,
+        to: u32,
+    },
     /// A timer armed by an external node.
-    External { node: u32, tag: u64 },
+    External {
+        node: u32,
+        tag: u64,
+    },
     /// The line at a watching node's receiver turns busy or idle.
-    LineEdge { node: u32, busy: bool },
+    LineEdge {
+        node: u32,
+        busy: bool,
+    },
 }
 
 /// One simulation run.
@@ -153,7 +167,9 @@ impl Simulation {
             }
             // Lockstep: before time moves on, every external node hears what
             // happened to it at this instant and answers.
-            if self.cosim.as_ref().is_some_and(|c| c.has_pending()) && self.world.queue.peek_time() != Some(self.world.now) {
+            if self.cosim.as_ref().is_some_and(|c| c.has_pending())
+                && self.world.queue.peek_time() != Some(self.world.now)
+            {
                 self.exchange();
                 continue;
             }

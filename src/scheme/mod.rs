@@ -46,7 +46,14 @@ pub trait AccessScheme: std::fmt::Debug {
     /// An external node (co-simulation) has just scheduled transmission `tx`
     /// carrying frames of `kinds`. Schemes that coordinate with the node (a
     /// polling master waiting for a reply) react here.
-    fn on_external_tx(&mut self, _world: &mut World, _node: NodeId, _tx: &crate::engine::TxTimes, _kinds: &[crate::engine::FrameKind]) {}
+    fn on_external_tx(
+        &mut self,
+        _world: &mut World,
+        _node: NodeId,
+        _tx: &crate::engine::TxTimes,
+        _kinds: &[crate::engine::FrameKind],
+    ) {
+    }
 
     /// The scheme's own figures for the report.
     fn report(&self, world: &World) -> SchemeReport;

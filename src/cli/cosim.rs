@@ -1,0 +1,268 @@
+//! `halfwire cosim`: run a scenario whose external nodes are driven by
+//! other processes over loopback TCP, in lockstep virtual time.
+
+use std::net::SocketAddr;
+use std::path::PathBuf;
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::Arc;
+use std::time::{Duration, Instant};
+
+use clap::{Args, ValueEnum};
+use halfwire::cosim::{self, ClientMessage};
+use halfwire::engine::Simulation;
+use halfwire::report::{json, text, Report, Warning};
+use halfwire::spec::Spec;
+use tokio::io::AsyncBufReadExt;
+use tokio::net::TcpListener;
+
+use super::gateway::{self, Client, Outgoing, TcpGateway, Writers};
+use super::output::print_stdout;
+use super::run::Format;
+use super::Failure;
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum OnFault {
+    /// End the run: exit 1, with the partial report.
+    Abort,
+    /// The faulty node goes quiet and the run continues.
+    Silence,
+}
+
+#[derive(Debug, Args)]
+pub struct CosimArgs {
+    /// Scenario file (TOML) with one or more `external = true` nodes.
+    pub file: PathBuf,
+    /// Address to listen on; port 0 picks a free port (printed on stderr).
+    #[arg(long, value_name = "ADDR:PORT", default_value = "127.0.0.1:0")]
+    pub listen: String,
+    /// Accept a non-loopback listen address (clients from other machines).
+    #[arg(long)]
+    pub allow_remote: bool,
+    /// Wall-clock seconds to wait for every external node to connect and say hello.
+    #[arg(long, value_name = "SECONDS", default_value_t = 30.0)]
+    pub connect_timeout: f64,
+    /// Wall-clock seconds a node may take to answer one batch of events.
+    #[arg(long, value_name = "SECONDS", default_value_t = 10.0)]
+    pub answer_timeout: f64,
+    /// What a client fault does to the run.
+    #[arg(long, value_enum, default_value_t = OnFault::Abort)]
+    pub on_client_fault: OnFault,
+    /// Output format of the report on stdout.
+    #[arg(long, value_enum, default_value_t = Format::Text)]
+    pub format: Format,
+    /// Override the scenario's seed.
+    #[arg(long)]
+    pub seed: Option<u64>,
+}
+
+fn seconds(what: &str, s: f64) -> Result<Duration, Failure> {
+    if !(s.is_finite() && s > 0.0 && s <= 86_400.0) {
+        return Err(Failure::input(format!("{what} takes 0 to 86400 seconds, not {s}")));
+    }
+    Ok(Duration::from_secs_f64(s))
+}
+
+pub fn cosim(args: CosimArgs) -> Result<u8, Failure> {
+    let mut spec = halfwire::scenario::load(&args.file)?;
+    if let Some(seed) = args.seed {
+        spec.seed = seed;
+    }
+    let external: Vec<usize> = (0..spec.nodes.len()).filter(|&i| spec.nodes[i].external).collect();
+    if external.is_empty() {
+        return Err(Failure::input(format!(
+            "{}: the scenario has no external nodes: mark polling slaves with `external = true` in their [[node]] table",
+            args.file.display()
+        )));
+    }
+    let addr: SocketAddr = args.listen.parse().map_err(|e| {
+        Failure::input(format!("--listen {:?}: not an address and port like 127.0.0.1:7400 ({e})", args.listen))
+    })?;
+    if !addr.ip().is_loopback() {
+        if !args.allow_remote {
+            return Err(Failure::input(format!(
+                "--listen {addr}: refusing a non-loopback address, which lets other machines drive this run; \
+                 add --allow-remote if that is what you want"
+            )));
+        }
+        eprintln!("warning: listening on {addr}, reachable from other machines; the protocol has no authentication");
+    }
+    let connect = seconds("--connect-timeout", args.connect_timeout)?;
+    let answer = seconds("--answer-timeout", args.answer_timeout)?;
+    let runtime = tokio::runtime::Builder::new_current_thread()
+        .enable_all()
+        .build()
+        .map_err(|e| Failure { code: 1, message: format!("cannot start the network runtime: {e}") })?;
+    runtime.block_on(session(spec, external, addr, connect, answer, args.on_client_fault, args.format))
+}
+
+/// Faults before the run (bad hellos, missing nodes): they become report lines.
+struct EarlyFault {
+    node: Option<String>,
+    message: String,
+}
+
+async fn session(
+    spec: Spec,
+    external: Vec<usize>,
+    addr: SocketAddr,
+    connect: Duration,
+    answer: Duration,
+    on_fault: OnFault,
+    format: Format,
+) -> Result<u8, Failure> {
+    let listener =
+        TcpListener::bind(addr).await.map_err(|e| Failure::input(format!("--listen {addr}: cannot listen: {e}")))?;
+    let local = listener.local_addr().map_err(|e| Failure { code: 1, message: e.to_string() })?;
+    eprintln!("halfwire cosim: listening on {local}; waiting for {} external node(s)", external.len());
+    let interrupt = Arc::new(AtomicBool::new(false));
+    let flag = interrupt.clone();
+    tokio::spawn(async move {
+        if tokio::signal::ctrl_c().await.is_ok() {
+            eprintln!("\ninterrupted: ending the run at the current virtual time");
+            flag.store(true, Ordering::SeqCst);
+        }
+    });
+    let writers: Writers = Arc::default();
+    let mut clients: Vec<Option<Client>> = (0..spec.nodes.len()).map(|_| None).collect();
+    let mut early: Vec<EarlyFault> = Vec::new();
+    let deadline = tokio::time::Instant::now() + connect;
+    let mut abort = false;
+    while external.iter().any(|&n| clients[n].is_none()) && !interrupt.load(Ordering::SeqCst) {
+        let accepted = tokio::select! {
+            r = tokio::time::timeout_at(deadline, listener.accept()) => r,
+            _ = tokio::time::sleep(Duration::from_millis(100)) => continue,
+        };
+        let Ok(Ok((stream, peer))) = accepted else { break };
+        // One small line per message each way: send each at once.
+        let _ = stream.set_nodelay(true);
+        let (mut reader, writer) = gateway::split(stream);
+        let mut first = String::new();
+        let hello = tokio::time::timeout(answer, reader.read_line(&mut first)).await;
+        let client = gateway::spawn_client(reader, writer);
+        let outcome = match hello {
+            Err(_) => Err("no hello within --answer-timeout".to_owned()),
+            Ok(Err(e)) => Err(format!("the connection failed: {e}")),
+            Ok(Ok(_)) => match cosim::parse_line(&first) {
+                Ok(ClientMessage::Hello { protocol, node }) => check_hello(&spec, &clients, &protocol, &node),
+                Ok(_) => Err("the first message must be a hello".to_owned()),
+                Err(e) => Err(e),
+            },
+        };
+        match outcome {
+            Ok(n) => {
+                let _ = client.out.send(Outgoing::Line(cosim::line(&cosim::welcome_message(&spec, n))));
+                eprintln!("halfwire cosim: {} connected from {peer}", spec.nodes[n].name);
+                clients[n] = Some(client);
+            }
+            Err(message) => {
+                let node = cosim::parse_line(&first).ok().and_then(|m| match m {
+                    ClientMessage::Hello { node, .. } => Some(node),
+                    _ => None,
+                });
+                eprintln!("halfwire cosim: refused a client from {peer}: {message}");
+                let _ = client.out.send(Outgoing::Line(cosim::line(&cosim::error_message(&message, None))));
+                let _ = client.out.send(Outgoing::Close);
+                writers.lock().expect("no poisoned lock").push(client.writer);
+                early.push(EarlyFault { node, message: format!("before the run, a client from {peer}: {message}") });
+                if on_fault == OnFault::Abort {
+                    abort = true;
+                    break;
+                }
+            }
+        }
+    }
+    for &n in &external {
+        if clients[n].is_none() && !abort {
+            let message = format!("{} did not connect within --connect-timeout", spec.nodes[n].name);
+            eprintln!("halfwire cosim: {message}");
+            early.push(EarlyFault { node: Some(spec.nodes[n].name.clone()), message });
+            if on_fault == OnFault::Abort {
+                abort = true;
+            }
+        }
+    }
+    let abort_on_fault = on_fault == OnFault::Abort;
+    let gw = TcpGateway {
+        spec: spec.clone(),
+        clients,
+        answer_timeout: answer,
+        interrupt: interrupt.clone(),
+        waited: Duration::ZERO,
+        writers: writers.clone(),
+    };
+    let start_aborted = abort || interrupt.load(Ordering::SeqCst);
+    let run_spec = spec.clone();
+    let (report, faults) = tokio::task::spawn_blocking(move || {
+        let started = Instant::now();
+        let mut sim = Simulation::with_gateway(&run_spec, Box::new(gw), abort_on_fault);
+        if start_aborted {
+            sim.interrupt();
+        }
+        sim.run_until(run_spec.duration);
+        let reason = if sim.aborted().is_some() { "aborted" } else { "end" };
+        sim.close_external(reason);
+        let faults = sim.faults().len();
+        let mut report = sim.finish();
+        report.set_wall_time(started.elapsed().as_secs_f64());
+        (report, faults)
+    })
+    .await
+    .map_err(|e| Failure { code: 1, message: format!("the simulation thread failed: {e}") })?;
+    let handles: Vec<_> = std::mem::take(&mut *writers.lock().expect("no poisoned lock"));
+    for h in handles {
+        let _ = tokio::time::timeout(Duration::from_secs(2), h).await;
+    }
+    finish(report, early, faults, abort, &interrupt, format)
+}
+
+fn check_hello(spec: &Spec, clients: &[Option<Client>], protocol: &str, node: &str) -> Result<usize, String> {
+    if protocol != cosim::PROTOCOL {
+        return Err(format!("protocol {protocol:?} is not spoken here: this halfwire speaks {}", cosim::PROTOCOL));
+    }
+    let Some(n) = spec.nodes.iter().position(|x| x.name == node) else {
+        return Err(format!("no node named {node:?} in the scenario"));
+    };
+    if !spec.nodes[n].external {
+        let list: Vec<&str> = spec.nodes.iter().filter(|x| x.external).map(|x| x.name.as_str()).collect();
+        return Err(format!("node {node:?} is not external (external nodes: {})", list.join(", ")));
+    }
+    if clients[n].is_some() {
+        return Err(format!("node {node:?} is already connected: a duplicate hello"));
+    }
+    Ok(n)
+}
+
+fn finish(
+    mut report: Report,
+    early: Vec<EarlyFault>,
+    faults: usize,
+    abort: bool,
+    interrupt: &AtomicBool,
+    format: Format,
+) -> Result<u8, Failure> {
+    let early_count = early.len();
+    for f in early {
+        report.warnings.push(Warning { code: "cosim_client_fault", node: f.node, message: f.message });
+    }
+    let out = match format {
+        Format::Json => json::render(&report),
+        Format::Text => text::render(&report, console::colors_enabled()),
+    };
+    print_stdout(&out)?;
+    if interrupt.load(Ordering::SeqCst) {
+        return Ok(130);
+    }
+    if abort || (report.aborted_at_s.is_some() && faults > 0) {
+        eprintln!(
+            "halfwire cosim: a client fault ended the run (--on-client-fault abort); the report above is partial"
+        );
+        return Ok(1);
+    }
+    if faults + early_count > 0 {
+        eprintln!(
+            "halfwire cosim: {} client fault(s); the faulty nodes went quiet (--on-client-fault silence)",
+            faults + early_count
+        );
+    }
+    Ok(0)
+}
