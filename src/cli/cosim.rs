@@ -192,6 +192,7 @@ async fn session(
     };
     let start_aborted = abort || interrupt.load(Ordering::SeqCst);
     let run_spec = spec.clone();
+    let stopped = interrupt.clone();
     let (report, faults) = tokio::task::spawn_blocking(move || {
         let started = Instant::now();
         let mut sim = Simulation::with_gateway(&run_spec, Box::new(gw), abort_on_fault);
@@ -199,7 +200,13 @@ async fn session(
             sim.interrupt();
         }
         sim.run_until(run_spec.duration);
-        let reason = if sim.aborted().is_some() { "aborted" } else { "end" };
+        let reason = if stopped.load(Ordering::SeqCst) {
+            "interrupted"
+        } else if sim.aborted().is_some() {
+            "aborted"
+        } else {
+            "end"
+        };
         sim.close_external(reason);
         let faults = sim.faults().len();
         let mut report = sim.finish();
