@@ -48,8 +48,11 @@ fn decide(rules: &Rules, batch: &Value) -> Vec<Value> {
     out
 }
 
+/// Send one message as one line, in one write (so it leaves in one segment).
 fn send(w: &mut impl Write, v: &Value) -> std::io::Result<()> {
-    writeln!(w, "{v}")?;
+    let mut line = v.to_string();
+    line.push('\n');
+    w.write_all(line.as_bytes())?;
     w.flush()
 }
 

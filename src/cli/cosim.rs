@@ -53,6 +53,9 @@ pub struct CosimArgs {
     /// Override the scenario's seed.
     #[arg(long)]
     pub seed: Option<u64>,
+    /// Override the scenario's duration (simulated time with a unit, e.g. "2 s").
+    #[arg(long)]
+    pub duration: Option<String>,
 }
 
 fn seconds(what: &str, s: f64) -> Result<Duration, Failure> {
@@ -66,6 +69,16 @@ pub fn cosim(args: CosimArgs) -> Result<u8, Failure> {
     let mut spec = halfwire::scenario::load(&args.file)?;
     if let Some(seed) = args.seed {
         spec.seed = seed;
+    }
+    if let Some(d) = &args.duration {
+        let d = halfwire::units::parse_time(d).map_err(|e| Failure::input(format!("--duration: {e}")))?;
+        if d <= spec.warmup {
+            return Err(Failure::input(format!(
+                "--duration {d} must be longer than the scenario's warmup ({})",
+                spec.warmup
+            )));
+        }
+        spec.duration = d;
     }
     let external: Vec<usize> = (0..spec.nodes.len()).filter(|&i| spec.nodes[i].external).collect();
     if external.is_empty() {

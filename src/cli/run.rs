@@ -92,6 +92,13 @@ fn apply_overrides(spec: &mut Spec, args: &RunArgs) -> Result<(), Failure> {
 
 pub fn run(args: RunArgs) -> Result<u8, Failure> {
     let mut spec = halfwire::scenario::load(&args.file)?;
+    let external: Vec<&str> = spec.nodes.iter().filter(|n| n.external).map(|n| n.name.as_str()).collect();
+    if !external.is_empty() {
+        eprintln!(
+            "note: run simulates the external node(s) {} with the built-in rules; `halfwire cosim` lets a process drive them",
+            external.join(", ")
+        );
+    }
     apply_overrides(&mut spec, &args)?;
     if let Some(n) = args.replications {
         return replicated(&spec, n, args.format);
