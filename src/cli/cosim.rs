@@ -67,19 +67,7 @@ fn seconds(what: &str, s: f64) -> Result<Duration, Failure> {
 
 pub fn cosim(args: CosimArgs) -> Result<u8, Failure> {
     let mut spec = halfwire::scenario::load(&args.file)?;
-    if let Some(seed) = args.seed {
-        spec.seed = seed;
-    }
-    if let Some(d) = &args.duration {
-        let d = halfwire::units::parse_time(d).map_err(|e| Failure::input(format!("--duration: {e}")))?;
-        if d <= spec.warmup {
-            return Err(Failure::input(format!(
-                "--duration {d} must be longer than the scenario's warmup ({})",
-                spec.warmup
-            )));
-        }
-        spec.duration = d;
-    }
+    super::run::apply_overrides(&mut spec, args.seed, args.duration.as_deref())?;
     let external: Vec<usize> = (0..spec.nodes.len()).filter(|&i| spec.nodes[i].external).collect();
     if external.is_empty() {
         return Err(Failure::input(format!(

@@ -73,11 +73,12 @@ pub fn parse_window(s: &str, duration: Picos) -> Result<(Picos, Picos), Failure>
     Ok((a, b.min(duration)))
 }
 
-fn apply_overrides(spec: &mut Spec, args: &RunArgs) -> Result<(), Failure> {
-    if let Some(seed) = args.seed {
+/// `--seed` and `--duration` (shared by `run` and `cosim`).
+pub fn apply_overrides(spec: &mut Spec, seed: Option<u64>, duration: Option<&str>) -> Result<(), Failure> {
+    if let Some(seed) = seed {
         spec.seed = seed;
     }
-    if let Some(d) = &args.duration {
+    if let Some(d) = duration {
         let d = units::parse_time(d).map_err(|e| Failure::input(format!("--duration: {e}")))?;
         if d <= spec.warmup {
             return Err(Failure::input(format!(
@@ -99,7 +100,7 @@ pub fn run(args: RunArgs) -> Result<u8, Failure> {
             external.join(", ")
         );
     }
-    apply_overrides(&mut spec, &args)?;
+    apply_overrides(&mut spec, args.seed, args.duration.as_deref())?;
     if let Some(n) = args.replications {
         return replicated(&spec, n, args.format);
     }

@@ -26,7 +26,7 @@ pub enum ClientMessage {
     Transmit { at_ps: u64, frames: Vec<FrameRequest> },
     Timer { at_ps: u64, tag: u64 },
     WatchLine { on: bool },
-    Wait,
+    Wait {},
 }
 
 /// One frame of a `transmit`.
@@ -78,7 +78,7 @@ fn check_hex(h: &Option<String>) -> Result<(), String> {
 pub fn to_intent(spec: &Spec, node: NodeId, msg: ClientMessage) -> Result<Option<Intent>, String> {
     Ok(Some(match msg {
         ClientMessage::Hello { .. } => return Err("hello sent twice".into()),
-        ClientMessage::Wait => return Ok(None),
+        ClientMessage::Wait {} => return Ok(None),
         ClientMessage::Timer { at_ps, tag } => Intent::Timer { at: Picos(at_ps), tag },
         ClientMessage::WatchLine { on } => Intent::WatchLine(on),
         ClientMessage::Transmit { at_ps, frames } => {
@@ -122,14 +122,10 @@ fn default_destination(spec: &Spec, node: NodeId) -> NodeId {
 /// The stand-in contents of a frame whose sender gave none: `bytes` bytes
 /// of a pattern fixed by the frame's identity.
 pub fn stand_in_hex(occupancy: u64, start_ps: u64, bytes: u64) -> String {
-    let mut z = occupancy.rotate_left(17) ^ start_ps;
-    (0..bytes)
-        .map(|_| {
-            z = z.wrapping_add(0x9e37_79b9_7f4a_7c15);
-            let mut x = z;
-            x = (x ^ (x >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
-            x = (x ^ (x >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
-            format!("{:02x}", (x ^ (x >> 31)) as u8)
+    let base = occupancy.rotate_left(17) ^ start_ps;
+    (1..=bytes)
+        .map(|k| {
+            format!("{:02x}", crate::engine::rng::mix64(base.wrapping_add(k.wrapping_mul(0x9e37_79b9_7f4a_7c15))) as u8)
         })
         .collect()
 }
@@ -244,7 +240,7 @@ mod tests {
             parse_line(r#"{"type":"hello","protocol":"halfwire-cosim/1","node":"s1"}"#).unwrap(),
             ClientMessage::Hello { protocol: PROTOCOL.into(), node: "s1".into() }
         );
-        assert_eq!(parse_line(r#"{"type":"wait"}"#).unwrap(), ClientMessage::Wait);
+        assert_eq!(parse_line(r#"{"type":"wait"}"#).unwrap(), ClientMessage::Wait {});
         assert_eq!(
             parse_line(r#"{"type":"timer","at_ps":5,"tag":1}"#).unwrap(),
             ClientMessage::Timer { at_ps: 5, tag: 1 }

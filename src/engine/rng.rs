@@ -40,7 +40,12 @@ pub fn stream(seed: u64, node: &str, purpose: &str) -> Stream {
 /// Seed of replication `k` derived from a base seed (SplitMix64 finaliser),
 /// so replications are independent but reproducible.
 pub fn replication_seed(base: u64, k: u64) -> u64 {
-    let mut z = base.wrapping_add(k.wrapping_mul(0x9e37_79b9_7f4a_7c15));
+    mix64(base.wrapping_add(k.wrapping_mul(0x9e37_79b9_7f4a_7c15)))
+}
+
+/// The SplitMix64 output function (Steele, Lea and Flood, 2014): a 64-bit
+/// value scrambled so that nearby inputs give unrelated outputs.
+pub fn mix64(mut z: u64) -> u64 {
     z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
     z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
     z ^ (z >> 31)

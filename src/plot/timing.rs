@@ -295,58 +295,37 @@ fn node_lane(
 }
 
 fn legend(svg: &mut Svg, y: f64) {
-    let mut x = LEFT;
-    let mut item = |svg: &mut Svg, swatch: &str, label: &str| {
-        svg.raw(&swatch.replace("{x}", &format!("{x:.1}")).replace("{y}", &format!("{:.1}", y - 9.0)));
-        svg.text(x + 24.0, y + 1.0, label, r#"font-size="11""#);
-        x += 30.0 + text_width(label, 11.0);
-    };
-    item(
-        svg,
-        &format!(r#"<rect x="{{x}}" y="{{y}}" width="18" height="12" fill="{ENABLE_FILL}" stroke="{ENABLE_STROKE}"/>"#),
-        "enable asserted",
-    );
-    item(
-        svg,
-        r##"<rect x="{x}" y="{y}" width="18" height="12" fill="url(#tail)" stroke="#a9bfdc" stroke-dasharray="2,2"/>"##,
-        "disable time (output turning off)",
-    );
-    item(svg, &format!(r#"<rect x="{{x}}" y="{{y}}" width="18" height="12" fill="{DATA_FILL}"/>"#), "data frame");
-    item(svg, &format!(r#"<rect x="{{x}}" y="{{y}}" width="18" height="12" fill="{CONTROL_FILL}"/>"#), "control frame");
-    item(
-        svg,
-        &format!(
-            r#"<rect x="{{x}}" y="{{y}}" width="18" height="12" fill="white" stroke="{CONTENTION}" stroke-width="2"/>"#
-        ),
-        "corrupted at a receiver",
-    );
-    let y2 = y + 22.0;
-    let mut x = LEFT;
-    let mut item2 = |svg: &mut Svg, swatch: &str, label: &str| {
-        svg.raw(&swatch.replace("{x}", &format!("{x:.1}")).replace("{y}", &format!("{:.1}", y2 - 9.0)));
-        svg.text(x + 24.0, y2 + 1.0, label, r#"font-size="11""#);
-        x += 30.0 + text_width(label, 11.0);
-    };
-    item2(
-        svg,
-        &format!(
-            r#"<g transform="translate({{x}} {{y}})"><path d="M0,12 L4,4 L8,12 Z" fill="{ENABLE_EDGE}"/><path d="M10,0 L14,8 L18,0 Z" fill="{RELEASE_EDGE}"/></g>"#
-        ),
-        "enable / release edge",
-    );
-    item2(
-        svg,
-        r#"<rect x="{x}" y="{y}" width="18" height="12" fill="url(#float)"/>"#,
-        "receiver input floating (no driver, no failsafe)",
-    );
-    item2(
-        svg,
-        &format!(r#"<rect x="{{x}}" y="{{y}}" width="18" height="12" fill="{CONTENTION}" opacity="0.8"/>"#),
-        "two drivers at once (contention)",
-    );
-    item2(
-        svg,
-        r##"<rect x="{x}" y="{y}" width="18" height="12" fill="none" stroke="#333"/>"##,
-        "gap: last driver off → next enable, with its length",
-    );
+    let rect = |attrs: &str| format!(r#"<rect x="{{x}}" y="{{y}}" width="18" height="12" {attrs}/>"#);
+    let rows: [Vec<(String, &str)>; 2] = [
+        vec![
+            (rect(&format!(r#"fill="{ENABLE_FILL}" stroke="{ENABLE_STROKE}""#)), "enable asserted"),
+            (
+                rect(r##"fill="url(#tail)" stroke="#a9bfdc" stroke-dasharray="2,2""##),
+                "disable time (output turning off)",
+            ),
+            (rect(&format!(r#"fill="{DATA_FILL}""#)), "data frame"),
+            (rect(&format!(r#"fill="{CONTROL_FILL}""#)), "control frame"),
+            (rect(&format!(r#"fill="white" stroke="{CONTENTION}" stroke-width="2""#)), "corrupted at a receiver"),
+        ],
+        vec![
+            (
+                format!(
+                    r#"<g transform="translate({{x}} {{y}})"><path d="M0,12 L4,4 L8,12 Z" fill="{ENABLE_EDGE}"/><path d="M10,0 L14,8 L18,0 Z" fill="{RELEASE_EDGE}"/></g>"#
+                ),
+                "enable / release edge",
+            ),
+            (rect(r#"fill="url(#float)""#), "receiver input floating (no driver, no failsafe)"),
+            (rect(&format!(r#"fill="{CONTENTION}" opacity="0.8""#)), "two drivers at once (contention)"),
+            (rect(r##"fill="none" stroke="#333""##), "gap: last driver off → next enable, with its length"),
+        ],
+    ];
+    for (k, row) in rows.iter().enumerate() {
+        let ry = y + 22.0 * k as f64;
+        let mut x = LEFT;
+        for (swatch, label) in row {
+            svg.raw(&swatch.replace("{x}", &format!("{x:.1}")).replace("{y}", &format!("{:.1}", ry - 9.0)));
+            svg.text(x + 24.0, ry + 1.0, label, r#"font-size="11""#);
+            x += 30.0 + text_width(label, 11.0);
+        }
+    }
 }

@@ -359,10 +359,7 @@ fn symbol_level(encoding: Encoding, s: u64, node: usize, k: u64) -> Level {
 
 /// SplitMix64 of (start, node, index).
 fn pattern(s: u64, node: usize, k: u64) -> u64 {
-    let mut z = s ^ (node as u64).rotate_left(40) ^ k.wrapping_mul(0x9e37_79b9_7f4a_7c15);
-    z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
-    z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
-    z ^ (z >> 31)
+    crate::engine::rng::mix64(s ^ (node as u64).rotate_left(40) ^ k.wrapping_mul(0x9e37_79b9_7f4a_7c15))
 }
 
 #[cfg(test)]
