@@ -29,6 +29,8 @@ if ! command -v slurmctld >/dev/null || ! command -v munged >/dev/null; then
     DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends slurm-wlm munge >/dev/null
 fi
 [ -x "$HALFWIRE" ] || cargo build --release --quiet
+# The array tasks run in another folder: name the binary absolutely.
+HALFWIRE=$(realpath "$HALFWIRE")
 slurmctld -V
 
 WORK=$(mktemp -d /tmp/halfwire-slurm.XXXXXX)
@@ -119,7 +121,11 @@ JOB
 chmod +x "$WORK/shard.sh"
 echo "== sbatch --array=0-$((SHARDS - 1)) --wait"
 start=$SECONDS
-sbatch --array=0-$((SHARDS - 1)) --wait --output="$WORK/task-%a.log" --chdir="$WORK" "$WORK/shard.sh"
+if ! sbatch --array=0-$((SHARDS - 1)) --wait --output="$WORK/task-%a.log" --chdir="$WORK" "$WORK/shard.sh"; then
+    echo "slurm-demo: the job array failed; its tasks' logs:" >&2
+    cat "$WORK"/task-*.log >&2 || true
+    exit 1
+fi
 echo "   job array done in $((SECONDS - start)) s"
 for i in $(seq 0 $((SHARDS - 1))); do
     echo "   task $i: $(grep -h 'shard' "$WORK/task-$i.log" | head -1) ($(wc -l <"$WORK/shard-$i.jsonl") rows)"
