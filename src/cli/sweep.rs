@@ -143,6 +143,15 @@ pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
     for p in out_path.into_iter().chain(args.csv.as_ref()).chain(args.plot.plot.as_ref()) {
         check_writable(p, &[args.file.as_path()])?;
     }
+    if let Some(p) = &args.out {
+        if std::fs::metadata(p).is_ok_and(|m| m.len() > 0) {
+            return Err(Failure::input(format!(
+                "--out {}: the file already holds rows; continue that sweep with --resume {}, or choose another file",
+                p.display(),
+                p.display()
+            )));
+        }
+    }
     let mut done: HashSet<RunId> = HashSet::new();
     if let Some(path) = &args.resume {
         if path.exists() {
