@@ -244,7 +244,10 @@ fn bad_input_is_an_error_with_exit_status_2() {
     ok(&halfwire(&["sweep", DEMO, "--vary=nodes.count=4,5", "--out", b.to_str().unwrap()]));
     fails(&["merge", a.to_str().unwrap(), b.to_str().unwrap()], "are from different sweeps");
     fails(&["sweep", DEMO, "--vary=nodes.count=4,5", "--resume", a.to_str().unwrap()], "holds rows of another sweep");
-    fails(&["sweep", DEMO, COUNT, "--out", a.to_str().unwrap()], "already holds rows; continue that sweep with --resume");
+    fails(
+        &["sweep", DEMO, COUNT, "--out", a.to_str().unwrap()],
+        "already holds rows; continue that sweep with --resume",
+    );
     std::fs::write(&b, "not json\n").unwrap();
     fails(&["merge", b.to_str().unwrap()], "b.jsonl:1:");
 }
