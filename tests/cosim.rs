@@ -91,6 +91,24 @@ fn an_external_slave_driven_by_the_example_client_matches_the_built_in_slave() {
 }
 
 #[test]
+fn with_several_frames_per_poll_run_ignores_the_external_mark_and_cosim_still_matches() {
+    // Two 12-byte replies per poll are still on the wire when the master's 300 µs reply timeout expires.
+    let text = std::fs::read_to_string(DEMO).unwrap().replace("max_per_poll = 1", "max_per_poll = 2");
+    let dir = tempfile::tempdir().unwrap();
+    let marked = dir.path().join("marked.toml");
+    std::fs::write(&marked, &text).unwrap();
+    let plain = dir.path().join("plain.toml");
+    std::fs::write(&plain, text.replace("external = true\n", "")).unwrap();
+    let want = reference(plain.to_str().unwrap());
+    assert_eq!(reference(marked.to_str().unwrap()), want, "run treats an external node as built in");
+    let s = start(marked.to_str().unwrap(), &[]);
+    assert!(run_example(s.port, "gate02", &[]).success());
+    let (code, report, err) = end(s);
+    assert_eq!(code, Some(0), "{err}");
+    assert_eq!(without_run(report), want);
+}
+
+#[test]
 fn a_python_client_that_sleeps_at_random_gives_the_same_report_every_time() {
     let mut reports = Vec::new();
     for seed in ["1", "2"] {
@@ -222,6 +240,18 @@ fn unknown_messages_and_times_in_the_past_are_protocol_errors() {
     assert!(error["message"].as_str().unwrap().contains("is in the past"), "{error}");
     assert_eq!(code, Some(1));
     assert!(has_fault(&report, "is in the past"));
+    // Two transmissions at once from one driver.
+    let (error, code, _, _) = fault_case(&[], |c| {
+        let b = c.until_frame();
+        let t = b["t_ps"].as_u64().unwrap() + 40_000_000;
+        let tx =
+            json!({ "type": "transmit", "at_ps": t, "frames": [{ "kind": "empty-reply", "bits": 16 }] }).to_string();
+        c.send(&tx);
+        c.send(&tx);
+        c.send(r#"{"type":"wait"}"#);
+    });
+    assert!(error["message"].as_str().unwrap().contains("keeps its enable until"), "{error}");
+    assert_eq!(code, Some(1));
 }
 
 #[test]

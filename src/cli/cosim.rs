@@ -138,10 +138,12 @@ async fn session(
         let _ = stream.set_nodelay(true);
         let (mut reader, writer) = gateway::split(stream);
         let mut first = String::new();
-        let hello = tokio::time::timeout(answer, reader.read_line(&mut first)).await;
+        // A hello is awaited no longer than the answer time-out or the connect deadline.
+        let hello_deadline = (tokio::time::Instant::now() + answer).min(deadline);
+        let hello = tokio::time::timeout_at(hello_deadline, reader.read_line(&mut first)).await;
         let client = gateway::spawn_client(reader, writer);
         let outcome = match hello {
-            Err(_) => Err("no hello within --answer-timeout".to_owned()),
+            Err(_) => Err("no hello within --answer-timeout (or before --connect-timeout ran out)".to_owned()),
             Ok(Err(e)) => Err(format!("the connection failed: {e}")),
             Ok(Ok(_)) => match cosim::parse_line(&first) {
                 Ok(ClientMessage::Hello { protocol, node }) => check_hello(&spec, &clients, &protocol, &node),
@@ -174,10 +176,11 @@ async fn session(
     }
     for &n in &external {
         if clients[n].is_none() && !abort {
-            let message = format!("{} did not connect within --connect-timeout", spec.nodes[n].name);
-            eprintln!("halfwire cosim: {message}");
-            early.push(EarlyFault { node: Some(spec.nodes[n].name.clone()), message });
+            eprintln!("halfwire cosim: {} did not connect within --connect-timeout", spec.nodes[n].name);
+            // Under silence the run records it as the node's fault at its first event.
             if on_fault == OnFault::Abort {
+                let message = format!("{} did not connect within --connect-timeout", spec.nodes[n].name);
+                early.push(EarlyFault { node: Some(spec.nodes[n].name.clone()), message });
                 abort = true;
             }
         }

@@ -123,7 +123,9 @@ impl TcpGateway {
 impl Gateway for TcpGateway {
     fn exchange(&mut self, batch: &Batch) -> Result<Vec<Intent>, String> {
         let node = batch.node;
-        let Some(client) = &self.clients[node] else { return Err("the client is not connected".into()) };
+        let Some(client) = &self.clients[node] else {
+            return Err("the node did not connect within --connect-timeout".into());
+        };
         let _ = client.out.send(Outgoing::Line(cosim::line(&cosim::events_message(&self.spec, batch))));
         let started = Instant::now();
         let deadline = started + self.answer_timeout;

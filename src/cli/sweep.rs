@@ -177,8 +177,14 @@ pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
             }
         }
     }
-    let runs: Vec<RunId> =
-        (0..plan.runs()).filter(|&n| shard.takes(n)).map(|n| plan.run_id(n)).filter(|r| !done.contains(r)).collect();
+    // The runs of this share, produced lazily: memory does not grow with the sweep.
+    let (total_runs, per_point) = (plan.runs(), plan.replications());
+    let share = move || {
+        (0..total_runs)
+            .filter(move |&n| shard.takes(n))
+            .map(move |n| RunId { point: n / per_point, replication: n % per_point })
+    };
+    let todo = share().filter(|r| !done.contains(r)).count();
     if let Some(note) = &shard_note {
         eprintln!("halfwire sweep: {note}");
     }
@@ -188,7 +194,7 @@ pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
         plan.id(),
         plan.points(),
         plan.replications(),
-        runs.len(),
+        todo,
         if skipped > 0 { format!(" ({skipped} already done)") } else { String::new() }
     );
     let sink = match out_path {
@@ -199,7 +205,7 @@ pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
         Some(p) => Some(Csv::append(p)?),
         None => None,
     };
-    let total = runs.len() as u64;
+    let total = todo as u64;
     let plan = Arc::new(plan);
     // A plot of a sweep printed to stdout needs the rows kept; with a file they are read back.
     let keep = args.plot.plot.is_some() && out_path.is_none();
@@ -223,6 +229,7 @@ pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
                 }
             }
         });
+        let runs = share().filter(|r| !done.contains(r));
         let outcome = runner::execute(plan.clone(), runs, jobs, control.clone(), &mut observer).await;
         signals.abort();
         outcome

@@ -18,6 +18,9 @@ use crate::units::Picos;
 /// The protocol version both sides name in the handshake.
 pub const PROTOCOL: &str = "halfwire-cosim/1";
 
+/// The largest control frame a node may send, in data bits.
+pub const MAX_CONTROL_BITS: u64 = 1 << 20;
+
 /// A message from a node.
 #[derive(Clone, Debug, PartialEq, Deserialize)]
 #[serde(tag = "type", rename_all = "snake_case", deny_unknown_fields)]
@@ -93,7 +96,10 @@ pub fn to_intent(spec: &Spec, node: NodeId, msg: ClientMessage) -> Result<Option
                     out.push(FrameIntent::Data { payload_hex: f.payload_hex });
                     continue;
                 }
-                let bits = f.bits.filter(|&b| b > 0).ok_or_else(|| format!("a {} frame needs \"bits\" ≥ 1", f.kind))?;
+                let bits = f
+                    .bits
+                    .filter(|b| (1..=MAX_CONTROL_BITS).contains(b))
+                    .ok_or_else(|| format!("a {} frame needs \"bits\" from 1 to {MAX_CONTROL_BITS}", f.kind))?;
                 let to = match &f.to {
                     Some(name) => spec
                         .nodes

@@ -111,6 +111,8 @@ pub struct Cosim {
     busy_until: Vec<Picos>,
     line_count: Vec<u32>,
     payloads: HashMap<(u64, u64), String>,
+    /// Payloads to drop after the next exchange (their frames are fully delivered).
+    done_payloads: Vec<(u64, u64)>,
     abort_on_fault: bool,
     pub(crate) aborted: Option<Picos>,
     pub(crate) faults: Vec<Fault>,
@@ -138,6 +140,7 @@ impl Simulation {
     pub fn with_gateway(spec: &Spec, gateway: Box<dyn Gateway>, abort_on_fault: bool) -> Self {
         let mut sim = Simulation::new(spec);
         let n = spec.nodes.len();
+        sim.world.externally_driven = spec.nodes.iter().map(|n| n.external).collect();
         sim.cosim = Some(Box::new(Cosim {
             gateway,
             external: spec.nodes.iter().map(|n| n.external).collect(),
@@ -146,6 +149,7 @@ impl Simulation {
             busy_until: vec![Picos::ZERO; n],
             line_count: vec![0; n],
             payloads: HashMap::new(),
+            done_payloads: Vec::new(),
             abort_on_fault,
             aborted: None,
             faults: Vec::new(),
@@ -193,6 +197,14 @@ impl Simulation {
             if !c.silent[node] {
                 c.pending.push((node, notice));
             }
+        }
+    }
+
+    /// A frame's last delivery is done: its payload is no longer needed once
+    /// the pending batch that shows it has been sent.
+    pub(crate) fn forget_payload(&mut self, occupancy: u64, start: u64) {
+        if let Some(c) = &mut self.cosim {
+            c.done_payloads.push((occupancy, start));
         }
     }
 
@@ -251,6 +263,9 @@ impl Simulation {
             }
             i = j;
         }
+        for key in c.done_payloads.drain(..) {
+            c.payloads.remove(&key);
+        }
         self.cosim = Some(c);
     }
 
@@ -271,7 +286,13 @@ impl Simulation {
                 if at < now {
                     return Err(past("transmit", at));
                 }
-                let free = self.world.driver_free_at(node);
+                if at > self.world.spec.duration {
+                    return Err(format!(
+                        "transmit at {} ps lies beyond the end of the run ({} ps)",
+                        at.0, self.world.spec.duration.0
+                    ));
+                }
+                let free = c.busy_until[node].max(self.world.driver_free_at(node));
                 if at < free {
                     return Err(format!(
                         "transmit at {} ps: the driver's previous transmission keeps its enable until {} ps",

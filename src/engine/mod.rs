@@ -336,6 +336,7 @@ impl Simulation {
             occupancy: f.occupancy,
         };
         if self.is_external(to) {
+            let done = self.world.frames[idx as usize].remaining == 0;
             let notice = external::Notice::Frame {
                 from: f.src,
                 kind: f.kind,
@@ -347,6 +348,9 @@ impl Simulation {
                 occupancy: f.occupancy,
             };
             self.notify(to, notice);
+            if done {
+                self.forget_payload(f.occupancy, f.s);
+            }
             return;
         }
         self.scheme.on_receive(&mut self.world, &rx);

@@ -119,6 +119,8 @@ pub struct World {
     last_release: Vec<u64>,
     /// Nodes that asked to hear line busy/idle changes (co-simulation).
     pub(crate) line_watch: Vec<bool>,
+    /// Nodes driven by an external process in this run (co-simulation with a gateway).
+    pub(crate) externally_driven: Vec<bool>,
 }
 
 impl World {
@@ -175,6 +177,7 @@ impl World {
             tx: None,
             last_release: vec![0; n],
             line_watch: vec![false; n],
+            externally_driven: vec![false; n],
             spec,
         }
     }
@@ -378,6 +381,12 @@ impl World {
         }
         self.tx = Some(tx);
         Picos(s)
+    }
+
+    /// Is `node` driven by an external process in this run? (Without a
+    /// co-simulation gateway, external nodes follow the built-in rules.)
+    pub fn is_externally_driven(&self, node: NodeId) -> bool {
+        self.externally_driven[node]
     }
 
     /// Bus id of the transmission being assembled.

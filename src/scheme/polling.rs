@@ -109,7 +109,7 @@ impl Polling {
         // is certain to fire first: arm it now. Otherwise it is armed, when
         // needed, at the slave's decision.
         self.poll_seq += 1;
-        self.awaiting_external = w.spec().nodes[slave].external;
+        self.awaiting_external = w.is_externally_driven(slave);
         if self.awaiting_external {
             // An external slave's answer is not known in advance: the timeout
             // is armed now and ignored if the reply arrives in time.
@@ -222,7 +222,8 @@ impl AccessScheme for Polling {
     }
 
     fn on_receive(&mut self, w: &mut World, rx: &Reception) {
-        if rx.kind != FrameKind::Poll {
+        // Only slaves answer polls (an external node could address one to the master).
+        if rx.kind != FrameKind::Poll || rx.at == self.spec.master {
             return;
         }
         if rx.corrupted {
@@ -243,7 +244,8 @@ impl AccessScheme for Polling {
 
     fn on_external_tx(&mut self, w: &mut World, slave: NodeId, tx: &TxTimes, kinds: &[FrameKind]) {
         let now = w.now();
-        if w.in_window(now) {
+        let is_reply = kinds.iter().all(|k| matches!(k, FrameKind::Data | FrameKind::EmptyReply));
+        if is_reply && w.in_window(now) {
             if kinds.contains(&FrameKind::Data) {
                 self.data_replies += 1;
             } else if kinds.contains(&FrameKind::EmptyReply) {
@@ -251,7 +253,8 @@ impl AccessScheme for Polling {
             }
         }
         let master = self.spec.master;
-        if !self.awaiting_external || self.spec.order[self.idx] != slave {
+        let is_reply = kinds.iter().all(|k| matches!(k, FrameKind::Data | FrameKind::EmptyReply));
+        if !is_reply || !self.awaiting_external || self.spec.order[self.idx] != slave {
             return; // not an answer to the poll the master waits on
         }
         if w.seen_at(slave, master, tx.first_bit) > self.deadline {

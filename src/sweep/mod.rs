@@ -23,8 +23,11 @@ pub use axis::{Axis, AxisValue, Literal};
 /// Version tag of sweep rows.
 pub const SCHEMA: &str = "halfwire-sweep/1";
 
-/// Most points one sweep may have.
-pub const MAX_POINTS: u64 = 10_000_000;
+/// Most points one sweep may have (each is validated before any run).
+pub const MAX_POINTS: u64 = 1_000_000;
+
+/// Most runs (points × replications) one sweep may have.
+pub const MAX_RUNS: u64 = 100_000_000;
 
 /// How several axes combine.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -117,9 +120,14 @@ impl Plan {
                 Some(n as u64)
             }
         };
-        let points = points
-            .filter(|&n| n <= MAX_POINTS)
-            .ok_or_else(|| args(format!("the sweep has more than {MAX_POINTS} points")))?;
+        let points = points.filter(|&n| n <= MAX_POINTS).ok_or_else(|| {
+            args(format!("the sweep has more than {MAX_POINTS} points: split it into several sweeps"))
+        })?;
+        if points * replications > MAX_RUNS {
+            return Err(args(format!(
+                "the sweep has {points} points × {replications} replications, more than {MAX_RUNS} runs: split it"
+            )));
+        }
         // The scenario as given must be valid before any point is.
         crate::scenario::parse_str(text, file).map_err(PlanError::Scenario)?;
         let id = sweep_id(text, &axes, mode, replications, &overrides);

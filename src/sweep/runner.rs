@@ -92,11 +92,11 @@ pub fn simulate_run(plan: &Plan, run: RunId, abandon: &AtomicBool) -> Result<Opt
     Ok(Some(Row::from_run(plan, run, &spec, &report)))
 }
 
-/// Run `runs` (in the order given) on at most `jobs` blocking workers of
-/// the current tokio runtime.
+/// Run `runs` (in the order given, taken lazily) on at most `jobs` blocking
+/// workers of the current tokio runtime.
 pub async fn execute(
     plan: Arc<Plan>,
-    runs: Vec<RunId>,
+    runs: impl IntoIterator<Item = RunId>,
     jobs: usize,
     control: Arc<Control>,
     observer: &mut dyn Observer,
@@ -148,7 +148,7 @@ pub async fn execute(
 /// the sweep on it.
 pub fn execute_blocking(
     plan: Arc<Plan>,
-    runs: Vec<RunId>,
+    runs: impl IntoIterator<Item = RunId>,
     jobs: usize,
     control: Arc<Control>,
     observer: &mut dyn Observer,

@@ -60,7 +60,18 @@ pub fn from_env(var: impl Fn(&str) -> Option<String>, count: Option<u64>) -> Res
         let min = num("SLURM_ARRAY_TASK_MIN")?;
         let max = num("SLURM_ARRAY_TASK_MAX")?;
         let step = num("SLURM_ARRAY_TASK_STEP")?.unwrap_or(1).max(1);
-        let (index, total, how) = match (min, max, num("SLURM_ARRAY_TASK_COUNT")?) {
+        let count_var = num("SLURM_ARRAY_TASK_COUNT")?;
+        if let (Some(min), Some(max), Some(n)) = (min, max, count_var) {
+            if max >= min && (max - min) / step + 1 != n {
+                return Err(format!(
+                    "the Slurm array has gaps (SLURM_ARRAY_TASK_COUNT={n}, but {min}..={max} step {step} holds {}): \
+                     submit a contiguous array such as --array=0-{}, or give --shard I/N",
+                    (max - min) / step + 1,
+                    n.saturating_sub(1)
+                ));
+            }
+        }
+        let (index, total, how) = match (min, max, count_var) {
             (Some(min), Some(max), _) if id >= min && max >= min => (
                 (id - min) / step,
                 (max - min) / step + 1,
@@ -123,5 +134,13 @@ mod tests {
         assert_eq!(from_env(&e, Some(5)).unwrap().unwrap().shard, Shard { index: 4, count: 5 });
         assert!(from_env(&e, Some(4)).unwrap_err().contains("out of range"));
         assert_eq!(from_env(env(&[]), None).unwrap(), None);
+        // `--array=1,3,4`: three tasks spread over 1..=4.
+        let gaps = env(&[
+            ("SLURM_ARRAY_TASK_ID", "3"),
+            ("SLURM_ARRAY_TASK_MIN", "1"),
+            ("SLURM_ARRAY_TASK_MAX", "4"),
+            ("SLURM_ARRAY_TASK_COUNT", "3"),
+        ]);
+        assert!(from_env(gaps, None).unwrap_err().contains("has gaps"));
     }
 }

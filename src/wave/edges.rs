@@ -235,8 +235,9 @@ impl<S: WaveSink> WaveModel<S> {
     pub fn finish(mut self) -> Result<S, String> {
         self.advance(u64::MAX)?;
         if !self.begun {
+            // Nothing changed inside the window: it shows the state at its start.
             self.begun = true;
-            self.sink.begin(self.window.0, &self.values)?;
+            self.sink.begin(self.window.0, &self.shown)?;
         }
         self.sink.end(self.window.1)?;
         Ok(self.sink)
@@ -400,5 +401,25 @@ mod tests {
         // Type-2 receivers read the idle line as low (a failsafe threshold): never x.
         assert_eq!(rec.rx[1].first(), Some(&(0, Level::Low)));
         assert_eq!(rec.rx[1].last(), Some(&(b + shift, Level::Low)));
+    }
+
+    #[test]
+    fn a_window_without_changes_shows_the_state_at_its_start() {
+        let spec = crate::scenario::parse_str(include_str!("../../scenarios/fruit-grader.toml"), "fruit").unwrap();
+        let line = LineModel::new(&spec);
+        let n = spec.nodes.len();
+        let ev = |t, kind| BusEvent { t, node: 0, kind };
+        // Inside the disable time: the enable is released, the output still drives the idle level.
+        let window = (1_108_000, 1_110_000);
+        let mut m = WaveModel::new(&spec, &line, window, Recording::new(n, window));
+        m.feed(&[
+            ev(1_007_000, K::FrameStart { frame: "poll", to: 1 }),
+            ev(1_107_000, K::FrameEnd { frame: "poll", to: 1, corrupted: false }),
+            ev(1_000_000, K::DriverEnable { dominant: false }),
+            ev(1_107_000, K::DriverRelease),
+            ev(1_114_000, K::DriverOff),
+        ]);
+        let rec = m.finish().unwrap();
+        assert_eq!(rec.line[0], [(window.0, Level::High)], "not the state after the run (off)");
     }
 }
