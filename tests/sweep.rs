@@ -18,6 +18,18 @@ fn ok(out: &std::process::Output) -> String {
     String::from_utf8(out.stderr.clone()).unwrap()
 }
 
+/// The complete rows of a file (newline-terminated lines) and whether a
+/// partial last line follows them, as SIGKILL can leave in the middle of a write.
+fn complete_rows(path: &Path) -> (Vec<Value>, bool) {
+    let text = std::fs::read_to_string(path).unwrap_or_default();
+    let complete = &text[..text.rfind('\n').map_or(0, |i| i + 1)];
+    let rows = complete
+        .lines()
+        .map(|l| serde_json::from_str(l).unwrap_or_else(|e| panic!("a complete row does not parse ({e}): {l:.200}")))
+        .collect();
+    (rows, complete.len() < text.len())
+}
+
 fn rows(path: &Path) -> Vec<Value> {
     std::fs::read_to_string(path)
         .unwrap()
@@ -199,16 +211,13 @@ fn a_sweep_killed_mid_way_keeps_its_rows_and_resumes_to_the_same_result() {
         .spawn()
         .unwrap();
     let deadline = Instant::now() + Duration::from_secs(60);
-    loop {
-        let n = std::fs::read_to_string(&rows_file).map(|t| t.lines().count()).unwrap_or(0);
-        if n >= 2 || Instant::now() > deadline {
-            break;
-        }
+    while complete_rows(&rows_file).0.len() < 2 && Instant::now() < deadline {
         std::thread::sleep(Duration::from_millis(5));
     }
     child.kill().unwrap(); // SIGKILL
     child.wait().unwrap();
-    let kept = rows(&rows_file);
+    // Every completed row is intact; a row being written at the kill may be cut short.
+    let (kept, _partial) = complete_rows(&rows_file);
     assert!((2..5).contains(&kept.len()), "killed mid-way: {} rows", kept.len());
     // A crash in the middle of writing leaves a partial last line: resume drops it.
     let mut text = std::fs::read_to_string(&rows_file).unwrap();
@@ -264,7 +273,7 @@ fn ctrl_c_stops_launching_and_leaves_complete_rows() {
         .spawn()
         .unwrap();
     let deadline = Instant::now() + Duration::from_secs(60);
-    while std::fs::read_to_string(&rows_file).map(|t| t.lines().count()).unwrap_or(0) < 1 && Instant::now() < deadline {
+    while complete_rows(&rows_file).0.is_empty() && Instant::now() < deadline {
         std::thread::sleep(Duration::from_millis(5));
     }
     // SIGINT, as Ctrl-C at a terminal sends.
