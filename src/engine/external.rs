@@ -105,7 +105,6 @@ pub struct Fault {
 #[derive(Debug)]
 pub struct Cosim {
     gateway: Box<dyn Gateway>,
-    external: Vec<bool>,
     silent: Vec<bool>,
     pending: Vec<(NodeId, Notice)>,
     busy_until: Vec<Picos>,
@@ -121,8 +120,8 @@ pub struct Cosim {
 
 impl Cosim {
     pub(crate) fn start(&mut self, spec: &Spec) {
-        for n in 0..spec.nodes.len() {
-            if self.external[n] {
+        for (n, node) in spec.nodes.iter().enumerate() {
+            if node.external {
                 self.pending.push((n, Notice::Start));
             }
         }
@@ -143,7 +142,6 @@ impl Simulation {
         sim.world.externally_driven = spec.nodes.iter().map(|n| n.external).collect();
         sim.cosim = Some(Box::new(Cosim {
             gateway,
-            external: spec.nodes.iter().map(|n| n.external).collect(),
             silent: vec![false; n],
             pending: Vec::new(),
             busy_until: vec![Picos::ZERO; n],
@@ -189,7 +187,7 @@ impl Simulation {
     }
 
     pub(crate) fn is_external(&self, node: NodeId) -> bool {
-        self.cosim.as_ref().is_some_and(|c| c.external[node])
+        self.world.is_externally_driven(node)
     }
 
     pub(crate) fn notify(&mut self, node: NodeId, notice: Notice) {
@@ -212,7 +210,7 @@ impl Simulation {
         let Some(c) = &mut self.cosim else { return };
         let before = c.line_count[node];
         c.line_count[node] = if busy { before + 1 } else { before.saturating_sub(1) };
-        if (before == 0) != (c.line_count[node] == 0) && self.world.line_watch[node] {
+        if (before == 0) != (c.line_count[node] == 0) && self.world.line_watchers.contains(&node) {
             self.notify(node, Notice::Line { busy });
         }
     }
@@ -255,7 +253,7 @@ impl Simulation {
                     c.gateway.fault(node, now, &message);
                     c.faults.push(Fault { node, at: now, message });
                     c.silent[node] = true;
-                    self.world.line_watch[node] = false;
+                    self.world.watch_line(node, false);
                     if c.abort_on_fault {
                         c.aborted = Some(now);
                     }
@@ -281,7 +279,7 @@ impl Simulation {
                 }
                 self.world.queue.push(at, super::Event::External { node: node as u32, tag });
             }
-            Intent::WatchLine(on) => self.world.line_watch[node] = on,
+            Intent::WatchLine(on) => self.world.watch_line(node, on),
             Intent::Transmit { at, frames } => {
                 if at < now {
                     return Err(past("transmit", at));

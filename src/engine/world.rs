@@ -117,8 +117,9 @@ pub struct World {
     /// Per node: when its latest transmission releases the enable. A
     /// transceiver has one driver, so a new transmission may not start earlier.
     last_release: Vec<u64>,
-    /// Nodes that asked to hear line busy/idle changes (co-simulation).
-    pub(crate) line_watch: Vec<bool>,
+    /// Nodes that asked to hear line busy/idle changes (co-simulation);
+    /// empty in every other run, so transmissions pay nothing for it.
+    pub(crate) line_watchers: Vec<NodeId>,
     /// Nodes driven by an external process in this run (co-simulation with a gateway).
     pub(crate) externally_driven: Vec<bool>,
 }
@@ -176,7 +177,7 @@ impl World {
             events: 0,
             tx: None,
             last_release: vec![0; n],
-            line_watch: vec![false; n],
+            line_watchers: Vec::new(),
             externally_driven: vec![false; n],
             spec,
         }
@@ -383,6 +384,15 @@ impl World {
         Picos(s)
     }
 
+    /// Start or stop telling `node` about line busy/idle changes.
+    pub(crate) fn watch_line(&mut self, node: NodeId, on: bool) {
+        self.line_watchers.retain(|&r| r != node);
+        if on {
+            self.line_watchers.push(node);
+            self.line_watchers.sort_unstable();
+        }
+    }
+
     /// Is `node` driven by an external process in this run? (Without a
     /// co-simulation gateway, external nodes follow the built-in rules.)
     pub fn is_externally_driven(&self, node: NodeId) -> bool {
@@ -403,10 +413,10 @@ impl World {
         let release = tx.cursor;
         let off = release + disable;
         self.bus.insert(tx.occupancy, tx.node, tx.enable, release, off, tx.frames, false);
-        if self.line_watch.iter().any(|&w| w) {
+        if !self.line_watchers.is_empty() {
             // The line turns busy at each watching receiver when this driver's
             // signal reaches it, and idle when its output-off does.
-            for r in (0..self.line_watch.len()).filter(|&r| self.line_watch[r]) {
+            for &r in &self.line_watchers {
                 let shift = self.line.delay_ps(tx.node, r) + self.spec.nodes[r].transceiver.receiver_delay.0;
                 self.queue.push(Picos(tx.enable + shift), Event::LineEdge { node: r as u32, busy: true });
                 self.queue.push(Picos(off + shift), Event::LineEdge { node: r as u32, busy: false });

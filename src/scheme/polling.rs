@@ -253,7 +253,6 @@ impl AccessScheme for Polling {
             }
         }
         let master = self.spec.master;
-        let is_reply = kinds.iter().all(|k| matches!(k, FrameKind::Data | FrameKind::EmptyReply));
         if !is_reply || !self.awaiting_external || self.spec.order[self.idx] != slave {
             return; // not an answer to the poll the master waits on
         }

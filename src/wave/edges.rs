@@ -310,7 +310,7 @@ impl<S: WaveSink> WaveModel<S> {
         let (from, to) = self.window;
         if t > from && t <= to && !self.begun {
             self.begun = true;
-            if let Err(e) = self.sink.begin(from, &self.values_before_publish()) {
+            if let Err(e) = self.sink.begin(from, &self.shown) {
                 self.error.get_or_insert(e);
             }
         }
@@ -333,11 +333,6 @@ impl<S: WaveSink> WaveModel<S> {
         }
         touched.clear();
         self.touched = touched;
-    }
-
-    /// The values as last shown (the state before the changes at hand).
-    fn values_before_publish(&self) -> Vec<Value> {
-        self.shown.clone()
     }
 }
 
