@@ -50,12 +50,8 @@ pub struct CosimArgs {
     /// Output format of the report on stdout.
     #[arg(long, value_enum, default_value_t = Format::Text)]
     pub format: Format,
-    /// Override the scenario's seed.
-    #[arg(long)]
-    pub seed: Option<u64>,
-    /// Override the scenario's duration (simulated time with a unit, e.g. "2 s").
-    #[arg(long)]
-    pub duration: Option<String>,
+    #[command(flatten)]
+    pub overrides: super::overrides::ScenarioOverrides,
 }
 
 fn seconds(what: &str, s: f64) -> Result<Duration, Failure> {
@@ -67,7 +63,7 @@ fn seconds(what: &str, s: f64) -> Result<Duration, Failure> {
 
 pub fn cosim(args: CosimArgs) -> Result<u8, Failure> {
     let mut spec = halfwire::scenario::load(&args.file)?;
-    super::run::apply_overrides(&mut spec, args.seed, args.duration.as_deref())?;
+    args.overrides.apply(&mut spec)?;
     let external: Vec<usize> = (0..spec.nodes.len()).filter(|&i| spec.nodes[i].external).collect();
     if external.is_empty() {
         return Err(Failure::input(format!(

@@ -7,6 +7,7 @@ mod diff;
 mod gateway;
 mod merge;
 mod output;
+mod overrides;
 mod rows;
 mod run;
 mod sweep;

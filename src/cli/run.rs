@@ -12,6 +12,7 @@ use halfwire::spec::Spec;
 use halfwire::units::{self, Picos};
 
 use super::output::{check_writable, print_stdout, AtomicFile};
+use super::overrides::ScenarioOverrides;
 use super::waves::Waves;
 use super::Failure;
 
@@ -28,12 +29,8 @@ pub struct RunArgs {
     /// Output format on stdout.
     #[arg(long, value_enum, default_value_t = Format::Text)]
     pub format: Format,
-    /// Override the scenario's seed.
-    #[arg(long)]
-    pub seed: Option<u64>,
-    /// Override the scenario's duration (simulated time with a unit, e.g. "50 ms").
-    #[arg(long)]
-    pub duration: Option<String>,
+    #[command(flatten)]
+    pub overrides: ScenarioOverrides,
     /// Write a JSON-lines log of bus events to this file.
     #[arg(long, value_name = "FILE")]
     pub events: Option<PathBuf>,
@@ -73,24 +70,6 @@ pub fn parse_window(s: &str, duration: Picos) -> Result<(Picos, Picos), Failure>
     Ok((a, b.min(duration)))
 }
 
-/// `--seed` and `--duration` (shared by `run` and `cosim`).
-pub fn apply_overrides(spec: &mut Spec, seed: Option<u64>, duration: Option<&str>) -> Result<(), Failure> {
-    if let Some(seed) = seed {
-        spec.seed = seed;
-    }
-    if let Some(d) = duration {
-        let d = units::parse_time(d).map_err(|e| Failure::input(format!("--duration: {e}")))?;
-        if d <= spec.warmup {
-            return Err(Failure::input(format!(
-                "--duration {d} must be longer than the scenario's warmup ({})",
-                spec.warmup
-            )));
-        }
-        spec.duration = d;
-    }
-    Ok(())
-}
-
 pub fn run(args: RunArgs) -> Result<u8, Failure> {
     let mut spec = halfwire::scenario::load(&args.file)?;
     let external: Vec<&str> = spec.nodes.iter().filter(|n| n.external).map(|n| n.name.as_str()).collect();
@@ -100,7 +79,7 @@ pub fn run(args: RunArgs) -> Result<u8, Failure> {
             external.join(", ")
         );
     }
-    apply_overrides(&mut spec, args.seed, args.duration.as_deref())?;
+    args.overrides.apply(&mut spec)?;
     if let Some(n) = args.replications {
         return replicated(&spec, n, args.format);
     }

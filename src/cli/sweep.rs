@@ -16,6 +16,7 @@ use halfwire::sweep::{axis, Mode, Overrides, Plan, PlanError, RunId};
 use halfwire::units;
 
 use super::output::check_writable;
+use super::overrides::ScenarioOverrides;
 use super::rows::{self, Csv, Sink};
 use super::Failure;
 
@@ -52,12 +53,9 @@ pub struct SweepArgs {
     /// The shard count for a Kubernetes Indexed Job (its completions), or to override Slurm's.
     #[arg(long, value_name = "N")]
     pub shard_count: Option<u64>,
-    /// Override the scenario's seed at every point.
-    #[arg(long)]
-    pub seed: Option<u64>,
-    /// Override the scenario's duration at every point (e.g. "50 ms").
-    #[arg(long)]
-    pub duration: Option<String>,
+    /// Applied at every point.
+    #[command(flatten)]
+    pub overrides: ScenarioOverrides,
     #[command(flatten)]
     pub plot: PlotArgs,
 }
@@ -111,10 +109,7 @@ pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
     let text = std::fs::read_to_string(&args.file)
         .map_err(|e| Failure::input(format!("{file}: cannot read the scenario: {e}")))?;
     let axes = args.vary.iter().map(|v| axis::parse_vary(v)).collect::<Result<Vec<_>, _>>().map_err(Failure::input)?;
-    let duration = match &args.duration {
-        Some(d) => Some(units::parse_time(d).map_err(|e| Failure::input(format!("--duration: {e}")))?),
-        None => None,
-    };
+    let duration = args.overrides.duration()?;
     let jobs = match args.jobs {
         Some(0) => return Err(Failure::input("--jobs must be at least 1")),
         Some(j) => j,
@@ -122,7 +117,7 @@ pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
     };
     let (shard, shard_note) = choose_shard(&args)?;
     let mode = if args.zip { Mode::Zip } else { Mode::Grid };
-    let overrides = Overrides { seed: args.seed, duration };
+    let overrides = Overrides { seed: args.overrides.seed, duration };
     let plan = Plan::new(&file, &text, axes, mode, args.replications, overrides).map_err(plan_failure)?;
     if let Some(metric) = &args.plot.y {
         let names = halfwire::report::tallies::Tallies::metric_names(&plan.spec(0).map_err(plan_failure)?);
@@ -178,11 +173,13 @@ pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
         }
     }
     // The runs of this share, produced lazily: memory does not grow with the sweep.
-    let (total_runs, per_point) = (plan.runs(), plan.replications());
-    let share = move || {
-        (0..total_runs)
-            .filter(move |&n| shard.takes(n))
-            .map(move |n| RunId { point: n / per_point, replication: n % per_point })
+    let plan = Arc::new(plan);
+    let share = {
+        let plan = plan.clone();
+        move || {
+            let plan = plan.clone();
+            (0..plan.runs()).filter(move |&n| shard.takes(n)).map(move |n| plan.run_id(n))
+        }
     };
     let todo = share().filter(|r| !done.contains(r)).count();
     if let Some(note) = &shard_note {
@@ -206,7 +203,6 @@ pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
         None => None,
     };
     let total = todo as u64;
-    let plan = Arc::new(plan);
     // A plot of a sweep printed to stdout needs the rows kept; with a file they are read back.
     let keep = args.plot.plot.is_some() && out_path.is_none();
     let mut observer = Writer { sink, csv, bar: progress_bar(total), plan: plan.clone(), kept: keep.then(Vec::new) };
