@@ -146,26 +146,18 @@ impl Report {
     pub(crate) fn build(w: &World, scheme: SchemeReport) -> Report {
         let spec = &w.spec;
         let line = &w.line;
-        let measured = spec.measured().as_secs_f64();
-        let per_s = |x: f64| if measured > 0.0 { x / measured } else { 0.0 };
+        // The counters, once; the figures below are derived from them.
+        let t = tallies::Tallies::from_world(w);
         let st = &w.stats;
-        let frames = Frames {
-            attempts: st.frames.attempts,
-            delivered: st.frames.delivered,
-            corrupted: st.frames.corrupted,
-            dropped: st.frames.dropped,
-            arrived: st.frames.arrived,
-            control: st.frames.control_frames,
-            control_corrupted: st.frames.control_corrupted,
-            queued_at_end: w.queues.iter().map(|q| q.len() as u64).sum(),
-        };
+        let frames = t.frames();
         let mean_wire_s =
             if st.data_frames_sent > 0 { st.data_wire_ps as f64 / st.data_frames_sent as f64 * 1e-12 } else { 0.0 };
+        let measured = t.measured_s();
         let throughput = Throughput {
-            payload_bit_s: per_s(st.payload_bits as f64),
-            carried: per_s(st.carried_ps as f64 * 1e-12),
-            offered: per_s(st.frames.access_attempts as f64 * mean_wire_s),
-            access_attempts: st.frames.access_attempts,
+            payload_bit_s: t.payload_bit_s(),
+            carried: t.carried(),
+            offered: if measured > 0.0 { t.access_attempts as f64 * mean_wire_s / measured } else { 0.0 },
+            access_attempts: t.access_attempts,
         };
         let nodes = spec
             .nodes
@@ -178,9 +170,9 @@ impl Report {
         let latency = Latency { all: st.latency_all.summary(), nodes, ids };
         let c = &w.bus.contention;
         let contention = Contention {
-            events: c.events,
-            overlap_total_s: c.overlap_total_ps as f64 * 1e-12,
-            overlap_max_s: c.overlap_max_ps as f64 * 1e-12,
+            events: t.contention_events,
+            overlap_total_s: t.overlap_total_ps as f64 * 1e-12,
+            overlap_max_s: t.overlap_max_ps as f64 * 1e-12,
             first: c
                 .listed
                 .iter()
@@ -196,24 +188,13 @@ impl Report {
             .filter(|&i| line.idle_state(spec, i) == IdleState::Undefined)
             .map(|i| spec.nodes[i].name.clone())
             .collect();
-        let ft = w.bus.floating.totals;
         let floating = Floating {
-            windows: ft.windows,
-            total_s: ft.total_ps as f64 * 1e-12,
-            longest_s: ft.longest_ps as f64 * 1e-12,
+            windows: t.floating_windows,
+            total_s: t.floating_total_ps as f64 * 1e-12,
+            longest_s: t.floating_longest_ps as f64 * 1e-12,
             hazard_receivers: hazard,
         };
-        let u = w.bus.util.totals;
-        // Fractions of the measured window itself, so any gap in the
-        // accounting would show as a sum below 1.
-        let whole = spec.measured().0.max(1) as f64;
-        let utilization = Utilization {
-            payload: u.payload as f64 / whole,
-            overhead: u.overhead as f64 / whole,
-            gaps: u.gaps as f64 / whole,
-            idle: u.idle as f64 / whole,
-            wasted: u.wasted as f64 / whole,
-        };
+        let utilization = t.utilization();
         let line_fig = crate::line::figures::line_figures(spec, line);
         let amp = line_fig.worst_amplitude_v;
         let warnings = warnings(w, amp, &contention, &floating, &frames);
@@ -233,7 +214,7 @@ impl Report {
             stalled_at_s: None,
             aborted_at_s: None,
             run: RunInfo { events: w.events, ..RunInfo::default() },
-            tallies: tallies::Tallies::from_world(w),
+            tallies: t,
         }
     }
 

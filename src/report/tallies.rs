@@ -7,6 +7,7 @@ use std::collections::BTreeMap;
 
 use serde::{Deserialize, Serialize};
 
+use super::{Frames, Utilization};
 use crate::engine::World;
 use crate::stats::latency::{LatencyStats, LatencyTally};
 use crate::units::Picos;
@@ -138,41 +139,84 @@ impl Tallies {
         Ok(())
     }
 
-    /// The headline metrics, named as in the JSON report
-    /// (`throughput.carried`, `latency_s.all.p99`, …) and computed the same
-    /// way, so one run's tallies give exactly its report's figures.
-    pub fn metrics(&self) -> Result<BTreeMap<String, f64>, String> {
-        let mut m = BTreeMap::new();
-        let measured = Picos(self.measured_ps).as_secs_f64();
-        let per_s = |x: f64| if measured > 0.0 { x / measured } else { 0.0 };
+    /// Length of the measured window(s), in seconds.
+    pub fn measured_s(&self) -> f64 {
+        Picos(self.measured_ps).as_secs_f64()
+    }
+
+    /// `x` per second of measured time (0 for an empty window).
+    fn per_s(&self, x: f64) -> f64 {
+        let measured = self.measured_s();
+        if measured > 0.0 {
+            x / measured
+        } else {
+            0.0
+        }
+    }
+
+    /// Payload bits delivered per second.
+    pub fn payload_bit_s(&self) -> f64 {
+        self.per_s(self.payload_bits as f64)
+    }
+
+    /// On-wire time of delivered data frames / measured time.
+    pub fn carried(&self) -> f64 {
+        self.per_s(self.carried_ps as f64 * 1e-12)
+    }
+
+    pub fn frames(&self) -> Frames {
+        Frames {
+            attempts: self.attempts,
+            delivered: self.delivered,
+            corrupted: self.corrupted,
+            dropped: self.dropped,
+            arrived: self.arrived,
+            control: self.control,
+            control_corrupted: self.control_corrupted,
+            queued_at_end: self.queued_at_end,
+        }
+    }
+
+    /// Fractions of the measured window itself, so any gap in the
+    /// accounting would show as a sum below 1.
+    pub fn utilization(&self) -> Utilization {
         let whole = self.measured_ps.max(1) as f64;
+        Utilization {
+            payload: self.util_payload_ps as f64 / whole,
+            overhead: self.util_overhead_ps as f64 / whole,
+            gaps: self.util_gaps_ps as f64 / whole,
+            idle: self.util_idle_ps as f64 / whole,
+            wasted: self.util_wasted_ps as f64 / whole,
+        }
+    }
+
+    /// The headline metrics, named as in the JSON report
+    /// (`throughput.carried`, `latency_s.all.p99`, …) and computed by the
+    /// same functions the report uses, so one run's tallies give exactly its
+    /// report's figures.
+    pub fn metrics(&self) -> Result<BTreeMap<String, f64>, String> {
         let ps = |x: u64| x as f64 * 1e-12;
-        let mut put = |k: &str, v: f64| {
-            m.insert(k.to_owned(), v);
-        };
-        put("simulated_s", measured);
-        put("throughput.payload_bit_s", per_s(self.payload_bits as f64));
-        put("throughput.carried", per_s(self.carried_ps as f64 * 1e-12));
-        put("throughput.access_attempts", self.access_attempts as f64);
-        put("frames.attempts", self.attempts as f64);
-        put("frames.delivered", self.delivered as f64);
-        put("frames.corrupted", self.corrupted as f64);
-        put("frames.dropped", self.dropped as f64);
-        put("frames.arrived", self.arrived as f64);
-        put("frames.control", self.control as f64);
-        put("frames.control_corrupted", self.control_corrupted as f64);
-        put("frames.queued_at_end", self.queued_at_end as f64);
-        put("contention.events", self.contention_events as f64);
-        put("contention.overlap_total_s", ps(self.overlap_total_ps));
-        put("contention.overlap_max_s", ps(self.overlap_max_ps));
-        put("floating.windows", self.floating_windows as f64);
-        put("floating.total_s", ps(self.floating_total_ps));
-        put("floating.longest_s", ps(self.floating_longest_ps));
-        put("utilization.payload", self.util_payload_ps as f64 / whole);
-        put("utilization.overhead", self.util_overhead_ps as f64 / whole);
-        put("utilization.gaps", self.util_gaps_ps as f64 / whole);
-        put("utilization.idle", self.util_idle_ps as f64 / whole);
-        put("utilization.wasted", self.util_wasted_ps as f64 / whole);
+        let figures = serde_json::json!({
+            "simulated_s": self.measured_s(),
+            "throughput": {
+                "payload_bit_s": self.payload_bit_s(),
+                "carried": self.carried(),
+                "access_attempts": self.access_attempts,
+            },
+            "frames": self.frames(),
+            "contention": {
+                "events": self.contention_events,
+                "overlap_total_s": ps(self.overlap_total_ps),
+                "overlap_max_s": ps(self.overlap_max_ps),
+            },
+            "floating": {
+                "windows": self.floating_windows,
+                "total_s": ps(self.floating_total_ps),
+                "longest_s": ps(self.floating_longest_ps),
+            },
+            "utilization": self.utilization(),
+        });
+        let mut m = crate::check::flatten(&figures);
         put_latency(&mut m, "latency_s.all", &self.latency)?;
         for (name, t) in &self.latency_nodes {
             put_latency(&mut m, &format!("latency_s.nodes.{name}"), t)?;
