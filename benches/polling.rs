@@ -1,14 +1,13 @@
 //! Speed of the reference polling bus: 32 nodes on a 3.1 m backplane,
 //! 100 Mbit/s, Poisson load at 50 % of the line, 1 s simulated.
 //!
-//! `cargo bench --bench polling` reports wall time per simulated second;
+//! `cargo bench -p halfwire-benches --bench polling` reports wall time per simulated second;
 //! events per second follow from the event count printed once at start.
 
 use criterion::{criterion_group, criterion_main, Criterion};
 
 fn reference(receiver: &str) -> halfwire::spec::Spec {
-    let text = std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/benches/reference-polling.toml"))
-        .expect("reference scenario");
+    let text = halfwire_benches::reference_text();
     let text = text.replace("receiver = \"type1\"", &format!("receiver = \"{receiver}\""));
     halfwire::scenario::parse_str(&text, "reference-polling.toml").expect("valid")
 }

@@ -1,7 +1,7 @@
 //! Sweep scaling: the same CPU-bound 16-point sweep with 1 and with 2
 //! workers, timed in one process, and the ratio printed.
 //!
-//! `cargo bench --bench sweep` (the target on a 2-core machine: ≥ 1.8×).
+//! `cargo bench -p halfwire-benches --bench sweep` (the target on a 2-core machine: ≥ 1.8×).
 
 use std::sync::Arc;
 use std::time::Instant;
@@ -21,13 +21,12 @@ impl Observer for Count {
 }
 
 fn main() {
-    let file = "benches/reference-polling.toml";
-    let text = std::fs::read_to_string(file).expect("the reference scenario");
+    let file = "reference-polling.toml";
+    let text = halfwire_benches::reference_text();
     // 16 turnarounds on the 32-node reference bus at 50 % load, 0.5 s each:
     // points of about equal cost, so the ratio measures the worker pool.
     let axes = vec![axis::parse_vary("access.turnaround=20ns..95ns step 5ns").expect("valid axis")];
-    let overrides =
-        Overrides { duration: Some(halfwire::units::parse_time("500 ms").unwrap()), ..Overrides::default() };
+    let overrides = Overrides { duration: Some("500 ms".into()), ..Overrides::default() };
     let plan = Arc::new(Plan::new(file, &text, axes, Mode::Grid, 1, overrides).expect("valid plan"));
     assert_eq!(plan.points(), 16);
     let runs: Vec<RunId> = (0..plan.runs()).map(|n| plan.run_id(n)).collect();

@@ -48,8 +48,10 @@ impl Source {
         match (&self.spec.pattern, &self.exp) {
             (Pattern::Poisson { .. }, Some(exp)) => {
                 let gap_s: f64 = exp.sample(&mut self.rng);
-                // At least 1 ps apart so arrivals stay strictly ordered.
-                now + Picos(((gap_s * 1e12).round() as u64).max(1))
+                // At least 1 ps apart so arrivals stay strictly ordered; a gap
+                // beyond the range of time means no further arrival (the cast
+                // saturates, and so does the sum: both lie past any run's end).
+                now.saturating_add(Picos(((gap_s * 1e12).round() as u64).max(1)))
             }
             (Pattern::Periodic { period, phase, jitter }, _) => {
                 let base = phase.0 + self.k * period.0;

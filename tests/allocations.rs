@@ -2,6 +2,7 @@
 //! while a warmed-up simulation runs on. This one test drives the engine
 //! in-process, since it needs a counting global allocator around it.
 
+#[path = "e2e/common.rs"]
 mod common;
 
 use std::alloc::{GlobalAlloc, Layout, System};

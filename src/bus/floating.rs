@@ -28,7 +28,8 @@ use crate::units::Picos;
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
 pub struct FloatingTotals {
     pub windows: u64,
-    pub total_ps: u64,
+    /// Summed over receivers, so it can exceed the window many times over.
+    pub total_ps: u128,
     pub longest_ps: u64,
 }
 
@@ -116,7 +117,7 @@ impl FloatingSweep {
         self.materialize(&rows);
         let delays = rows(k);
         let (w0, w1) = self.window;
-        let (mut windows, mut total, mut longest) = (0u64, 0u64, self.totals.longest_ps);
+        let (mut windows, mut total, mut longest) = (0u64, 0u128, self.totals.longest_ps);
         let mut dominates = true;
         // Branch-free: when the signal arrives before `until` the clipped
         // window is empty, because then to ≤ from ≤ until ≤ max(until, w0).
@@ -129,7 +130,7 @@ impl FloatingSweep {
             };
             let len = to.min(w1).saturating_sub((*until).max(w0));
             windows += u64::from(len > 0);
-            total += len;
+            total += u128::from(len);
             longest = longest.max(len);
             dominates &= b + d >= *until;
             *until = (*until).max(b + d);
@@ -188,13 +189,13 @@ impl FloatingSweep {
             return false;
         }
         let g = a as i64 - bp as i64;
-        // Windows where g + u_i > 0.
+        // Windows where g + u_i > 0 (a sum over receivers: in 128 bits).
         let first = prof.sorted.partition_point(|&u| u <= -g);
         let count = prof.sorted.len() - first;
         if count > 0 {
-            let total = count as i64 * g + prof.suffix[first];
+            let total = count as i128 * i128::from(g) + i128::from(prof.suffix[first]);
             self.totals.windows += count as u64;
-            self.totals.total_ps += total as u64;
+            self.totals.total_ps += total as u128;
             self.totals.longest_ps = self.totals.longest_ps.max((g + umax) as u64);
         }
         self.dominant = Some((k, b));
@@ -209,6 +210,11 @@ impl FloatingSweep {
                 self.driven_until[i] = bp + r[i];
             }
         }
+    }
+
+    /// Move the end of the measured window earlier (never before its start).
+    pub fn end_window_at(&mut self, end: u64) {
+        self.window.1 = self.window.1.min(end).max(self.window.0);
     }
 
     /// Close every receiver's open window at the end of the run.
@@ -232,7 +238,7 @@ impl FloatingSweep {
         let len = to - from;
         let t = &mut self.totals;
         t.windows += 1;
-        t.total_ps += len;
+        t.total_ps += u128::from(len);
         t.longest_ps = t.longest_ps.max(len);
     }
 }

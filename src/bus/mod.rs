@@ -60,10 +60,13 @@ pub struct ContentionEvent {
     pub overlap: Picos,
 }
 
+/// Contention in the measured window: events that begin inside it, each
+/// overlap counted up to the window's end.
 #[derive(Clone, Debug, Default, PartialEq)]
 pub struct ContentionTotals {
     pub events: u64,
-    pub overlap_total_ps: u64,
+    /// Summed over events, so it can exceed the window many times over.
+    pub overlap_total_ps: u128,
     pub overlap_max_ps: u64,
     pub listed: Vec<ContentionEvent>,
 }
@@ -215,20 +218,21 @@ impl Bus {
             let sj = Span { from: j.a, to: j.b, position_m: self.positions[j.node] };
             let sk = Span { from: k.a, to: k.b, position_m: self.positions[k.node] };
             if let Some(o) = worst_overlap(sj, sk, line.delay_ps(j.node, k.node)) {
-                let ev = ContentionEvent {
-                    at: Picos(o.start_ps),
-                    first: j.node,
-                    second: k.node,
-                    position_m: o.position_m,
-                    overlap: Picos(o.overlap_ps),
-                };
                 if o.start_ps >= self.window.0 && o.start_ps < self.window.1 {
+                    // The part of the overlap inside the measured window.
+                    let overlap = o.overlap_ps.min(self.window.1 - o.start_ps);
                     let c = &mut self.contention;
                     c.events += 1;
-                    c.overlap_total_ps += o.overlap_ps;
-                    c.overlap_max_ps = c.overlap_max_ps.max(o.overlap_ps);
+                    c.overlap_total_ps += u128::from(overlap);
+                    c.overlap_max_ps = c.overlap_max_ps.max(overlap);
                     if c.listed.len() < CONTENTION_LISTED {
-                        c.listed.push(ev);
+                        c.listed.push(ContentionEvent {
+                            at: Picos(o.start_ps),
+                            first: j.node,
+                            second: k.node,
+                            position_m: o.position_m,
+                            overlap: Picos(overlap),
+                        });
                     }
                 }
                 trace.push(BusEvent {
@@ -266,6 +270,14 @@ impl Bus {
         trace.push(BusEvent { t: k.a, node: k.node, kind: BusEventKind::DriverEnable { dominant: k.dominant } });
         trace.push(BusEvent { t: k.release, node: k.node, kind: BusEventKind::DriverRelease });
         trace.push(BusEvent { t: k.b, node: k.node, kind: BusEventKind::DriverOff });
+    }
+
+    /// The measured window ends earlier than planned (a co-simulation cut
+    /// short): nothing after `end` is counted.
+    pub fn end_window_at(&mut self, end: u64) {
+        self.window.1 = self.window.1.min(end).max(self.window.0);
+        self.util.end_window_at(self.window.1);
+        self.floating.end_window_at(self.window.1);
     }
 
     /// Close the run: process everything (as of `now`, which may lie past

@@ -25,6 +25,7 @@ pub fn better(path: &str) -> Better {
         "floating.",
         "frames.corrupted",
         "frames.dropped",
+        "frames.given_up",
         "frames.control_corrupted",
         "frames.queued_at_end",
         "utilization.wasted",
@@ -65,18 +66,24 @@ pub fn better(path: &str) -> Better {
 #[derive(Clone, Debug, Serialize)]
 pub struct Change {
     pub metric: String,
-    pub base: f64,
-    pub new: f64,
-    /// Relative change (new − base)/|base|; infinite from zero.
+    /// The value in each report; `null` where the metric is missing, null
+    /// or not a number.
+    pub base: Option<f64>,
+    pub new: Option<f64>,
+    /// Relative change (new − base)/|base|; infinite from zero; 0 when a side is missing.
     pub relative: f64,
     pub better: Better,
     pub tolerance: f64,
-    /// "regression" | "improvement" | "changed" | "within tolerance".
+    /// "regression" | "improvement" | "changed" | "within tolerance" |
+    /// "missing" (in the base, not a number in the new report) | "added".
     pub verdict: &'static str,
 }
 
-/// Compare every metric both reports have. `tolerance(path)` is the
-/// relative change allowed before a worse value counts as a regression.
+/// Compare every metric of either report. `tolerance(path)` is the relative
+/// change allowed before a worse value counts as a regression. A metric of
+/// the base that the new report lacks (or holds as null or as something
+/// other than a number) is "missing", which the caller counts as a
+/// regression: a figure that vanishes is never a silent pass.
 pub fn compare(
     base: &BTreeMap<String, f64>,
     new: &BTreeMap<String, f64>,
@@ -84,13 +91,24 @@ pub fn compare(
 ) -> Vec<Change> {
     let mut out = Vec::new();
     for (k, &b) in base {
-        let Some(&n) = new.get(k) else { continue };
+        let dir = better(k);
+        let tol = tolerance(k);
+        let Some(&n) = new.get(k) else {
+            out.push(Change {
+                metric: k.clone(),
+                base: Some(b),
+                new: None,
+                relative: 0.0,
+                better: dir,
+                tolerance: tol,
+                verdict: "missing",
+            });
+            continue;
+        };
         if n == b {
             continue;
         }
         let relative = if b != 0.0 { (n - b) / b.abs() } else { f64::INFINITY.copysign(n - b) };
-        let dir = better(k);
-        let tol = tolerance(k);
         let worse = match dir {
             Better::Lower => n > b,
             Better::Higher => n < b,
@@ -105,7 +123,28 @@ pub fn compare(
         } else {
             "improvement"
         };
-        out.push(Change { metric: k.clone(), base: b, new: n, relative, better: dir, tolerance: tol, verdict });
+        out.push(Change {
+            metric: k.clone(),
+            base: Some(b),
+            new: Some(n),
+            relative,
+            better: dir,
+            tolerance: tol,
+            verdict,
+        });
+    }
+    for (k, &n) in new {
+        if !base.contains_key(k) {
+            out.push(Change {
+                metric: k.clone(),
+                base: None,
+                new: Some(n),
+                relative: 0.0,
+                better: better(k),
+                tolerance: tolerance(k),
+                verdict: "added",
+            });
+        }
     }
     out
 }
@@ -128,5 +167,12 @@ mod tests {
         assert_eq!(c.iter().find(|c| c.metric == "throughput.carried").unwrap().verdict, "improvement");
         let c = compare(&base, &new, |_| 0.2);
         assert!(c.iter().all(|c| c.verdict == "within tolerance"));
+        // A vanished metric is "missing"; a new one "added".
+        let mut fewer = new.clone();
+        fewer.remove("latency_s.all.p99");
+        fewer.insert("frames.given_up".into(), 0.0);
+        let c = compare(&base, &fewer, |_| 0.2);
+        assert_eq!(c.iter().find(|c| c.metric == "latency_s.all.p99").unwrap().verdict, "missing");
+        assert_eq!(c.iter().find(|c| c.metric == "frames.given_up").unwrap().verdict, "added");
     }
 }

@@ -8,6 +8,7 @@ use halfwire::check::{self, Outcome};
 use halfwire::spec::Spec;
 
 use super::output::{check_writable, print_stdout, AtomicFile};
+use super::overrides::ScenarioOverrides;
 use super::run::Format;
 use super::Failure;
 
@@ -29,6 +30,8 @@ pub struct CheckArgs {
     /// the mean, and `confidence = true` ones the 95 % confidence limit.
     #[arg(long, value_name = "N")]
     pub replications: Option<u64>,
+    #[command(flatten)]
+    pub overrides: ScenarioOverrides,
 }
 
 /// One scenario's result.
@@ -40,42 +43,61 @@ pub struct ScenarioResult {
     pub wall_s: f64,
 }
 
-fn collect(paths: &[PathBuf]) -> Result<Vec<PathBuf>, Failure> {
-    fn walk(dir: &Path, out: &mut Vec<PathBuf>) -> std::io::Result<()> {
-        let mut entries: Vec<_> = std::fs::read_dir(dir)?.collect::<Result<_, _>>()?;
-        entries.sort_by_key(|e| e.path());
-        for e in entries {
-            let p = e.path();
-            if p.is_dir() {
-                walk(&p, out)?;
-            } else if p.extension().and_then(|x| x.to_str()) == Some("toml") {
-                out.push(p);
-            }
-        }
-        Ok(())
-    }
-    let mut out = Vec::new();
+/// The scenario files named by `paths` (folders searched recursively for
+/// `*.toml`, in name order), and a message for every path that cannot be used.
+/// Symbolic links are followed, with loops detected and skipped; anything
+/// that is not a regular file (a FIFO, a device) is refused, never opened.
+fn collect(paths: &[PathBuf]) -> (Vec<PathBuf>, Vec<String>) {
+    let mut files = Vec::new();
+    let mut bad = Vec::new();
     for p in paths {
-        if p.is_dir() {
-            walk(p, &mut out).map_err(|e| Failure::input(format!("{}: cannot read the folder: {e}", p.display())))?;
-        } else if p.exists() {
-            out.push(p.clone());
-        } else {
-            return Err(Failure::input(format!("{}: no such file or folder", p.display())));
+        match std::fs::metadata(p) {
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
+                bad.push(format!("{}: no such file or folder", p.display()))
+            }
+            Err(e) => bad.push(format!("{}: cannot read: {e}", p.display())),
+            Ok(m) if m.is_dir() => walk(p, &mut files, &mut bad),
+            Ok(m) if m.is_file() => files.push(p.clone()),
+            Ok(_) => bad.push(format!("{}: not a regular file: a scenario is read from a file", p.display())),
         }
     }
-    if out.is_empty() {
-        return Err(Failure::input(format!(
+    if files.is_empty() && bad.is_empty() {
+        bad.push(format!(
             "no scenario files (*.toml) in {}",
             paths.iter().map(|p| p.display().to_string()).collect::<Vec<_>>().join(", ")
-        )));
+        ));
     }
-    Ok(out)
+    (files, bad)
 }
 
-/// Run one scenario and evaluate its expectations (all validation first).
-fn prepare(path: &Path) -> Result<(Spec, Vec<check::Resolved>), Failure> {
-    let spec = halfwire::scenario::load(path)?;
+fn walk(dir: &Path, files: &mut Vec<PathBuf>, bad: &mut Vec<String>) {
+    let shown = |p: Option<&Path>| p.map_or_else(|| dir.display().to_string(), |x| x.display().to_string());
+    for entry in walkdir::WalkDir::new(dir).follow_links(true).sort_by_file_name() {
+        match entry {
+            Ok(e) => {
+                let is_toml = e.path().extension().and_then(|x| x.to_str()) == Some("toml");
+                if !is_toml || e.file_type().is_dir() {
+                    continue;
+                }
+                if e.file_type().is_file() {
+                    files.push(e.into_path());
+                } else {
+                    bad.push(format!("{}: not a regular file: a scenario is read from a file", e.path().display()));
+                }
+            }
+            Err(e) if e.loop_ancestor().is_some() => eprintln!(
+                "note: {}: a symbolic link back into {}; not followed again",
+                shown(e.path()),
+                shown(e.loop_ancestor())
+            ),
+            Err(e) => bad.push(format!("{}: cannot read: {e}", shown(e.path()))),
+        }
+    }
+}
+
+/// Validate one scenario and its expectations (nothing runs).
+fn prepare(path: &Path, overrides: &ScenarioOverrides) -> Result<(Spec, Vec<check::Resolved>), Failure> {
+    let spec = overrides.load(path)?;
     // The metric names a report of this scenario has: from a run of no length.
     let mut probe = spec.clone();
     probe.warmup = halfwire::units::Picos::ZERO;
@@ -86,15 +108,25 @@ fn prepare(path: &Path) -> Result<(Spec, Vec<check::Resolved>), Failure> {
 }
 
 pub fn check(args: CheckArgs) -> Result<u8, Failure> {
-    let files = collect(&args.paths)?;
+    let (files, mut bad) = collect(&args.paths);
     if let Some(j) = &args.junit {
         check_writable(j, &files.iter().map(PathBuf::as_path).collect::<Vec<_>>())?;
     }
-    // Validate everything before running anything.
+    // Validate everything before running anything, and name every bad file.
     let mut work = Vec::new();
     for f in &files {
-        let (spec, resolved) = prepare(f)?;
-        work.push((f.clone(), spec, resolved));
+        match prepare(f, &args.overrides) {
+            Ok((spec, resolved)) => work.push((f.clone(), spec, resolved)),
+            Err(e) => bad.push(e.message),
+        }
+    }
+    if !bad.is_empty() {
+        let n = bad.len();
+        return Err(Failure::input(format!(
+            "{}\n{n} {} cannot be checked; nothing was run",
+            bad.join("\n"),
+            if n == 1 { "path" } else { "paths" }
+        )));
     }
     let jobs = args.jobs.unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |n| n.get())).max(1);
     if let Some(n) = args.replications {

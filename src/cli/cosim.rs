@@ -12,7 +12,6 @@ use halfwire::cosim::{self, ClientMessage};
 use halfwire::engine::Simulation;
 use halfwire::report::{json, text, Report, Warning};
 use halfwire::spec::Spec;
-use tokio::io::AsyncBufReadExt;
 use tokio::net::TcpListener;
 
 use super::gateway::{self, Client, Outgoing, TcpGateway, Writers};
@@ -62,8 +61,7 @@ fn seconds(what: &str, s: f64) -> Result<Duration, Failure> {
 }
 
 pub fn cosim(args: CosimArgs) -> Result<u8, Failure> {
-    let mut spec = halfwire::scenario::load(&args.file)?;
-    args.overrides.apply(&mut spec)?;
+    let spec = args.overrides.load(&args.file)?;
     let external: Vec<usize> = (0..spec.nodes.len()).filter(|&i| spec.nodes[i].external).collect();
     if external.is_empty() {
         return Err(Failure::input(format!(
@@ -133,15 +131,19 @@ async fn session(
         // One small line per message each way: send each at once.
         let _ = stream.set_nodelay(true);
         let (mut reader, writer) = gateway::split(stream);
-        let mut first = String::new();
         // A hello is awaited no longer than the answer time-out or the connect deadline.
         let hello_deadline = (tokio::time::Instant::now() + answer).min(deadline);
-        let hello = tokio::time::timeout_at(hello_deadline, reader.read_line(&mut first)).await;
+        let hello = tokio::time::timeout_at(hello_deadline, gateway::read_line_bounded(&mut reader)).await;
+        let first = match &hello {
+            Ok(Ok(Some(l))) => l.clone(),
+            _ => String::new(),
+        };
         let client = gateway::spawn_client(reader, writer);
         let outcome = match hello {
             Err(_) => Err("no hello within --answer-timeout (or before --connect-timeout ran out)".to_owned()),
-            Ok(Err(e)) => Err(format!("the connection failed: {e}")),
-            Ok(Ok(_)) => match cosim::parse_line(&first) {
+            Ok(Err(e)) => Err(e),
+            Ok(Ok(None)) => Err("the client closed the connection before its hello".to_owned()),
+            Ok(Ok(Some(_))) => match cosim::parse_line(&first) {
                 Ok(ClientMessage::Hello { protocol, node }) => check_hello(&spec, &clients, &protocol, &node),
                 Ok(_) => Err("the first message must be a hello".to_owned()),
                 Err(e) => Err(e),
@@ -161,6 +163,7 @@ async fn session(
                 eprintln!("halfwire cosim: refused a client from {peer}: {message}");
                 let _ = client.out.send(Outgoing::Line(cosim::line(&cosim::error_message(&message, None))));
                 let _ = client.out.send(Outgoing::Close);
+                client.reader.abort();
                 writers.lock().expect("no poisoned lock").push(client.writer);
                 early.push(EarlyFault { node, message: format!("before the run, a client from {peer}: {message}") });
                 if on_fault == OnFault::Abort {
@@ -202,6 +205,8 @@ async fn session(
         sim.run_until(run_spec.duration);
         let reason = if stopped.load(Ordering::SeqCst) {
             "interrupted"
+        } else if sim.stalled().is_some() {
+            "stalled"
         } else if sim.aborted().is_some() {
             "aborted"
         } else {
@@ -249,15 +254,20 @@ fn finish(
 ) -> Result<u8, Failure> {
     let early_count = early.len();
     for f in early {
-        report.warnings.push(Warning { code: "cosim_client_fault", node: f.node, message: f.message });
+        report.warnings.push(Warning { code: "cosim-client-fault", node: f.node, message: f.message });
     }
     let out = match format {
         Format::Json => json::render(&report),
-        Format::Text => text::render(&report, console::colors_enabled()),
+        Format::Text => text::render_titled(&report, "halfwire cosim", console::colors_enabled()),
     };
     print_stdout(&out)?;
     if interrupt.load(Ordering::SeqCst) {
         return Ok(130);
+    }
+    if let Some(at) = report.stalled_at_s {
+        // As `run` does: the scenario and its clients never let time move on.
+        eprintln!("error: {}", super::run::stall_message("the co-simulation", halfwire::units::format_seconds(at)));
+        return Ok(2);
     }
     if abort || (report.aborted_at_s.is_some() && faults > 0) {
         eprintln!(

@@ -21,7 +21,8 @@ pub struct DiffArgs {
     /// for every metric, or "METRIC=5%" for one (repeatable).
     #[arg(long, value_name = "[METRIC=]PERCENT")]
     pub tolerance: Vec<String>,
-    /// Compare reports of different scenarios.
+    /// Compare reports of different scenarios, and accept metrics of the base
+    /// that the new report lacks (or holds as null or not as a number).
     #[arg(long)]
     pub force: bool,
     /// Output format on stdout.
@@ -89,12 +90,15 @@ pub fn diff(args: DiffArgs) -> Result<u8, Failure> {
         }
     }
     let changes = diff::compare(&b, &n, |m| per.get(m).copied().unwrap_or(global));
-    let regressions = changes.iter().filter(|c| c.verdict == "regression").count();
+    let missing = changes.iter().filter(|c| c.verdict == "missing").count();
+    let regressions =
+        changes.iter().filter(|c| c.verdict == "regression").count() + if args.force { 0 } else { missing };
     let out = match args.format {
         Format::Json => {
-            let mut s =
-                serde_json::to_string_pretty(&serde_json::json!({ "changes": changes, "regressions": regressions }))
-                    .expect("serializable");
+            let mut s = serde_json::to_string_pretty(
+                &serde_json::json!({ "changes": changes, "regressions": regressions, "missing": missing }),
+            )
+            .expect("serializable");
             s.push('\n');
             s
         }
@@ -105,20 +109,36 @@ pub fn diff(args: DiffArgs) -> Result<u8, Failure> {
             } else {
                 let _ = writeln!(o, "  {:<40} {:>14} {:>14} {:>9}  verdict", "metric", "base", "new", "change");
                 for c in &changes {
-                    let rel =
-                        if c.relative.is_finite() { format!("{:+.1} %", 100.0 * c.relative) } else { "new".into() };
+                    let rel = match (c.base, c.new) {
+                        (Some(_), Some(_)) if c.relative.is_finite() => format!("{:+.1} %", 100.0 * c.relative),
+                        (Some(_), Some(_)) => "from 0".into(),
+                        _ => "—".into(),
+                    };
+                    let show = |x: Option<f64>| x.map_or("—".to_owned(), |x| check::show(&c.metric, x));
+                    let verdict = match c.verdict {
+                        "missing" if args.force => "missing (accepted with --force)",
+                        "missing" => "missing: a regression (the new report has no number here)",
+                        v => v,
+                    };
                     let _ = writeln!(
                         o,
                         "  {:<40} {:>14} {:>14} {:>9}  {}",
                         c.metric,
-                        check::show(&c.metric, c.base),
-                        check::show(&c.metric, c.new),
+                        show(c.base),
+                        show(c.new),
                         rel,
-                        c.verdict
+                        verdict
                     );
                 }
             }
-            let _ = writeln!(o, "{} changed, {} regressions", changes.len(), regressions);
+            let _ = writeln!(
+                o,
+                "{} changed, {} {}{}",
+                changes.len(),
+                regressions,
+                if regressions == 1 { "regression" } else { "regressions" },
+                if missing > 0 { format!(" ({missing} missing)") } else { String::new() }
+            );
             o
         }
     };

@@ -10,7 +10,7 @@ use halfwire::cosim;
 use halfwire::engine::external::{Batch, Gateway, Intent};
 use halfwire::spec::{NodeId, Spec};
 use halfwire::units::Picos;
-use tokio::io::{AsyncBufReadExt, AsyncWriteExt, BufReader};
+use tokio::io::{AsyncWriteExt, BufReader};
 use tokio::net::TcpStream;
 use tokio::sync::mpsc as amp;
 
@@ -34,6 +34,43 @@ pub struct Client {
     pub out: amp::UnboundedSender<Outgoing>,
     pub inbox: mpsc::Receiver<Incoming>,
     pub writer: tokio::task::JoinHandle<()>,
+    /// Stopped when the client is dropped: a faulted client is not read any more.
+    pub reader: tokio::task::JoinHandle<()>,
+}
+
+/// The longest line a client may send, without its newline (1 MiB): a
+/// client that sends more is at fault, and memory stays bounded.
+pub const MAX_LINE_BYTES: usize = 1 << 20;
+
+/// Read one line of at most [`MAX_LINE_BYTES`]; `Ok(None)` at the end of the stream.
+pub async fn read_line_bounded<R: tokio::io::AsyncBufRead + Unpin>(r: &mut R) -> Result<Option<String>, String> {
+    use tokio::io::AsyncBufReadExt as _;
+    let mut line = Vec::new();
+    loop {
+        let chunk = r.fill_buf().await.map_err(|e| format!("the connection failed: {e}"))?;
+        if chunk.is_empty() {
+            if line.is_empty() {
+                return Ok(None);
+            }
+            break;
+        }
+        let (take, done) = match chunk.iter().position(|&b| b == b'\n') {
+            Some(i) => (i, true),
+            None => (chunk.len(), false),
+        };
+        line.extend_from_slice(&chunk[..take]);
+        r.consume(take + usize::from(done));
+        if line.len() > MAX_LINE_BYTES {
+            return Err("the client sent a line longer than 1 MiB (the protocol's limit)".into());
+        }
+        if done {
+            break;
+        }
+    }
+    if line.last() == Some(&b'\r') {
+        line.pop();
+    }
+    String::from_utf8(line).map(Some).map_err(|_| "the client sent a line that is not UTF-8".into())
 }
 
 /// Writer tasks of closed clients, awaited before the process exits so that
@@ -47,10 +84,10 @@ pub fn spawn_client(
 ) -> Client {
     let (in_tx, inbox) = mpsc::channel();
     let (out, mut out_rx) = amp::unbounded_channel::<Outgoing>();
-    tokio::spawn(async move {
-        let mut lines = reader.lines();
+    let mut reader = reader;
+    let reader = tokio::spawn(async move {
         loop {
-            match lines.next_line().await {
+            match read_line_bounded(&mut reader).await {
                 Ok(Some(l)) => {
                     if in_tx.send(Incoming::Line(l)).is_err() {
                         break;
@@ -61,7 +98,7 @@ pub fn spawn_client(
                     break;
                 }
                 Err(e) => {
-                    let _ = in_tx.send(Incoming::Closed(format!("the connection failed: {e}")));
+                    let _ = in_tx.send(Incoming::Closed(e));
                     break;
                 }
             }
@@ -82,7 +119,7 @@ pub fn spawn_client(
             }
         }
     });
-    Client { out, inbox, writer }
+    Client { out, inbox, writer, reader }
 }
 
 /// Split a freshly accepted stream.
@@ -114,6 +151,7 @@ impl TcpGateway {
 impl TcpGateway {
     fn drop_client(&mut self, node: NodeId) {
         if let Some(c) = self.clients[node].take() {
+            c.reader.abort();
             let _ = c.out.send(Outgoing::Close);
             self.writers.lock().expect("no poisoned lock").push(c.writer);
         }

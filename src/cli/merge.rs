@@ -53,6 +53,8 @@ pub fn merge(args: MergeArgs) -> Result<u8, Failure> {
             all.push(r);
         }
     }
+    let names: Vec<String> = args.files.iter().map(|p| p.display().to_string()).collect();
+    row::check_rows(&all, &names.join(" + ")).map_err(Failure::input)?;
     let merged = row::merge(all).map_err(Failure::input)?;
     if let Some(r) = merged.first() {
         let missing: Vec<u64> = {

@@ -1,8 +1,10 @@
 //! `--seed` and `--duration`, shared by the commands that run a scenario.
 
+use std::path::Path;
+
 use clap::Args;
+use halfwire::scenario::Overrides;
 use halfwire::spec::Spec;
-use halfwire::units::{self, Picos};
 
 use super::Failure;
 
@@ -17,28 +19,14 @@ pub struct ScenarioOverrides {
 }
 
 impl ScenarioOverrides {
-    /// `--duration`, parsed.
-    pub fn duration(&self) -> Result<Option<Picos>, Failure> {
-        self.duration
-            .as_deref()
-            .map(|d| units::parse_time(d).map_err(|e| Failure::input(format!("--duration: {e}"))))
-            .transpose()
+    /// The overrides, for the library (which validates them with the scenario).
+    pub fn get(&self) -> Overrides {
+        Overrides { seed: self.seed, duration: self.duration.clone() }
     }
 
-    /// Apply both to a validated scenario.
-    pub fn apply(&self, spec: &mut Spec) -> Result<(), Failure> {
-        if let Some(seed) = self.seed {
-            spec.seed = seed;
-        }
-        if let Some(d) = self.duration()? {
-            if d <= spec.warmup {
-                return Err(Failure::input(format!(
-                    "--duration {d} must be longer than the scenario's warmup ({})",
-                    spec.warmup
-                )));
-            }
-            spec.duration = d;
-        }
-        Ok(())
+    /// Read a scenario file and validate it with these overrides written into it.
+    pub fn load(&self, path: &Path) -> Result<Spec, Failure> {
+        let text = halfwire::scenario::read_text(path)?;
+        Ok(halfwire::scenario::parse_with(&text, &path.display().to_string(), &self.get())?)
     }
 }

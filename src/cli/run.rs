@@ -71,7 +71,7 @@ pub fn parse_window(s: &str, duration: Picos) -> Result<(Picos, Picos), Failure>
 }
 
 pub fn run(args: RunArgs) -> Result<u8, Failure> {
-    let mut spec = halfwire::scenario::load(&args.file)?;
+    let spec = args.overrides.load(&args.file)?;
     let external: Vec<&str> = spec.nodes.iter().filter(|n| n.external).map(|n| n.name.as_str()).collect();
     if !external.is_empty() {
         eprintln!(
@@ -79,7 +79,6 @@ pub fn run(args: RunArgs) -> Result<u8, Failure> {
             external.join(", ")
         );
     }
-    args.overrides.apply(&mut spec)?;
     if let Some(n) = args.replications {
         return replicated(&spec, n, args.format);
     }
@@ -94,6 +93,32 @@ pub fn run(args: RunArgs) -> Result<u8, Failure> {
         Some(w) => parse_window(w, spec.duration)?,
         None => (Picos::ZERO, spec.duration),
     };
+    // Refuse outputs that cannot be drawn or would be huge before simulating anything.
+    if args.svg.is_some() && args.window.is_none() {
+        return Err(Failure::input(
+            "--svg draws a timing diagram of a few hand-overs: give the part of the run to draw with --window A..B \
+             (e.g. --window 100us..120us)",
+        ));
+    }
+    if let Some(path) = &args.vcd {
+        use halfwire::wave::vcd::{estimate_bytes, MAX_VCD_BYTES};
+        let span = (window.1 - window.0).as_secs_f64();
+        let estimate = estimate_bytes(spec.nodes.len(), spec.frame.bit_rate, span);
+        if estimate > MAX_VCD_BYTES {
+            let fits = span * (MAX_VCD_BYTES / estimate);
+            return Err(Failure::input(format!(
+                "--vcd {}: the waveform of {} of this bus could take up to {} (estimate: {} nodes at {}), more than \
+                 the {} limit; narrow it with --window A..B to at most about {}",
+                path.display(),
+                units::format_seconds(span),
+                human_bytes(estimate),
+                spec.nodes.len(),
+                units::format_si(spec.frame.bit_rate, "bit/s"),
+                human_bytes(MAX_VCD_BYTES),
+                units::format_seconds(fits)
+            )));
+        }
+    }
     let events_window = args.events.as_ref().map(|_| window);
     let mut log = match &args.events {
         Some(path) => Some(EventLog::new(AtomicFile::create(path)?, window)),
@@ -126,12 +151,7 @@ pub fn run(args: RunArgs) -> Result<u8, Failure> {
     if let Some(e) = write_error {
         return Err(e);
     }
-    if let Some(t) = sim.stalled() {
-        return Err(Failure::input(format!(
-            "{}: simulated time stopped advancing at {t}: the scenario schedules events forever at one instant (zero-length frames or timeouts?)",
-            args.file.display()
-        )));
-    }
+    let stalled = sim.stalled();
     let (mut report, tail) = sim.finish_with_trace();
     report.set_wall_time(started.elapsed().as_secs_f64());
     if let Some(w) = waves {
@@ -149,7 +169,29 @@ pub fn run(args: RunArgs) -> Result<u8, Failure> {
         Format::Text => text::render(&report, console::colors_enabled()),
     };
     print_stdout(&out)?;
+    if let Some(t) = stalled {
+        // The report above is partial (it says `stalled_at_s`); exit 2 as for bad input.
+        return Err(Failure::input(format!("{}: {}", args.file.display(), stall_message("the run", t.to_string()))));
+    }
     Ok(0)
+}
+
+/// A byte count in MiB or GiB.
+fn human_bytes(b: f64) -> String {
+    if b >= 1024.0 * 1024.0 * 1024.0 {
+        format!("{:.1} GiB", b / (1024.0 * 1024.0 * 1024.0))
+    } else {
+        format!("{:.0} MiB", b / (1024.0 * 1024.0))
+    }
+}
+
+/// What a stall means, for `run` and `cosim` alike.
+pub fn stall_message(what: &str, at: String) -> String {
+    format!(
+        "simulated time stopped advancing at {at}: {what} schedules events forever at one instant \
+         (zero-length frames or timeouts, or an external node that keeps answering with a timer at the same instant); \
+         the report above is partial"
+    )
 }
 
 /// The `--events` file, written in time order as events become final.

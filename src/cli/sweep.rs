@@ -12,7 +12,7 @@ use clap::Args;
 use halfwire::sweep::row::Row;
 use halfwire::sweep::runner::{self, Control, Observer};
 use halfwire::sweep::shard::{self, Shard};
-use halfwire::sweep::{axis, Mode, Overrides, Plan, PlanError, RunId};
+use halfwire::sweep::{axis, Mode, Plan, PlanError, RunId};
 use halfwire::units;
 
 use super::output::check_writable;
@@ -106,10 +106,8 @@ fn choose_shard(args: &SweepArgs) -> Result<(Shard, Option<String>), Failure> {
 
 pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
     let file = args.file.display().to_string();
-    let text = std::fs::read_to_string(&args.file)
-        .map_err(|e| Failure::input(format!("{file}: cannot read the scenario: {e}")))?;
+    let text = halfwire::scenario::read_text(&args.file)?;
     let axes = args.vary.iter().map(|v| axis::parse_vary(v)).collect::<Result<Vec<_>, _>>().map_err(Failure::input)?;
-    let duration = args.overrides.duration()?;
     let jobs = match args.jobs {
         Some(0) => return Err(Failure::input("--jobs must be at least 1")),
         Some(j) => j,
@@ -117,7 +115,7 @@ pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
     };
     let (shard, shard_note) = choose_shard(&args)?;
     let mode = if args.zip { Mode::Zip } else { Mode::Grid };
-    let overrides = Overrides { seed: args.overrides.seed, duration };
+    let overrides = args.overrides.get();
     let plan = Plan::new(&file, &text, axes, mode, args.replications, overrides).map_err(plan_failure)?;
     if let Some(metric) = &args.plot.y {
         let names = halfwire::report::tallies::Tallies::metric_names(&plan.spec(0).map_err(plan_failure)?);
@@ -151,7 +149,23 @@ pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
     if let Some(path) = &args.resume {
         if path.exists() {
             let read = rows::read(path)?;
-            for r in &read.rows {
+            halfwire::sweep::row::check_rows(&read.rows, &path.display().to_string()).map_err(Failure::input)?;
+            for (i, r) in read.rows.iter().enumerate() {
+                if r.sweep == plan.id()
+                    && (r.points != plan.points()
+                        || r.replications_per_point != plan.replications()
+                        || r.params
+                            .iter()
+                            .map(|p| (p.key.as_str(), &p.value))
+                            .ne(plan.values(r.point).into_iter().map(|(k, v)| (k, &v.value))))
+                {
+                    return Err(Failure::input(format!(
+                        "{}: row {}: its point {} and parameters do not match this sweep's plan",
+                        path.display(),
+                        i + 1,
+                        r.point
+                    )));
+                }
                 if r.sweep != plan.id() {
                     return Err(Failure::input(format!(
                         "{}: holds rows of another sweep (id {}; this sweep is {}): the scenario, the --vary values, \

@@ -297,6 +297,14 @@ impl Simulation {
                         at.0, free.0
                     ));
                 }
+                let earliest = self.world.earliest_enable(node);
+                if at < earliest {
+                    return Err(format!(
+                        "transmit at {} ps: the driver may enable again only at {} ps, when its previous \
+                         transmission's output is off and the interframe gap has passed",
+                        at.0, earliest.0
+                    ));
+                }
                 if frames.is_empty() {
                     return Err("transmit needs at least one frame".into());
                 }

@@ -102,6 +102,10 @@ pub struct Simulation {
 /// whose cycle takes no simulated time would otherwise never end.
 pub const STALL_EVENTS: u64 = 1_000_000;
 
+/// Exchanges with external nodes at one instant after which a co-simulation
+/// counts as stalled (each is a network round trip, so the limit is lower).
+pub const STALL_EXCHANGES: u64 = 10_000;
+
 impl Simulation {
     pub fn new(spec: &Spec) -> Self {
         Self::with_trace(spec, None)
@@ -161,6 +165,7 @@ impl Simulation {
         }
         let until = until.min(self.world.spec.duration);
         let mut same_instant = 0u64;
+        let mut exchanges_here = 0u64;
         loop {
             if self.stalled.is_some() || self.aborted().is_some() {
                 break;
@@ -170,6 +175,11 @@ impl Simulation {
             if self.cosim.as_ref().is_some_and(|c| c.has_pending())
                 && self.world.queue.peek_time() != Some(self.world.now)
             {
+                exchanges_here += 1;
+                if exchanges_here > STALL_EXCHANGES {
+                    self.stalled = Some(self.world.now);
+                    break;
+                }
                 self.exchange();
                 continue;
             }
@@ -185,6 +195,7 @@ impl Simulation {
                 }
             } else {
                 same_instant = 0;
+                exchanges_here = 0;
             }
             let (t, ev) = self.world.queue.pop().expect("peeked");
             self.world.now = t;
@@ -229,6 +240,7 @@ impl Simulation {
             // A run ended early covers the time up to its end.
             end = t.max(self.world.spec.warmup).min(end);
             self.world.spec.duration = end;
+            self.world.bus.end_window_at(end.0);
         }
         let w = &mut self.world;
         while let Some((t, ev)) = w.queue.pop() {
@@ -249,7 +261,7 @@ impl Simulation {
             report.run.cosim_exchanges = Some(c.exchanges);
             for f in &c.faults {
                 report.warnings.push(crate::report::Warning {
-                    code: "cosim_client_fault",
+                    code: "cosim-client-fault",
                     node: Some(self.world.spec.nodes[f.node].name.clone()),
                     message: format!("at {} (virtual time): {}", f.at, f.message),
                 });
@@ -302,16 +314,18 @@ impl Simulation {
         let now = w.now;
         if w.in_window(now) {
             if f.kind == FrameKind::Data {
+                // The frame's time on the wire inside the measured window.
+                let inside = f.e.min(w.spec.duration.0).saturating_sub(f.s.max(w.spec.warmup.0));
                 let st = &mut w.stats;
                 st.frames.attempts += 1;
                 st.data_frames_sent += 1;
-                st.data_wire_ps += f.e - f.s;
+                st.data_wire_ps += u128::from(f.e - f.s);
                 if corrupted {
                     st.frames.corrupted += 1;
                 } else if let Some(m) = f.message {
                     st.frames.delivered += 1;
-                    st.payload_bits += m.payload_bits;
-                    st.carried_ps += f.e - f.s;
+                    st.payload_bits += u128::from(m.payload_bits);
+                    st.carried_ps += u128::from(inside);
                     let lat = now.0 - m.arrival;
                     st.latency_all.record(lat);
                     st.latency_node[m.source].record(lat);
@@ -412,6 +426,7 @@ mod tests {
             p.request_bits = 0;
             p.reply_timeout = Picos::ZERO;
         }
+        spec.frame.interframe_gap = Picos::ZERO;
         for n in &mut spec.nodes {
             n.transceiver.enable_time = Picos::ZERO;
             n.transceiver.disable_time = Picos::ZERO;

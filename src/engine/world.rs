@@ -117,6 +117,10 @@ pub struct World {
     /// Per node: when its latest transmission releases the enable. A
     /// transceiver has one driver, so a new transmission may not start earlier.
     last_release: Vec<u64>,
+    /// Per node: the earliest instant its driver may be enabled for a new
+    /// transmission: the previous occupancy's output-off plus the interframe
+    /// gap (0 before its first). [`World::begin_tx`] never enables earlier.
+    next_enable: Vec<u64>,
     /// Nodes that asked to hear line busy/idle changes (co-simulation);
     /// empty in every other run, so transmissions pay nothing for it.
     pub(crate) line_watchers: Vec<NodeId>,
@@ -177,6 +181,7 @@ impl World {
             events: 0,
             tx: None,
             last_release: vec![0; n],
+            next_enable: vec![0; n],
             line_watchers: Vec::new(),
             externally_driven: vec![false; n],
             spec,
@@ -233,10 +238,10 @@ impl World {
         self.queues[node].push_front(msg);
     }
 
-    /// Count a message given up by the scheme.
-    pub fn count_drop(&mut self) {
+    /// Count a message the scheme gives up on (its last allowed attempt failed).
+    pub fn count_given_up(&mut self) {
         if self.in_window(self.now) {
-            self.stats.frames.dropped += 1;
+            self.stats.frames.given_up += 1;
         }
     }
 
@@ -292,7 +297,7 @@ impl World {
         }
         self.bus.util.add(crate::stats::utilization::Piece::Wasted, release - jam, release);
         self.bus.cut_short(occupancy, release, off);
-        self.last_release[node] = release;
+        self.released(node, release, off);
         TxTimes {
             enable: Picos(self.bus.occupancies().find(|o| o.id == occupancy).map_or(now, |o| o.a)),
             first_bit: Picos(self.bus.occupancies().find(|o| o.id == occupancy).map_or(now, |o| o.a + enable_time)),
@@ -308,8 +313,36 @@ impl World {
         self.queue.push(at.max(self.now), Event::Timer { node: node as u32, tag });
     }
 
-    /// Start assembling a transmission whose enable is asserted at `at` (not in the past).
+    /// Start assembling a transmission whose enable is asserted at `at`, or
+    /// as soon after it as the driver may be enabled again: never in the
+    /// past, and never before its previous occupancy is off plus the
+    /// interframe gap ([`World::earliest_enable`]).
     pub fn begin_tx(&mut self, node: NodeId, at: Picos) {
+        let at = at.max(self.earliest_enable(node));
+        self.open_tx(node, at);
+    }
+
+    /// Start the frame that continues a node's own arbitration field (one
+    /// frame with it, so no interframe gap): not before its last release.
+    pub fn begin_tx_continuing(&mut self, node: NodeId, at: Picos) {
+        assert!(at.0 >= self.last_release[node], "scheme error: a frame before the driver's previous release");
+        self.open_tx(node, at);
+    }
+
+    /// The earliest instant `node`'s driver may be enabled for a new
+    /// transmission: its previous occupancy's output-off plus the interframe
+    /// gap, and not before now.
+    pub fn earliest_enable(&self, node: NodeId) -> Picos {
+        Picos(self.next_enable[node]).max(self.now)
+    }
+
+    /// Record that `node`'s latest occupancy releases at `release` and is off at `off`.
+    fn released(&mut self, node: NodeId, release: u64, off: u64) {
+        self.last_release[node] = release;
+        self.next_enable[node] = off + self.spec.frame.interframe_gap.0;
+    }
+
+    fn open_tx(&mut self, node: NodeId, at: Picos) {
         assert!(self.tx.is_none(), "begin_tx while another transmission is open");
         let at = at.max(self.now).0;
         let enable_time = self.spec.nodes[node].transceiver.enable_time.0;
@@ -413,6 +446,7 @@ impl World {
         let release = tx.cursor;
         let off = release + disable;
         self.bus.insert(tx.occupancy, tx.node, tx.enable, release, off, tx.frames, false);
+        self.released(tx.node, release, off);
         if !self.line_watchers.is_empty() {
             // The line turns busy at each watching receiver when this driver's
             // signal reaches it, and idle when its output-off does.
@@ -445,7 +479,7 @@ impl World {
         let off = release + self.spec.nodes[node].transceiver.disable_time.0;
         let id = self.bus.reserve_id();
         self.bus.insert(id, node, a, release, off, 0, true);
-        self.last_release[node] = release;
+        self.released(node, release, off);
         id
     }
 
@@ -453,7 +487,7 @@ impl World {
     pub fn extend_dominant(&mut self, node: NodeId, occupancy: u64, release: Picos) {
         let off = release.0 + self.spec.nodes[node].transceiver.disable_time.0;
         self.bus.cut_short(occupancy, release.0, off);
-        self.last_release[node] = release.0;
+        self.released(node, release.0, off);
     }
 
     /// The driver stays on from a dominant drive straight into a frame: the
@@ -461,6 +495,7 @@ impl World {
     pub fn continue_from_dominant(&mut self, node: NodeId, occupancy: u64) {
         let release = self.last_release[node];
         self.bus.cut_short(occupancy, release, release);
+        self.released(node, release, release);
     }
 
     /// Is a dominant (or any) drive of another node visible at `node`'s
@@ -476,9 +511,18 @@ impl World {
         })
     }
 
-    /// Convenience: one transmission of the given frames.
+    /// Convenience: one transmission of the given frames (see [`World::begin_tx`]).
     pub fn transmit(&mut self, node: NodeId, at: Picos, frames: &[FrameOut]) -> TxTimes {
         self.begin_tx(node, at);
+        for f in frames {
+            self.add_frame(*f);
+        }
+        self.finish_tx()
+    }
+
+    /// One transmission continuing the node's arbitration field (see [`World::begin_tx_continuing`]).
+    pub fn transmit_continuing(&mut self, node: NodeId, at: Picos, frames: &[FrameOut]) -> TxTimes {
+        self.begin_tx_continuing(node, at);
         for f in frames {
             self.add_frame(*f);
         }

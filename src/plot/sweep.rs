@@ -35,6 +35,13 @@ fn geometric(xs: &[f64]) -> bool {
 
 pub fn chart(rows: &[Row], metric: &str, series_key: Option<&str>) -> Result<Chart, String> {
     let first = rows.first().ok_or("the sweep has no rows to plot")?;
+    // Every row must carry the varied keys in one order (a row file edited by hand may not).
+    let keys_of = |r: &Row| r.params.iter().map(|p| p.key.clone()).collect::<Vec<_>>();
+    if first.params.is_empty() || rows.iter().any(|r| keys_of(r) != keys_of(first)) {
+        return Err("the rows do not carry the sweep's varied parameters in one order, so there is no x axis to \
+                    plot against (were the row files edited?)"
+            .into());
+    }
     let x_key = first.params[0].key.clone();
     let keys: Vec<&str> = first.params.iter().map(|p| p.key.as_str()).collect();
     if let Some(s) = series_key {

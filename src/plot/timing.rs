@@ -172,7 +172,7 @@ fn bus_lane(svg: &mut Svg, rec: &Recording, px: &dyn Fn(u64) -> f64, fmt: &dyn F
                 }
             }
         }
-        if latest.map_or(true, |(off, _)| o.b >= off) {
+        if latest.is_none_or(|(off, _)| o.b >= off) {
             latest = Some((o.b, o.node));
         }
     }
@@ -192,7 +192,7 @@ fn node_lane(
     pw: f64,
 ) {
     let font = if lh < 24.0 { 11.0 } else { 12.0 };
-    let stripe = if i % 2 == 0 { "#ffffff" } else { "#f4f6f8" };
+    let stripe = if i.is_multiple_of(2) { "#ffffff" } else { "#f4f6f8" };
     svg.raw(&format!(r#"<g class="lane" data-node="{}">"#, esc(name)));
     svg.rect(LEFT, y0, W - LEFT - RIGHT, lh, &format!(r#"fill="{stripe}""#));
     svg.text(LEFT - 10.0, y0 + lh / 2.0 + font / 3.0, name, &format!(r#"text-anchor="end" font-size="{font}""#));

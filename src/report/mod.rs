@@ -4,6 +4,7 @@
 //! plain counts and fractions. Only the `run` object depends on the machine;
 //! everything else is a pure function of the scenario and seed.
 
+pub mod invariants;
 pub mod json;
 pub mod tallies;
 pub mod text;
@@ -52,6 +53,9 @@ pub struct Report {
 pub struct ScenarioId {
     pub name: String,
     pub seed: u64,
+    /// The whole simulated time (the run stops here) and the warmup left out of the statistics.
+    pub duration_s: f64,
+    pub warmup_s: f64,
 }
 
 #[derive(Clone, Copy, Debug, Serialize)]
@@ -59,7 +63,10 @@ pub struct Frames {
     pub attempts: u64,
     pub delivered: u64,
     pub corrupted: u64,
+    /// Messages dropped at a full queue.
     pub dropped: u64,
+    /// Messages the scheme gave up on after its last allowed attempt.
+    pub given_up: u64,
     pub arrived: u64,
     pub control: u64,
     pub control_corrupted: u64,
@@ -200,7 +207,12 @@ impl Report {
         let warnings = warnings(w, amp, &contention, &floating, &frames);
         Report {
             schema: SCHEMA,
-            scenario: ScenarioId { name: spec.name.clone(), seed: spec.seed },
+            scenario: ScenarioId {
+                name: spec.name.clone(),
+                seed: spec.seed,
+                duration_s: spec.duration.as_secs_f64(),
+                warmup_s: spec.warmup.as_secs_f64(),
+            },
             simulated_s: measured,
             frames,
             throughput,
@@ -268,7 +280,20 @@ fn warnings(w: &World, amp: f64, c: &Contention, f: &Floating, frames: &Frames) 
         out.push(Warning {
             code: "drops",
             node: None,
-            message: format!("{} messages dropped at full queues", frames.dropped),
+            message: format!(
+                "{} messages dropped at full queues (queue_limit reached): the offered load may exceed what the scheme carries",
+                frames.dropped
+            ),
+        });
+    }
+    if frames.given_up > 0 {
+        out.push(Warning {
+            code: "given-up",
+            node: None,
+            message: format!(
+                "{} messages given up after the scheme's last allowed attempt (max_attempts)",
+                frames.given_up
+            ),
         });
     }
     if frames.arrived > 0 && frames.queued_at_end > frames.arrived / 10 + 100 {

@@ -18,22 +18,25 @@ use crate::units::Picos;
 pub struct Tallies {
     /// Length of the measured window(s), summed.
     pub measured_ps: u64,
-    pub payload_bits: u64,
-    pub carried_ps: u64,
+    /// Sums that can exceed 2^64 (over nodes or receivers) are 128-bit.
+    pub payload_bits: u128,
+    pub carried_ps: u128,
     pub attempts: u64,
     pub delivered: u64,
     pub corrupted: u64,
     pub dropped: u64,
+    #[serde(default)]
+    pub given_up: u64,
     pub arrived: u64,
     pub control: u64,
     pub control_corrupted: u64,
     pub queued_at_end: u64,
     pub access_attempts: u64,
     pub contention_events: u64,
-    pub overlap_total_ps: u64,
+    pub overlap_total_ps: u128,
     pub overlap_max_ps: u64,
     pub floating_windows: u64,
-    pub floating_total_ps: u64,
+    pub floating_total_ps: u128,
     pub floating_longest_ps: u64,
     pub util_payload_ps: u64,
     pub util_overhead_ps: u64,
@@ -73,6 +76,7 @@ impl Tallies {
             delivered: st.frames.delivered,
             corrupted: st.frames.corrupted,
             dropped: st.frames.dropped,
+            given_up: st.frames.given_up,
             arrived: st.frames.arrived,
             control: st.frames.control_frames,
             control_corrupted: st.frames.control_corrupted,
@@ -112,6 +116,7 @@ impl Tallies {
         self.delivered += o.delivered;
         self.corrupted += o.corrupted;
         self.dropped += o.dropped;
+        self.given_up += o.given_up;
         self.arrived += o.arrived;
         self.control += o.control;
         self.control_corrupted += o.control_corrupted;
@@ -170,6 +175,7 @@ impl Tallies {
             delivered: self.delivered,
             corrupted: self.corrupted,
             dropped: self.dropped,
+            given_up: self.given_up,
             arrived: self.arrived,
             control: self.control,
             control_corrupted: self.control_corrupted,
@@ -195,7 +201,7 @@ impl Tallies {
     /// same functions the report uses, so one run's tallies give exactly its
     /// report's figures.
     pub fn metrics(&self) -> Result<BTreeMap<String, f64>, String> {
-        let ps = |x: u64| x as f64 * 1e-12;
+        let ps = |x: u128| x as f64 * 1e-12;
         let figures = serde_json::json!({
             "simulated_s": self.measured_s(),
             "throughput": {
@@ -207,12 +213,12 @@ impl Tallies {
             "contention": {
                 "events": self.contention_events,
                 "overlap_total_s": ps(self.overlap_total_ps),
-                "overlap_max_s": ps(self.overlap_max_ps),
+                "overlap_max_s": ps(u128::from(self.overlap_max_ps)),
             },
             "floating": {
                 "windows": self.floating_windows,
                 "total_s": ps(self.floating_total_ps),
-                "longest_s": ps(self.floating_longest_ps),
+                "longest_s": ps(u128::from(self.floating_longest_ps)),
             },
             "utilization": self.utilization(),
         });

@@ -60,12 +60,17 @@ pub fn line_transit_row(out: &mut String, l: &LineFigures) {
 }
 
 pub fn render(r: &Report, color: bool) -> String {
+    render_titled(r, "halfwire run", color)
+}
+
+/// The report under another command's title (`halfwire cosim`).
+pub fn render_titled(r: &Report, title: &str, color: bool) -> String {
     let st = Styles::new(color);
     let mut o = String::new();
     let _ = writeln!(
         o,
         "{} {}  (seed {}, {} measured, {} scheme)",
-        st.head.apply_to("halfwire run:"),
+        st.head.apply_to(format!("{title}:")),
         r.scenario.name,
         r.scenario.seed,
         format_seconds(r.simulated_s),
@@ -102,8 +107,8 @@ pub fn render(r: &Report, color: bool) -> String {
     let f = &r.frames;
     let _ = writeln!(
         o,
-        "  data frames: {} sent, {} delivered, {} corrupted; {} messages dropped, {} queued at end",
-        f.attempts, f.delivered, f.corrupted, f.dropped, f.queued_at_end
+        "  data frames: {} sent, {} delivered, {} corrupted; messages: {} dropped at full queues, {} given up, {} queued at end",
+        f.attempts, f.delivered, f.corrupted, f.dropped, f.given_up, f.queued_at_end
     );
     let u = &r.utilization;
     let _ = writeln!(

@@ -53,7 +53,11 @@ impl<'a> V<'a> {
     pub fn time(&self, v: &S, key: &str) -> R<Picos> {
         let t = units::parse_time(v.get_ref()).map_err(|e| self.err(v.span(), key, e.message))?;
         if t > MAX_TIME {
-            return Err(self.err(v.span(), key, format!("{t} is longer than the supported {MAX_TIME}")));
+            return Err(self.err(
+                v.span(),
+                key,
+                format!("{t} is longer than the longest supported time, 10^6 s (about 11.6 days)"),
+            ));
         }
         Ok(t)
     }

@@ -65,9 +65,9 @@ impl fmt::Display for ScenarioError {
         write!(f, "{}", self.message)?;
         if let Some(src) = &self.source_line {
             let gutter = self.line.to_string();
-            write!(f, "\n {gutter} | {src}")?;
-            let pad: String =
-                src.chars().take(self.column.saturating_sub(1)).map(|c| if c == '\t' { '\t' } else { ' ' }).collect();
+            let (shown, caret) = excerpt(src, self.column.saturating_sub(1));
+            write!(f, "\n {gutter} | {shown}")?;
+            let pad: String = shown.chars().take(caret).map(|c| if c == '\t' { '\t' } else { ' ' }).collect();
             write!(f, "\n {} | {}^", " ".repeat(gutter.len()), pad)?;
         }
         if let Some(h) = &self.hint {
@@ -78,6 +78,30 @@ impl fmt::Display for ScenarioError {
 }
 
 impl std::error::Error for ScenarioError {}
+
+/// Longest source line shown whole in an error; a longer one is cut around the column.
+const EXCERPT_CHARS: usize = 120;
+
+/// The part of `line` to show and the caret's position in it (in characters).
+fn excerpt(line: &str, column: usize) -> (String, usize) {
+    let count = line.chars().count();
+    if count <= EXCERPT_CHARS {
+        return (line.to_owned(), column);
+    }
+    let half = EXCERPT_CHARS / 2;
+    let start = column.saturating_sub(half).min(count.saturating_sub(EXCERPT_CHARS));
+    let end = (start + EXCERPT_CHARS).min(count);
+    let mut shown: String = line.chars().skip(start).take(end - start).collect();
+    let mut caret = column - start;
+    if start > 0 {
+        shown.insert(0, '…');
+        caret += 1;
+    }
+    if end < count {
+        shown.push('…');
+    }
+    (shown, caret)
+}
 
 /// 1-based line and column (in characters) of a byte offset.
 pub fn line_col(source: &str, offset: usize) -> (usize, usize) {
@@ -122,6 +146,17 @@ mod tests {
     fn hints_only_for_near_misses() {
         assert_eq!(did_you_mean("lenght", ["length", "impedance"]), Some("length"));
         assert_eq!(did_you_mean("zzz", ["length", "impedance"]), None);
+    }
+
+    #[test]
+    fn long_lines_are_cut_around_the_column() {
+        let src = format!("name = \"{}\" x\n", "y".repeat(100_000));
+        let e = ScenarioError::at("s.toml", &src, 100_010, "name", "oops");
+        let text = e.to_string();
+        assert!(text.len() < 600, "{} bytes", text.len());
+        let lines: Vec<&str> = text.lines().collect();
+        let caret = lines[2].find('^').unwrap();
+        assert_eq!(lines[1].chars().nth(caret), Some('x'), "{text}");
     }
 
     #[test]

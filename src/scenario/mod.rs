@@ -2,6 +2,7 @@
 
 mod access;
 pub(crate) mod check;
+pub mod edit;
 pub mod error;
 pub mod keypath;
 pub mod raw;
@@ -9,6 +10,8 @@ mod transceiver;
 pub mod validate;
 
 pub use error::ScenarioError;
+
+use std::io::Read;
 
 use crate::spec::Spec;
 
@@ -18,12 +21,101 @@ pub fn parse_str(text: &str, file: &str) -> Result<Spec, ScenarioError> {
     validate::validate(&raw, file, text)
 }
 
+/// The largest scenario file halfwire reads (4 MiB): a few thousand nodes
+/// with their own tables fit many times over, and a runaway file is
+/// refused before it is parsed.
+pub const MAX_SCENARIO_BYTES: u64 = 4 << 20;
+
 /// Read, parse and validate a scenario file.
 pub fn load(path: &std::path::Path) -> Result<Spec, ScenarioError> {
     let file = path.display().to_string();
-    let text = std::fs::read_to_string(path)
-        .map_err(|e| ScenarioError::whole_file(&file, format!("cannot read the scenario: {e}")))?;
-    parse_str(&text, &file)
+    parse_str(&read_text(path)?, &file)
+}
+
+/// Read a scenario file's text: a regular file (a FIFO or a device would
+/// block or never end), at most [`MAX_SCENARIO_BYTES`], in UTF-8.
+pub fn read_text(path: &std::path::Path) -> Result<String, ScenarioError> {
+    let file = path.display().to_string();
+    let fail = |m: String| ScenarioError::whole_file(&file, m);
+    let meta = std::fs::metadata(path).map_err(|e| fail(format!("cannot read the scenario: {e}")))?;
+    if !meta.is_file() {
+        return Err(fail("not a regular file: a scenario is read from a file (or `-` for standard input)".into()));
+    }
+    let f = std::fs::File::open(path).map_err(|e| fail(format!("cannot read the scenario: {e}")))?;
+    read_bounded(f, &file)
+}
+
+/// Read at most [`MAX_SCENARIO_BYTES`] of scenario text from `r` (`file` names it in errors).
+pub fn read_bounded(r: impl std::io::Read, file: &str) -> Result<String, ScenarioError> {
+    let mut bytes = Vec::new();
+    r.take(MAX_SCENARIO_BYTES + 1)
+        .read_to_end(&mut bytes)
+        .map_err(|e| ScenarioError::whole_file(file, format!("cannot read the scenario: {e}")))?;
+    if bytes.len() as u64 > MAX_SCENARIO_BYTES {
+        return Err(ScenarioError::whole_file(
+            file,
+            format!("the file is larger than {} MiB, the most a scenario may be", MAX_SCENARIO_BYTES >> 20),
+        ));
+    }
+    String::from_utf8(bytes).map_err(|e| {
+        ScenarioError::whole_file(
+            file,
+            format!("the scenario is not UTF-8 text (byte {})", e.utf8_error().valid_up_to()),
+        )
+    })
+}
+
+/// Values given on the command line in place of the scenario's own. They
+/// are written into the scenario text before validation, so an override is
+/// checked exactly as the same value in the file would be.
+#[derive(Clone, Debug, Default, PartialEq, Eq)]
+pub struct Overrides {
+    pub seed: Option<u64>,
+    /// A time with its unit, as given (`"50 ms"`).
+    pub duration: Option<String>,
+}
+
+impl Overrides {
+    pub fn is_empty(&self) -> bool {
+        self.seed.is_none() && self.duration.is_none()
+    }
+}
+
+/// Parse and validate scenario text with command-line overrides applied.
+pub fn parse_with(text: &str, file: &str, o: &Overrides) -> Result<Spec, ScenarioError> {
+    if o.is_empty() {
+        return parse_str(text, file);
+    }
+    // Text that is not TOML gets its positioned error from the plain parse.
+    let Ok(mut doc) = text.parse::<toml_edit::DocumentMut>() else {
+        return parse_str(text, file);
+    };
+    let set = |doc: &mut toml_edit::DocumentMut, key: &str, v: edit::Literal, flag: &str| {
+        edit::set(doc, key, &v).map_err(|e| ScenarioError::whole_file(file, format!("{flag}: {e}")))
+    };
+    if let Some(seed) = o.seed {
+        let s = i64::try_from(seed).map_err(|_| {
+            ScenarioError::whole_file(
+                file,
+                format!("--seed {seed}: a seed runs from 0 to 2^63 − 1 (TOML's integer range)"),
+            )
+        })?;
+        set(&mut doc, "seed", edit::Literal::Int(s), "--seed")?;
+    }
+    if let Some(d) = &o.duration {
+        set(&mut doc, "duration", edit::Literal::Text(d.clone()), "--duration")?;
+    }
+    parse_str(&doc.to_string(), file).map_err(|mut e| {
+        let from = match e.key.as_str() {
+            "duration" | "warmup" if o.duration.is_some() => Some("the duration given by --duration"),
+            "seed" if o.seed.is_some() => Some("the seed given by --seed"),
+            _ => None,
+        };
+        if let Some(what) = from {
+            e.message = format!("{} (with {what})", e.message);
+        }
+        e
+    })
 }
 
 /// Turn a TOML/serde error into a positioned error with the key path and,

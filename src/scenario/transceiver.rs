@@ -10,7 +10,12 @@ use super::raw::{RawTime, RawTransceiver, S};
 use crate::line::family::{self, Family};
 use crate::line::ReceiverClass;
 use crate::spec::{Driver, TimeRange, Timing, Transceiver, UNIT_LOAD_OHM};
-use crate::units::Dimension;
+use crate::units::{Dimension, Picos};
+
+/// The longest enable, disable or receiver time (1 s): transceivers take
+/// nanoseconds to microseconds, and the bound keeps every occupancy and
+/// overlap far inside the picosecond range.
+pub const MAX_TRANSCEIVER_TIME: Picos = Picos(1_000_000_000_000);
 
 const RECEIVERS: &[&str] = &["type1", "type2", "lvds", "tia485"];
 const DRIVERS: &[&str] = &["current", "voltage"];
@@ -53,13 +58,24 @@ impl<'a> Levels<'a> {
         let Some((raw, k)) = self.get(f, name) else {
             return Err(self.missing(name, "timing"));
         };
+        let one = |s: &S| -> R<Picos> {
+            let t = self.v.time(s, &k)?;
+            if t > MAX_TRANSCEIVER_TIME {
+                return Err(self.v.err(
+                    s.span(),
+                    &k,
+                    format!("{t} is longer than the longest transceiver time supported, {MAX_TRANSCEIVER_TIME} (firmware delays belong in turnaround or response_latency)"),
+                ));
+            }
+            Ok(t)
+        };
         match raw.get_ref() {
-            RawTime::One(s) => Ok(TimeRange::fixed(self.v.time(&Spanned::new(raw.span(), s.clone()), &k)?)),
+            RawTime::One(s) => Ok(TimeRange::fixed(one(&Spanned::new(raw.span(), s.clone()))?)),
             RawTime::Range(list) => {
                 if list.len() != 2 {
                     return Err(self.v.err(raw.span(), &k, "a time range takes two times: [min, max]"));
                 }
-                let (min, max) = (self.v.time(&list[0], &k)?, self.v.time(&list[1], &k)?);
+                let (min, max) = (one(&list[0])?, one(&list[1])?);
                 if min > max {
                     return Err(self.v.err(raw.span(), &k, format!("the range's min ({min}) exceeds its max ({max})")));
                 }

@@ -15,8 +15,20 @@ use toml::Spanned;
 /// Most nodes on one bus (the engine keeps an N × N delay matrix).
 pub const MAX_NODES: usize = 4096;
 
+/// Most messages one node may hold (its `queue_limit`): a queue's memory is
+/// about 40 bytes a message.
+pub const MAX_QUEUE_LIMIT: u64 = 1_000_000;
+
+/// Most traffic sources at one node.
+pub const MAX_SOURCES_PER_NODE: usize = 256;
+
 /// Most data bits in one frame (2⁴⁰); larger frames would overflow picosecond time.
 pub const MAX_FRAME_BITS: u64 = 1 << 40;
+
+/// The slowest line supported (1 µs/m, a velocity factor of 0.0033): far
+/// slower than any cable, and it keeps the longest wire delay (10^5 m of
+/// line) at 0.1 s.
+pub const MAX_DELAY_S_PER_M: f64 = 1e-6;
 
 /// Speed of light in vacuum (m/s), exact by the SI definition.
 const C_M_PER_S: f64 = 299_792_458.0;
@@ -127,15 +139,20 @@ fn validate_line(v: &V, l: &RawLine, at: Range<usize>) -> R<LineSpec> {
                     format!("\"{}\" is faster than light (at least 3.336 ns/m)", d.get_ref()),
                 ));
             }
-            v.within(d, Dimension::DelayPerLength, "line.delay", 1e-9, 1e-6, "s/m")?
+            v.within(d, Dimension::DelayPerLength, "line.delay", 1e-9, MAX_DELAY_S_PER_M, "s/m")?
         }
         (None, Some(vf)) => {
+            // The same bounds as `delay`: tpd0 = 1/(vf·c) from 1/c (vf = 1) to 1 µs/m.
             let f = *vf.get_ref();
-            if !(f > 0.0 && f <= 1.0) {
+            let slowest = 1.0 / (MAX_DELAY_S_PER_M * C_M_PER_S);
+            if !(f.is_finite() && (slowest..=1.0).contains(&f)) {
                 return Err(v.err(
                     vf.span(),
                     "line.velocity_factor",
-                    format!("velocity factor {f} must lie in (0, 1]"),
+                    format!(
+                        "velocity factor {f} is outside the supported {slowest:.6} to 1 (a delay of 3.336 ns/m to {})",
+                        units::format_si(MAX_DELAY_S_PER_M, "s/m")
+                    ),
                 ));
             }
             1.0 / (f * C_M_PER_S)
@@ -294,11 +311,16 @@ fn check_arrival_count(v: &V, raw: &RawScenario, nodes: &[NodeSpec], duration: P
     Ok(())
 }
 
+/// Does a frame of `line_bits` line bits last at most the longest supported time?
+pub(crate) fn fits_time(frame: &FrameFormat, line_bits: u64) -> bool {
+    line_bits as f64 / frame.bit_rate <= MAX_TIME.as_secs_f64()
+}
+
 /// The longest data frame must fit the supported time range.
 fn check_frame_times(v: &V, raw: &RawScenario, frame: &FrameFormat, nodes: &[NodeSpec]) -> R<()> {
     let longest = nodes.iter().map(NodeSpec::longest_payload_bits).max().unwrap_or(0);
     let line_bits = frame.data_line_bits(longest);
-    if line_bits as f64 / frame.bit_rate > MAX_TIME.as_secs_f64() {
+    if !fits_time(frame, line_bits) {
         return Err(v.err(
             raw.frame.get_ref().bit_rate.span(),
             "frame.bit_rate",
@@ -470,6 +492,13 @@ fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec, timing: Timing) -> 
         let mut traffic = Vec::new();
         let mut queue_limit: Option<usize> = None;
         if let Some(t) = p.traffic {
+            if t.get_ref().0.len() > MAX_SOURCES_PER_NODE {
+                return Err(v.err(
+                    t.span(),
+                    &format!("{}.traffic", p.key),
+                    format!("at most {MAX_SOURCES_PER_NODE} traffic sources per node are supported"),
+                ));
+            }
             for (j, src) in t.get_ref().0.iter().enumerate() {
                 let key = if t.get_ref().0.len() == 1 {
                     format!("{}.traffic", p.key)
@@ -584,11 +613,17 @@ fn validate_traffic(
             }
         }
     };
-    let limit = r.queue_limit.as_ref().map(|q| *q.get_ref() as usize);
-    if limit == Some(0) {
-        let q = r.queue_limit.as_ref().expect("just checked");
-        return Err(v.err(q.span(), &format!("{key}.queue_limit"), "queue_limit must be at least 1"));
+    let limit = r.queue_limit.as_ref().map(|q| *q.get_ref());
+    if let Some(q) = &r.queue_limit {
+        if !(1..=MAX_QUEUE_LIMIT).contains(q.get_ref()) {
+            return Err(v.err(
+                q.span(),
+                &format!("{key}.queue_limit"),
+                format!("queue_limit must lie between 1 and {MAX_QUEUE_LIMIT} (memory grows with it)"),
+            ));
+        }
     }
+    let limit = limit.map(|l| l as usize);
     let id = r.id.as_ref().map(|i| *i.get_ref());
     Ok((TrafficSpec { pattern, payload, to, id }, limit))
 }

@@ -67,9 +67,7 @@ impl Aloha {
             self.flight[node] = Some(InFlight { msg, attempts: 0, delivered: false });
             w.set_holding(node, 1);
             // After its own frame a node keeps the interframe gap.
-            let free = w.driver_free_at(node);
-            let earliest = if free > Picos::ZERO { free + w.spec().frame.interframe_gap } else { Picos::ZERO };
-            let at = self.start_time(w.now().max(earliest));
+            let at = self.start_time(w.earliest_enable(node));
             self.send(w, node, at);
         }
     }
@@ -108,7 +106,7 @@ impl AccessScheme for Aloha {
                 if self.spec.max_attempts > 0 && f.attempts >= self.spec.max_attempts {
                     self.flight[node] = None;
                     w.set_holding(node, 0);
-                    w.count_drop();
+                    w.count_given_up();
                     if counted {
                         self.given_up += 1;
                     }

@@ -295,7 +295,7 @@ impl Arbitration {
         let enable = boundary.saturating_sub(en).max(w.driver_free_at(node)).max(now);
         let msg = self.nodes[node].msg.expect("a contender holds a message");
         w.count_access_attempt();
-        let tx = w.transmit(node, enable, &[FrameOut::data(msg, w.spec().frame.overhead_bits)]);
+        let tx = w.transmit_continuing(node, enable, &[FrameOut::data(msg, w.spec().frame.overhead_bits)]);
         self.note(w, node, tx.enable, tx.off);
         self.nodes[node].phase = Phase::Sending;
         debug!(t_ps = now.0, node = %w.spec().nodes[node].name, id, "won arbitration");

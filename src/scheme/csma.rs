@@ -105,8 +105,8 @@ impl Csma {
     /// A channel access attempt: sense the line. A node that has just sent
     /// keeps the interframe gap first.
     fn attempt(&mut self, w: &mut World, node: NodeId) {
-        let earliest = w.driver_free_at(node) + w.spec().frame.interframe_gap;
-        if w.driver_free_at(node) > Picos::ZERO && w.now() < earliest {
+        let earliest = w.earliest_enable(node);
+        if w.now() < earliest {
             self.timer(w, node, earliest, ATTEMPT);
             return;
         }
@@ -156,7 +156,7 @@ impl Csma {
 
     fn send(&mut self, w: &mut World, node: NodeId) {
         let msg = self.nodes[node].msg.expect("a message in hand");
-        let at = w.now().max(w.driver_free_at(node));
+        let at = w.earliest_enable(node);
         let tx = w.transmit(node, at, &[FrameOut::data(msg, w.spec().frame.overhead_bits)]);
         self.bump(node);
         let st = &mut self.nodes[node];
@@ -225,7 +225,7 @@ impl Csma {
         if self.spec.max_attempts > 0 && st.attempts >= self.spec.max_attempts {
             st.msg = None;
             w.set_holding(node, 0);
-            w.count_drop();
+            w.count_given_up();
             if counted {
                 self.given_up += 1;
             }
@@ -235,7 +235,7 @@ impl Csma {
         let delay = if self.spec.collision_detect && !self.spec.backoff_given {
             let n = st.attempts.min(10);
             let k = w.rng(node).random_range(0..(1u64 << n));
-            Picos(k * self.spec.slot_time.0)
+            super::capped_delay(u128::from(k) * u128::from(self.spec.slot_time.0))
         } else {
             sample_latency(&self.spec.backoff, w.rng(node))
         };

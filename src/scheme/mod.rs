@@ -109,8 +109,23 @@ impl serde::Serialize for SchemeReport {
     }
 }
 
-/// Draw a firmware latency. Normal draws are truncated at zero.
+/// The longest delay a scheme ever schedules: a draw beyond it would land
+/// after the end of any run (runs last at most this long), so capping at it
+/// changes no result and keeps every sum of times inside `u64` picoseconds.
+pub const MAX_DELAY: Picos = crate::scenario::check::MAX_TIME;
+
+/// A delay computed in wide arithmetic, capped at [`MAX_DELAY`].
+pub fn capped_delay(ps: u128) -> Picos {
+    Picos(ps.min(u128::from(MAX_DELAY.0)) as u64)
+}
+
+/// Draw a firmware latency. Normal draws are truncated at zero, and every
+/// draw is capped at [`MAX_DELAY`].
 pub fn sample_latency(latency: &Latency, rng: &mut Stream) -> Picos {
+    draw(latency, rng).min(MAX_DELAY)
+}
+
+fn draw(latency: &Latency, rng: &mut Stream) -> Picos {
     match *latency {
         Latency::Fixed(t) => t,
         Latency::Uniform { min, max } => Picos(rng.random_range(min.0..=max.0)),

@@ -98,8 +98,7 @@ impl Tdma {
 
     fn run_slot(&mut self, w: &mut World, node: NodeId, k: usize) {
         let end = self.slot_end[k];
-        let now = w.now();
-        let now = now.max(w.driver_free_at(node));
+        let now = w.earliest_enable(node);
         let frame = w.spec().frame.clone();
         let overhead = frame.overhead_bits;
         let mut cursor = now + w.spec().nodes[node].transceiver.enable_time;

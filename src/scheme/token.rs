@@ -78,6 +78,9 @@ impl Token {
 
     /// `node` holds the token and asserts its enable at `enable`.
     fn hold(&mut self, w: &mut World, node: NodeId, enable: Picos) {
+        // A node that already holds a token (a duplicate after a spurious
+        // regeneration) sends the second after the first, never over it.
+        let enable = enable.max(w.earliest_enable(node));
         if node == self.spec.order[0] {
             if let Some(prev) = self.last_head_visit {
                 if prev >= w.spec().warmup && w.in_window(enable) {

@@ -13,8 +13,10 @@ pub struct FrameCounters {
     pub attempts: u64,
     pub delivered: u64,
     pub corrupted: u64,
-    /// Messages dropped (queue full, or given up by the scheme).
+    /// Messages dropped at a full queue.
     pub dropped: u64,
+    /// Messages the scheme gave up on after its last allowed attempt.
+    pub given_up: u64,
     /// Messages that arrived at a queue.
     pub arrived: u64,
     /// Channel access attempts, as the scheme counts them.
@@ -29,11 +31,11 @@ pub struct FrameCounters {
 pub struct Stats {
     pub frames: FrameCounters,
     /// Payload bits of delivered data frames.
-    pub payload_bits: u64,
+    pub payload_bits: u128,
     /// On-wire time of delivered data frames (ps).
-    pub carried_ps: u64,
+    pub carried_ps: u128,
     /// On-wire time of every data frame transmitted (ps) and their count.
-    pub data_wire_ps: u64,
+    pub data_wire_ps: u128,
     pub data_frames_sent: u64,
     pub latency_all: LatencyStats,
     /// Per source node.

@@ -139,6 +139,11 @@ impl UtilizationSweep {
         self.account(frontier);
     }
 
+    /// Move the end of the window earlier (never before its start).
+    pub fn end_window_at(&mut self, end: u64) {
+        self.window.1 = self.window.1.min(end).max(self.window.0);
+    }
+
     /// Classify everything up to the end of the window.
     pub fn finish(&mut self) -> UtilizationTotals {
         // Edges beyond the window do not matter once the window is classified.

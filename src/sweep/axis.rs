@@ -12,15 +12,7 @@ use crate::units::{self, Dimension};
 /// Most values one axis may take.
 pub const MAX_VALUES: usize = 100_000;
 
-/// A value as written into the scenario's TOML.
-#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-#[serde(untagged)]
-pub enum Literal {
-    Bool(bool),
-    Int(i64),
-    Float(f64),
-    Text(String),
-}
+pub use crate::scenario::edit::Literal;
 
 /// One value of an axis: what goes into the scenario, and its size in SI
 /// base units when it is a quantity or a number.
@@ -185,6 +177,12 @@ fn parse_range(a: &str, rest: &str) -> Result<Vec<AxisValue>, String> {
             let step = read("step", &s)?;
             if step <= 0.0 {
                 return Err(format!("the step {s} must be greater than zero"));
+            }
+            if end > start && step > (end - start) * (1.0 + 1e-12) {
+                return Err(format!(
+                    "the step {s} is larger than the range {a}..{b}, which would leave only its start: \
+                     give a step no larger than the range, or list the value alone"
+                ));
             }
             let n = ((end - start) / step * (1.0 + 1e-12) + 1e-9).floor() + 1.0;
             if n > MAX_VALUES as f64 {

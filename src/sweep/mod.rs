@@ -6,7 +6,6 @@
 //! point-major. Each run produces one [`row::Row`]. Rows of one point add up
 //! exactly ([`row::merge`]), whichever process or shard produced them.
 
-pub mod apply;
 pub mod axis;
 pub mod row;
 pub mod runner;
@@ -17,7 +16,6 @@ use toml_edit::DocumentMut;
 
 use crate::scenario::ScenarioError;
 use crate::spec::Spec;
-use crate::units::Picos;
 pub use axis::{Axis, AxisValue, Literal};
 
 /// Version tag of sweep rows.
@@ -38,12 +36,8 @@ pub enum Mode {
     Zip,
 }
 
-/// Settings applied to every point after the varied keys.
-#[derive(Clone, Debug, Default, PartialEq)]
-pub struct Overrides {
-    pub seed: Option<u64>,
-    pub duration: Option<Picos>,
-}
+/// Settings applied to every point after the varied keys (validated with it).
+pub use crate::scenario::Overrides;
 
 /// One simulation of the sweep.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord)]
@@ -201,10 +195,11 @@ impl Plan {
         let mut doc: DocumentMut =
             self.text.parse().map_err(|e| PlanError::Arguments(format!("{}: {e}", self.file)))?;
         for (key, v) in self.values(point) {
-            apply::set(&mut doc, key, &v.value).map_err(|e| PlanError::Arguments(format!("--vary {key}: {e}")))?;
+            crate::scenario::edit::set(&mut doc, key, &v.value)
+                .map_err(|e| PlanError::Arguments(format!("--vary {key}: {e}")))?;
         }
         let text = doc.to_string();
-        let mut spec = crate::scenario::parse_str(&text, &self.file).map_err(|e| {
+        crate::scenario::parse_with(&text, &self.file, &self.overrides).map_err(|e| {
             if e.message.starts_with("unknown key") {
                 let key =
                     self.values(point).iter().map(|(k, _)| *k).find(|k| k.ends_with(&e.key) || e.key.ends_with(k));
@@ -219,21 +214,7 @@ impl Plan {
                 e.message = format!("at sweep point {point} ({}): {}", self.describe(point), e.message);
                 PlanError::Scenario(e)
             }
-        })?;
-        if let Some(seed) = self.overrides.seed {
-            spec.seed = seed;
-        }
-        if let Some(d) = self.overrides.duration {
-            if d <= spec.warmup {
-                return Err(PlanError::Arguments(format!(
-                    "--duration {d} must be longer than the warmup ({}) at sweep point {point} ({})",
-                    spec.warmup,
-                    self.describe(point)
-                )));
-            }
-            spec.duration = d;
-        }
-        Ok(spec)
+        })
     }
 
     /// The scenario for one run: the point's, with the replication's seed
@@ -255,7 +236,8 @@ fn sweep_id(text: &str, axes: &[Axis], mode: Mode, replications: u64, o: &Overri
         "mode": format!("{mode:?}"),
         "replications": replications,
         "seed": o.seed,
-        "duration_ps": o.duration.map(|d| d.0),
+        // The duration by its value, so "50ms" and "50 ms" are one sweep.
+        "duration_ps": o.duration.as_deref().map(|d| crate::units::parse_time(d).map_or(d.to_owned(), |t| t.0.to_string())),
     });
     let digest = Sha256::digest(description.to_string().as_bytes());
     digest.iter().take(8).map(|b| format!("{b:02x}")).collect()

@@ -126,6 +126,48 @@ fn failed_expectations(file: &str, spec: &Spec, report: &serde_json::Value) -> V
     }
 }
 
+/// Check rows against the sweep they claim to belong to: one sweep id, one
+/// plan size, every point and replication inside it, no run twice. `file`
+/// names them in messages. This catches rows that were edited, forged or
+/// mixed up, which would otherwise become extra points or counts.
+pub fn check_rows(rows: &[Row], file: &str) -> Result<(), String> {
+    let Some(first) = rows.first() else { return Ok(()) };
+    let mut seen = BTreeSet::new();
+    for (i, r) in rows.iter().enumerate() {
+        let at = format!("{file}: row {}", i + 1);
+        if (r.sweep.as_str(), r.points, r.replications_per_point)
+            != (first.sweep.as_str(), first.points, first.replications_per_point)
+        {
+            return Err(format!(
+                "{at}: sweep {} of {} points × {} replications, but row 1 is sweep {} of {} × {}",
+                r.sweep, r.points, r.replications_per_point, first.sweep, first.points, first.replications_per_point
+            ));
+        }
+        if r.point >= r.points {
+            return Err(format!("{at}: point {} lies outside the sweep's {} points", r.point, r.points));
+        }
+        if r.replications.is_empty() {
+            return Err(format!("{at}: the row holds no replication"));
+        }
+        let held: BTreeSet<u64> = r.per_replication.iter().map(|x| x.replication).collect();
+        if held.len() != r.replications.len() || r.replications.iter().any(|k| !held.contains(k)) {
+            return Err(format!("{at}: its replication list and its per-replication figures disagree"));
+        }
+        for &k in &r.replications {
+            if k >= r.replications_per_point {
+                return Err(format!(
+                    "{at}: replication {k} lies outside the sweep's {} replications per point",
+                    r.replications_per_point
+                ));
+            }
+            if !seen.insert((r.point, k)) {
+                return Err(format!("{at}: point {} replication {k} appears twice", r.point));
+            }
+        }
+    }
+    Ok(())
+}
+
 /// Combine rows into one per point, sorted by point. Rows of one point add
 /// exactly: counters and latency histograms sum, every replication's own
 /// metrics are kept, and the pooled metrics and intervals are recomputed.

@@ -10,6 +10,21 @@ use vcd::{IdCode, SimulationCommand, TimescaleUnit, Value as V};
 
 use super::{Level, Signal, Value, WaveSink};
 
+/// The largest waveform `run --vcd` writes, judged by [`estimate_bytes`]
+/// before the run (256 MiB).
+pub const MAX_VCD_BYTES: f64 = 256.0 * 1024.0 * 1024.0;
+
+/// An upper bound on the size of a VCD of `window_s` seconds of a bus of
+/// `nodes` nodes at `bit_rate`: at most one driver's symbols change per bit
+/// time (contention aside), each change moving the driver's `line` and every
+/// receiver's `rx` at its own instant, so up to `nodes + 1` changes of at
+/// most 20 bytes each (a timestamp line and a value line) per bit, plus the
+/// header. Real files are smaller: idle time and repeated symbols write nothing.
+pub fn estimate_bytes(nodes: usize, bit_rate: f64, window_s: f64) -> f64 {
+    let header = 400.0 + 80.0 * nodes as f64;
+    header + window_s * bit_rate * (nodes as f64 + 1.0) * 20.0
+}
+
 pub struct VcdSink<W: Write> {
     w: vcd::Writer<W>,
     ids: Vec<IdCode>,

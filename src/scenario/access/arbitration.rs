@@ -17,6 +17,10 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
         let span = a.idle_bits.as_ref().map(|x| x.span()).unwrap_or(c.span.clone());
         return Err(v.err(span, "access.idle_bits", "idle_bits must be at least 1"));
     }
+    if !crate::scenario::validate::fits_time(c.frame, u64::from(idle_bits)) {
+        let span = a.idle_bits.as_ref().map(|x| x.span()).unwrap_or(c.span.clone());
+        return Err(v.err(span, "access.idle_bits", "the idle time would last longer than 10^6 s at this bit rate"));
+    }
     let sample_point = a.sample_point.as_ref().map(|x| *x.get_ref()).unwrap_or(0.75);
     if !(0.05..=0.95).contains(&sample_point) {
         let span = a.sample_point.as_ref().map(|x| x.span()).unwrap_or(c.span.clone());

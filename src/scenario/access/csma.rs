@@ -69,7 +69,10 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
         // Long against a frame, as the classic analyses assume.
         None => Latency::Exponential { mean: Picos((c.longest_data_frame().0 + slot_time.0) * 10) },
     };
-    let jam_bits = a.jam_bits.as_ref().map(|j| *j.get_ref()).unwrap_or(DEFAULT_JAM_BITS);
+    let jam_bits = match &a.jam_bits {
+        Some(j) => c.bit_count(*j.get_ref(), Some(j.span()), "jam_bits", "a jam")?,
+        None => DEFAULT_JAM_BITS,
+    };
     Ok(AccessSpec::Csma(CsmaSpec {
         persistence,
         collision_detect,

@@ -224,6 +224,40 @@ impl<'a> Access<'a> {
         self.frame.duration(self.frame.data_line_bits(self.nodes[n].longest_payload_bits()))
     }
 
+    /// One transmission of back-to-back data frames must fit the longest
+    /// supported time: `per_tx` data frames at most (0: no limit), and never
+    /// more than the node's queue holds; `hold` caps its length when given.
+    pub fn check_burst(&self, per_tx: u32, hold: Option<Picos>, key: &str) -> R<()> {
+        let gap = u128::from(self.frame.interframe_gap.0);
+        for (n, node) in self.nodes.iter().enumerate() {
+            if node.traffic.is_empty() {
+                continue;
+            }
+            let queue = node.queue_limit.unwrap_or(crate::spec::DEFAULT_QUEUE_LIMIT) as u128;
+            let frames = if per_tx == 0 { queue } else { u128::from(per_tx).min(queue) };
+            let frame = u128::from(self.longest_data_frame_of(n).0);
+            let mut time = u128::from(node.transceiver.enable_range.max.0) + frames * (frame + gap);
+            if let Some(h) = hold {
+                time = time.min(u128::from(h.0) + frame + gap);
+            }
+            if time > u128::from(crate::scenario::check::MAX_TIME.0) {
+                let span = self.a.scheme.span();
+                return Err(self
+                    .v
+                    .err(
+                        span,
+                        &format!("access.{key}"),
+                        format!(
+                            "\"{}\" could send {frames} data frames in one transmission, longer than 10^6 s",
+                            node.name
+                        ),
+                    )
+                    .with_hint(format!("limit access.{key} or the node's queue_limit")));
+            }
+        }
+        Ok(())
+    }
+
     /// The size of a control frame (poll, reply, token) in data bits:
     /// default `frame.overhead_bits`, and at least one bit, so that every
     /// hand-over takes time.
@@ -240,12 +274,22 @@ impl<'a> Access<'a> {
                 )
                 .with_hint(format!("set {key}, or frame.overhead_bits, which is its default")));
         }
+        self.bit_count(bits, field.as_ref().map(|f| f.span()), key, "a control frame")
+    }
+
+    /// A count of line-level bits (a frame, a jam): at most 2^40, and short
+    /// enough at this bit rate to fit the longest supported time.
+    pub fn bit_count(&self, bits: u64, span: Option<Range<usize>>, key: &str, what: &str) -> R<u64> {
+        let span = span.unwrap_or(self.span.clone());
+        let k = format!("access.{key}");
         if bits > crate::scenario::validate::MAX_FRAME_BITS {
-            let span = field.as_ref().map(|f| f.span()).unwrap_or(self.span.clone());
+            return Err(self.v.err(span, &k, format!("{what} of more than 2^40 bits is not supported")));
+        }
+        if !crate::scenario::validate::fits_time(self.frame, self.frame.control_line_bits(bits)) {
             return Err(self.v.err(
                 span,
-                &format!("access.{key}"),
-                "a control frame of more than 2^40 bits is not supported",
+                &k,
+                format!("{what} of {bits} bits would last longer than 10^6 s at this bit rate"),
             ));
         }
         Ok(bits)

@@ -19,10 +19,12 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
     let order = c.order(Some(master), "poll order")?;
     c.all_senders_in(&order, "poll order")?;
     let timeout_raw = c.required(&a.reply_timeout, "reply_timeout", "reply_timeout = \"2 us\"")?;
+    let max_per_poll = a.max_per_poll.as_ref().map(|m| *m.get_ref()).unwrap_or(1);
+    c.check_burst(max_per_poll, None, "max_per_poll")?;
     Ok(AccessSpec::Polling(PollingSpec {
         master,
         order,
-        max_per_poll: a.max_per_poll.as_ref().map(|m| *m.get_ref()).unwrap_or(1),
+        max_per_poll,
         request_bits: c.control_bits(&a.request_bits, "request_bits")?,
         empty_reply_bits: c.control_bits(&a.empty_reply_bits, "empty_reply_bits")?,
         turnaround: c.turnarounds()?,

@@ -117,9 +117,28 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
                 .with_hint("lengthen the slot, shorten the guard or the payload"));
         }
     }
+    let beacon_bits = c.control_bits(&a.beacon_bits, "beacon_bits")?;
+    // The whole cycle (beacon slot and data slots) must fit the supported time.
+    let beacon = u128::from(guard.0)
+        + u128::from(c.nodes[timekeeper].transceiver.enable_range.max.0)
+        + u128::from(c.frame.duration(c.frame.control_line_bits(beacon_bits)).0);
+    let cycle = slots.iter().fold(beacon, |acc, s| acc + u128::from(s.1 .0));
+    if cycle > u128::from(crate::scenario::check::MAX_TIME.0) {
+        let span = a.slots.as_ref().map(|l| l.span()).or(a.slot_length.as_ref().map(|l| l.span()));
+        let key = if a.slots.is_some() { "access.slots" } else { "access.slot_length" };
+        return Err(v.err(
+            span.unwrap_or(c.span.clone()),
+            key,
+            format!(
+                "the cycle (beacon slot and {} slots) would last {:.4e} s, longer than the supported 10^6 s",
+                slots.len(),
+                cycle as f64 * 1e-12
+            ),
+        ));
+    }
     Ok(AccessSpec::Tdma(TdmaSpec {
         timekeeper,
-        beacon_bits: c.control_bits(&a.beacon_bits, "beacon_bits")?,
+        beacon_bits,
         slots: slots.into_iter().map(|(owner, length, _, _)| Slot { owner, length }).collect(),
         guard,
         drift,

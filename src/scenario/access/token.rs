@@ -27,6 +27,8 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
             "token_hold must be greater than zero",
         ));
     }
+    let max_per_token = a.max_per_token.as_ref().map(|m| *m.get_ref()).unwrap_or(1);
+    c.check_burst(max_per_token, token_hold, "max_per_token")?;
     let token_timeout = a.token_timeout.as_ref().map(|t| v.time(t, "access.token_timeout")).transpose()?;
     let recovery_node = match &a.recovery_node {
         Some(n) => c.find(n, "access.recovery_node")?,
@@ -50,7 +52,7 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
     Ok(AccessSpec::Token(TokenSpec {
         order,
         token_bits: c.control_bits(&a.token_bits, "token_bits")?,
-        max_per_token: a.max_per_token.as_ref().map(|m| *m.get_ref()).unwrap_or(1),
+        max_per_token,
         token_hold,
         turnaround: c.turnarounds()?,
         response_latency: c.response_latency()?,

@@ -1,7 +1,7 @@
 //! The regression workflow through the built binary: `check` with
 //! expectations and JUnit XML, and `diff` with tolerances.
 
-mod common;
+use crate::common;
 
 use common::halfwire;
 use serde_json::Value;

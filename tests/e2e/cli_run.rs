@@ -1,6 +1,6 @@
 //! End-to-end tests of `halfwire run` through the built binary.
 
-mod common;
+use crate::common;
 
 use common::halfwire;
 use serde_json::Value;
@@ -248,7 +248,7 @@ fn no_partial_output_file_on_error() {
 
 #[test]
 fn debug_log_shows_scheme_decisions() {
-    let out = std::process::Command::new(env!("CARGO_BIN_EXE_halfwire"))
+    let out = std::process::Command::new(common::exe())
         .args(["run", "scenarios/buoy-link.toml", "--duration", "60 ms"])
         .env("RUST_LOG", "halfwire=debug")
         .output()
@@ -295,7 +295,7 @@ fn refuses_to_overwrite_the_scenario() {
 #[cfg(target_os = "linux")]
 fn a_full_stdout_is_an_error_not_a_panic() {
     let full = std::fs::OpenOptions::new().write(true).open("/dev/full").unwrap();
-    let out = std::process::Command::new(env!("CARGO_BIN_EXE_halfwire"))
+    let out = std::process::Command::new(common::exe())
         .args(["run", "scenarios/buoy-link.toml", "--duration", "60 ms"])
         .stdout(full)
         .output()

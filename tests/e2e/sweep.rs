@@ -1,6 +1,6 @@
 //! End-to-end tests of `halfwire sweep` and `halfwire merge` through the built binary.
 
-mod common;
+use crate::common;
 
 use std::path::Path;
 use std::process::{Command, Stdio};
@@ -174,7 +174,7 @@ fn the_shard_comes_from_a_slurm_array_or_an_indexed_job() {
     let dir = tempfile::tempdir().unwrap();
     let f = dir.path().join("task.jsonl");
     let cmd = |envs: &[(&str, &str)], extra: &[&str]| {
-        let mut c = Command::new(env!("CARGO_BIN_EXE_halfwire"));
+        let mut c = Command::new(common::exe());
         c.args(["sweep", DEMO, COUNT, TURN, "--out", f.to_str().unwrap()]).args(extra);
         for (k, v) in envs {
             c.env(k, v);
@@ -204,7 +204,7 @@ fn a_sweep_killed_mid_way_keeps_its_rows_and_resumes_to_the_same_result() {
     let rows_file = dir.path().join("rows.jsonl");
     // Long enough runs (about 0.15 s each) that the kill lands mid-sweep.
     let args = ["sweep", DEMO, "--vary=nodes.count=4,5,6,7,8", "--duration", "4 s", "--jobs", "1"];
-    let mut child = Command::new(env!("CARGO_BIN_EXE_halfwire"))
+    let mut child = Command::new(common::exe())
         .args(args)
         .args(["--out", rows_file.to_str().unwrap()])
         .stderr(Stdio::null())
@@ -266,7 +266,7 @@ fn ctrl_c_stops_launching_and_leaves_complete_rows() {
     let dir = tempfile::tempdir().unwrap();
     let rows_file = dir.path().join("rows.jsonl");
     let args = ["sweep", DEMO, "--vary=nodes.count=4,5,6,7,8", "--duration", "4 s", "--jobs", "1"];
-    let child = Command::new(env!("CARGO_BIN_EXE_halfwire"))
+    let child = Command::new(common::exe())
         .args(args)
         .args(["--out", rows_file.to_str().unwrap()])
         .stderr(Stdio::piped())

@@ -218,13 +218,15 @@ pub fn mean_ci(xs: &[f64]) -> (f64, f64) {
     (mean, t975(xs.len() - 1) * (var / n).sqrt())
 }
 
+/// The binary under test: the one `cargo test` built, or `HALFWIRE_BIN` when
+/// set (to run these tests against another build, e.g. an older release).
+pub fn exe() -> String {
+    std::env::var("HALFWIRE_BIN").unwrap_or_else(|_| env!("CARGO_BIN_EXE_halfwire").to_owned())
+}
+
 /// Run the built binary.
 pub fn halfwire(args: &[&str]) -> std::process::Output {
-    std::process::Command::new(env!("CARGO_BIN_EXE_halfwire"))
-        .args(args)
-        .env("NO_COLOR", "1")
-        .output()
-        .expect("the halfwire binary runs")
+    std::process::Command::new(exe()).args(args).env("NO_COLOR", "1").output().expect("the halfwire binary runs")
 }
 
 /// A TDMA pair for the guard tests: timekeeper at 0 m, P at 2 m and R at 9 m (unequal spacing); P owns the

@@ -1,7 +1,7 @@
 //! Token passing against closed-form results from the documented timing model
 //! and against Takagi's symmetric polling results (the token pass is the walk time).
 
-mod common;
+use crate::common;
 
 use common::{mean_ci, par_map, takagi};
 use serde_json::Value;

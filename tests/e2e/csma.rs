@@ -14,7 +14,7 @@
 //! nodes sit at one point and the sensing latency τ is the receiver delay.
 //! Frames last T = 5.6 µs; enable and disable times are zero.
 
-mod common;
+use crate::common;
 
 use common::{mean_ci, par_map, run_toml};
 use serde_json::Value;

@@ -1,7 +1,7 @@
 //! Property tests of engine invariants over randomly drawn small buses, each
 //! run through the built binary.
 
-mod common;
+use crate::common;
 
 use common::Bus;
 use proptest::prelude::*;

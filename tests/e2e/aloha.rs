@@ -15,7 +15,7 @@
 //! the published results are for infinitely many senders, and 1000 senders
 //! shift S by a few tenths of a percent (measured while building this test).
 
-mod common;
+use crate::common;
 
 use common::{mean_ci, par_map, run_toml};
 

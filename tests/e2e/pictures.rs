@@ -2,7 +2,7 @@
 //! checked against the `--events` log of the same run; the SVGs parsed with
 //! roxmltree; the timing diagram and the VCD agreeing on their edges.
 
-mod common;
+use crate::common;
 
 use std::collections::{BTreeMap, BTreeSet};
 use std::path::Path;

@@ -5,7 +5,7 @@
 //! Network (CAN) schedulability analysis: refuted, revisited and revised",
 //! Real-Time Systems 35(3), 2007, and arbitration fails below the bound.
 
-mod common;
+use crate::common;
 
 use common::{halfwire, loaded_tpd, run_toml};
 

@@ -2,7 +2,7 @@
 //! `src/scheme/tdma.rs`): the guard needed for a hand-over, and throughput
 //! equal to the analytic slot utilisation. Through the built binary.
 
-mod common;
+use crate::common;
 
 use common::{loaded_tpd, run_toml, tdma_pair};
 use serde_json::Value;

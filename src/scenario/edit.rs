@@ -1,9 +1,20 @@
-//! Write a swept value into the scenario text at a dotted key path, keeping
-//! the rest of the file (and so its line numbers and comments) as it was.
+//! Write a value into the scenario text at a dotted key path, keeping the
+//! rest of the file (and so its line numbers and comments) as it was. Sweeps
+//! and command-line overrides go through this, so every value they set is
+//! validated exactly as if it had been written in the file.
 
+use serde::{Deserialize, Serialize};
 use toml_edit::{DocumentMut, Item, Table, Value};
 
-use super::axis::Literal;
+/// A value as written into the scenario's TOML.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(untagged)]
+pub enum Literal {
+    Bool(bool),
+    Int(i64),
+    Float(f64),
+    Text(String),
+}
 
 /// One part of a key path: a name, optionally indexed (`node[2]`).
 struct Part<'a> {

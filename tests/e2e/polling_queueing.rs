@@ -7,7 +7,7 @@
 //! from arrival to the snapshot at the slave, so each message's latency is
 //! W + (T_s + e_s + Ld·tb + d(s,M) + r_M).
 
-mod common;
+use crate::common;
 
 use common::{loaded_tpd, mean_ci, par_map, pollaczek_khinchine, takagi, Bus};
 

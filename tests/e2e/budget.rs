@@ -1,7 +1,7 @@
 //! `halfwire budget` through the built binary, against hand calculations
 //! from the handbook formulas and common-practice values.
 
-mod common;
+use crate::common;
 
 use common::halfwire;
 use serde_json::Value;

@@ -1,7 +1,7 @@
 //! End-to-end tests of `halfwire cosim`: external nodes over loopback TCP.
 //! Every listener binds 127.0.0.1 with port 0; every wait is bounded.
 
-mod common;
+use crate::common;
 
 use std::io::{BufRead, BufReader, Read, Write};
 use std::net::TcpStream;
@@ -22,8 +22,10 @@ struct Session {
 }
 
 fn start(file: &str, extra: &[&str]) -> Session {
-    let mut child = Command::new(env!("CARGO_BIN_EXE_halfwire"))
-        .args(["cosim", file, "--listen", "127.0.0.1:0", "--format", "json", "--connect-timeout", "20"])
+    let mut child = Command::new(common::exe())
+        .args(["cosim", file, "--listen", "127.0.0.1:0"])
+        .args(if extra.contains(&"--format") { &[][..] } else { &["--format", "json"][..] })
+        .args(if extra.contains(&"--connect-timeout") { &[][..] } else { &["--connect-timeout", "20"][..] })
         .args(extra)
         .stdout(Stdio::piped())
         .stderr(Stdio::piped())
@@ -205,7 +207,7 @@ fn has_fault(report: &Value, needle: &str) -> bool {
         .as_array()
         .unwrap()
         .iter()
-        .any(|w| w["code"] == "cosim_client_fault" && w["message"].as_str().unwrap().contains(needle))
+        .any(|w| w["code"] == "cosim-client-fault" && w["message"].as_str().unwrap().contains(needle))
 }
 
 #[test]
@@ -391,4 +393,76 @@ fn every_message_of_a_session_is_valid_against_the_protocol_schema() {
     }
     let (code, _, err) = end(s);
     assert_eq!(code, Some(0), "{err}");
+}
+
+#[test]
+fn a_line_longer_than_the_limit_is_a_client_fault_not_unbounded_memory() {
+    // 1.06 MiB without a newline: the line limit is 1 MiB.
+    let (error, code, report, err) = fault_case(&[], |c| {
+        c.until_frame();
+        let chunk = vec![b'x'; 64 << 10];
+        for _ in 0..17 {
+            if c.w.write_all(&chunk).is_err() {
+                break;
+            }
+        }
+    });
+    assert!(error["message"].as_str().unwrap().contains("longer than 1 MiB"), "{error}");
+    assert_eq!(code, Some(1), "{err}");
+    assert!(has_fault(&report, "longer than 1 MiB"), "{report}");
+}
+
+#[test]
+fn a_session_that_stalls_exits_2_and_says_so_like_run() {
+    // The client answers every batch with a timer at the same instant: time never moves on.
+    let s = start(DEMO, &[]);
+    let (mut c, _) = Raw::connect(s.port, "gate02");
+    loop {
+        let mut l = String::new();
+        if c.r.read_line(&mut l).unwrap_or(0) == 0 {
+            break;
+        }
+        let m: Value = serde_json::from_str(&l).unwrap();
+        if m["type"] != "events" {
+            break;
+        }
+        let t = m["t_ps"].as_u64().unwrap();
+        c.send(&json!({ "type": "timer", "at_ps": t, "tag": 1 }).to_string());
+        c.send(r#"{"type":"wait"}"#);
+    }
+    let (code, report, err) = end(s);
+    assert_eq!(code, Some(2), "{err}");
+    assert!(err.contains("stopped advancing"), "{err}");
+    assert!(report["stalled_at_s"].as_f64().is_some(), "{report}");
+}
+
+#[test]
+fn a_session_without_its_client_reports_a_consistent_partial_run() {
+    let s = start(DEMO, &["--on-client-fault", "silence", "--connect-timeout", "1", "--format", "text"]);
+    let out = s.child.wait_with_output().unwrap();
+    let err = s.stderr.join().unwrap();
+    assert_eq!(out.status.code(), Some(0), "{err}");
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(text.starts_with("halfwire cosim:"), "{text}");
+    let s = start(DEMO, &["--on-client-fault", "silence", "--connect-timeout", "1"]);
+    let (code, report, err) = end(s);
+    assert_eq!(code, Some(0), "{err}");
+    let u = &report["utilization"];
+    let sum: f64 = ["payload", "overhead", "gaps", "idle", "wasted"].iter().map(|k| u[k].as_f64().unwrap()).sum();
+    assert!((sum - 1.0).abs() < 1e-9, "utilization sums to {sum}: {u}");
+    for w in report["warnings"].as_array().unwrap() {
+        assert!(!w["code"].as_str().unwrap().contains('_'), "warning codes use hyphens: {w}");
+    }
+    let v = halfwire::report::invariants::violations(&report);
+    assert!(v.is_empty(), "{v:#?}");
+    // Under abort (the default) the run ends before it starts: an empty window, still consistent.
+    let s = start(DEMO, &["--connect-timeout", "1"]);
+    let (code, report, err) = end(s);
+    assert_eq!(code, Some(1), "{err}");
+    assert_eq!(report["simulated_s"].as_f64(), Some(0.0), "{report}");
+    let v = halfwire::report::invariants::violations(&report);
+    assert!(v.is_empty(), "{v:#?}");
+    for k in ["payload", "overhead", "gaps", "idle", "wasted"] {
+        assert_eq!(report["utilization"][k].as_f64(), Some(0.0), "{report}");
+    }
 }

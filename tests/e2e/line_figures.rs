@@ -2,7 +2,7 @@
 //! loaded-line formula (Johnson & Graham, High-Speed Digital Design, 1993)
 //! and common-practice multipoint-LVDS amplitudes.
 
-mod common;
+use crate::common;
 
 use common::run_toml;
 

@@ -1,7 +1,7 @@
 //! Polling timing against closed-form results derived from the documented
 //! timing model (README, "Timing model").
 
-mod common;
+use crate::common;
 
 use common::{loaded_tpd, Bus};
 use serde_json::Value;

@@ -1,0 +1,22 @@
+//! The end-to-end, validation and property tests, in one test binary (one
+//! link instead of one per file). Most drive the built `halfwire` binary;
+//! each file's header names the published results it checks against.
+
+mod common;
+
+mod aloha;
+mod arbitration;
+mod budget;
+mod cli_run;
+mod cosim;
+mod csma;
+mod line_figures;
+mod pictures;
+mod polling_queueing;
+mod polling_timing;
+mod properties;
+mod regression;
+mod sweep;
+mod tdma;
+mod token;
+mod trust;
