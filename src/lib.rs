@@ -16,6 +16,7 @@ pub mod engine;
 pub mod line;
 pub mod plot;
 pub mod report;
+pub mod robustness;
 pub mod scenario;
 pub mod scheme;
 pub mod spec;

@@ -4,6 +4,7 @@
 
 pub mod checks;
 pub mod handover;
+pub mod text;
 
 use std::collections::BTreeMap;
 

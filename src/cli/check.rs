@@ -152,7 +152,7 @@ pub fn check(args: CheckArgs) -> Result<u8, Failure> {
         Format::Text => render(&results, total, failed),
     };
     print_stdout(&out)?;
-    Ok(if failed > 0 { 1 } else { 0 })
+    Ok(if failed > 0 { super::status::FAILED } else { 0 })
 }
 
 /// Run the scenarios on `jobs` threads; results in file order whatever the

@@ -86,7 +86,7 @@ pub fn cosim(args: CosimArgs) -> Result<u8, Failure> {
     let runtime = tokio::runtime::Builder::new_current_thread()
         .enable_all()
         .build()
-        .map_err(|e| Failure { code: 1, message: format!("cannot start the network runtime: {e}") })?;
+        .map_err(|e| Failure::internal(format!("cannot start the network runtime: {e}")))?;
     runtime.block_on(session(spec, external, addr, connect, answer, args.on_client_fault, args.format))
 }
 
@@ -107,7 +107,7 @@ async fn session(
 ) -> Result<u8, Failure> {
     let listener =
         TcpListener::bind(addr).await.map_err(|e| Failure::input(format!("--listen {addr}: cannot listen: {e}")))?;
-    let local = listener.local_addr().map_err(|e| Failure { code: 1, message: e.to_string() })?;
+    let local = listener.local_addr().map_err(|e| Failure::internal(e.to_string()))?;
     eprintln!("halfwire cosim: listening on {local}; waiting for {} external node(s)", external.len());
     let interrupt = Arc::new(AtomicBool::new(false));
     let flag = interrupt.clone();
@@ -219,7 +219,7 @@ async fn session(
         (report, faults)
     })
     .await
-    .map_err(|e| Failure { code: 1, message: format!("the simulation thread failed: {e}") })?;
+    .map_err(|e| Failure::internal(format!("the simulation thread failed: {e}")))?;
     let handles: Vec<_> = std::mem::take(&mut *writers.lock().expect("no poisoned lock"));
     for h in handles {
         let _ = tokio::time::timeout(Duration::from_secs(2), h).await;
@@ -262,7 +262,7 @@ fn finish(
     };
     print_stdout(&out)?;
     if interrupt.load(Ordering::SeqCst) {
-        return Ok(130);
+        return Ok(super::status::INTERRUPTED);
     }
     if let Some(at) = report.stalled_at_s {
         // As `run` does: the scenario and its clients never let time move on.
@@ -273,7 +273,7 @@ fn finish(
         eprintln!(
             "halfwire cosim: a client fault ended the run (--on-client-fault abort); the report above is partial"
         );
-        return Ok(1);
+        return Ok(super::status::FAILED);
     }
     if faults + early_count > 0 {
         eprintln!(

@@ -143,5 +143,5 @@ pub fn diff(args: DiffArgs) -> Result<u8, Failure> {
         }
     };
     print_stdout(&out)?;
-    Ok(if regressions > 0 { 1 } else { 0 })
+    Ok(if regressions > 0 { super::status::FAILED } else { 0 })
 }

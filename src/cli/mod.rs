@@ -50,10 +50,29 @@ pub struct Failure {
     pub message: String,
 }
 
+/// Exit statuses (documented in the README).
+pub mod status {
+    /// An expectation or a regression failed (and a co-simulation client fault ended the run).
+    pub const FAILED: u8 = 1;
+    /// Bad input: a scenario, an argument, or an output that cannot be written.
+    pub const INPUT: u8 = 2;
+    /// An internal error: a bug in halfwire, or the system failed it (a thread, the network runtime).
+    pub const INTERNAL: u8 = 3;
+    /// Nothing to draw: the run gave no data for the picture asked for.
+    pub const NOTHING_TO_PLOT: u8 = 4;
+    /// Stopped by Ctrl-C.
+    pub const INTERRUPTED: u8 = 130;
+}
+
 impl Failure {
     /// Bad input from the user (exit 2).
     pub fn input(message: impl Into<String>) -> Self {
-        Failure { code: 2, message: message.into() }
+        Failure { code: status::INPUT, message: message.into() }
+    }
+
+    /// An internal error (exit 3).
+    pub fn internal(message: impl Into<String>) -> Self {
+        Failure { code: status::INTERNAL, message: message.into() }
     }
 }
 
@@ -78,6 +97,27 @@ fn init_tracing(color: bool) {
 }
 
 pub fn main() -> ExitCode {
+    // A panic is a bug: say so plainly and exit 3 (the unwind reaches `catch_unwind` below,
+    // so temporary output files are still cleaned up).
+    std::panic::set_hook(Box::new(|info| {
+        let place = info.location().map(|l| format!(" at {}:{}", l.file(), l.line())).unwrap_or_default();
+        let what = info
+            .payload()
+            .downcast_ref::<&str>()
+            .map(|s| s.to_string())
+            .or_else(|| info.payload().downcast_ref::<String>().cloned())
+            .unwrap_or_default();
+        eprintln!(
+            "internal error: {what}{place}\nthis is a bug in halfwire, not in your scenario: please report it with the scenario and the command"
+        );
+    }));
+    match std::panic::catch_unwind(run) {
+        Ok(code) => code,
+        Err(_) => ExitCode::from(status::INTERNAL),
+    }
+}
+
+fn run() -> ExitCode {
     let cli = Cli::parse();
     // Colour follows the usual conventions: only on a terminal, never with NO_COLOR.
     if std::env::var_os("NO_COLOR").is_some_and(|v| !v.is_empty()) {

@@ -78,6 +78,6 @@ pub fn print_stdout(text: &str) -> Result<(), Failure> {
     match out.write_all(text.as_bytes()).and_then(|_| out.flush()) {
         Ok(()) => Ok(()),
         Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => Ok(()),
-        Err(e) => Err(Failure { code: 1, message: format!("cannot write to stdout: {e}") }),
+        Err(e) => Err(Failure::input(format!("cannot write to stdout: {e}"))),
     }
 }

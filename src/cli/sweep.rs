@@ -226,7 +226,7 @@ pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
         .enable_all()
         .max_blocking_threads(jobs)
         .build()
-        .map_err(|e| Failure { code: 1, message: format!("cannot start the worker pool: {e}") })?;
+        .map_err(|e| Failure::internal(format!("cannot start the worker pool: {e}")))?;
     let outcome = runtime.block_on(async {
         let c = control.clone();
         let signals = tokio::spawn(async move {
@@ -247,14 +247,17 @@ pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
     if let Some(b) = &observer.bar {
         b.finish_and_clear();
     }
-    let outcome = outcome.map_err(|e| Failure { code: 1, message: e })?;
+    // A worker that failed is a bug; a point that stalls or a row that cannot be written is the input's.
+    let outcome =
+        outcome
+            .map_err(|e| if e.starts_with(runner::WORKER_FAILED) { Failure::internal(e) } else { Failure::input(e) })?;
     let wall = started.elapsed().as_secs_f64();
     if control.stopped() {
         eprintln!(
             "halfwire sweep: stopped after {} runs ({} abandoned, {} not started); continue with --resume",
             outcome.finished, outcome.abandoned, outcome.not_started
         );
-        return Ok(130);
+        return Ok(super::status::INTERRUPTED);
     }
     eprintln!("halfwire sweep: {} runs in {}", outcome.finished, units::format_seconds(wall));
     if args.plot.plot.is_some() {

@@ -26,7 +26,7 @@ pub struct Waves {
 }
 
 fn failure(e: String) -> Failure {
-    Failure { code: 1, message: e }
+    Failure::input(e)
 }
 
 impl Waves {
@@ -94,7 +94,7 @@ pub fn write_text(path: &std::path::Path, text: &str) -> Result<(), Failure> {
 /// `--plot-latency`: percentile curves of every node's latency.
 pub fn plot_latency(report: &Report, path: &std::path::Path) -> Result<(), Failure> {
     let chart = halfwire::plot::latency::chart(report).map_err(failure)?.ok_or_else(|| Failure {
-        code: 1,
+        code: super::status::NOTHING_TO_PLOT,
         message: format!(
             "--plot-latency {}: no message was delivered in the measured window, so there is no latency to plot",
             path.display()

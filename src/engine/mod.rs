@@ -96,6 +96,8 @@ pub struct Simulation {
     stalled: Option<Picos>,
     /// Co-simulation: external nodes and their gateway.
     cosim: Option<Box<external::Cosim>>,
+    /// Set by [`Simulation::end_early`]: the run ends here instead of at its duration.
+    cut: Option<Picos>,
 }
 
 /// Events at one instant after which a run counts as stalled: a scenario
@@ -117,7 +119,7 @@ impl Simulation {
         let world = World::new(spec.clone(), trace);
         let scheme = scheme::build(spec);
         let sources = traffic::sources(spec);
-        Simulation { world, scheme, sources, started: false, stalled: None, cosim: None }
+        Simulation { world, scheme, sources, started: false, stalled: None, cosim: None, cut: None }
     }
 
     pub fn now(&self) -> Picos {
@@ -167,7 +169,7 @@ impl Simulation {
         let mut same_instant = 0u64;
         let mut exchanges_here = 0u64;
         loop {
-            if self.stalled.is_some() || self.aborted().is_some() {
+            if self.stalled.is_some() || self.aborted().is_some() || self.cut.is_some() {
                 break;
             }
             // Lockstep: before time moves on, every external node hears what
@@ -236,7 +238,7 @@ impl Simulation {
         if self.world.now < end && self.stalled.is_none() {
             self.run_until(end);
         }
-        if let Some(t) = self.aborted() {
+        if let Some(t) = self.aborted().or(self.cut) {
             // A run ended early covers the time up to its end.
             end = t.max(self.world.spec.warmup).min(end);
             self.world.spec.duration = end;
@@ -269,6 +271,12 @@ impl Simulation {
         }
         let events = std::mem::take(&mut self.world.trace.events);
         (report, events)
+    }
+
+    /// End the run at the current instant: the report then covers the time up
+    /// to here, as if the scenario's duration ended now (nothing later runs).
+    pub fn end_early(&mut self) {
+        self.cut.get_or_insert(self.world.now);
     }
 
     /// Bus events before this instant are final: none will be recorded

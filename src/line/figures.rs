@@ -17,8 +17,9 @@ pub struct LineFigures {
     /// Γ at each end against the loaded impedance (+1: open).
     pub reflection_near: f64,
     pub reflection_far: f64,
-    /// Terminations ∥ receiver inputs ∥ bias network.
-    pub dc_load_ohm: f64,
+    /// Terminations ∥ receiver inputs ∥ bias network; `None` (null) when
+    /// nothing loads the pair at DC (an open line).
+    pub dc_load_ohm: Option<f64>,
     /// Differential voltage of the undriven line.
     pub idle_v: f64,
     pub unit_loads: f64,
@@ -36,7 +37,9 @@ pub struct LineFigures {
 pub struct NodeFigures {
     /// This node's driver: initial step and settled amplitude.
     pub amplitude_step_v: f64,
-    pub amplitude_dc_v: f64,
+    /// `None` (null) on an open line: the settled level is then set by the
+    /// driver's own output limits, which the model does not know.
+    pub amplitude_dc_v: Option<f64>,
     /// The impedance its driver sees when it switches.
     pub drive_load_ohm: f64,
     /// Its receiver's margin against the weakest driver on the bus.
@@ -77,7 +80,7 @@ pub fn line_figures(spec: &Spec, line: &LineModel) -> LineFigures {
         load_ratio: line.loaded.load_ratio(),
         reflection_near,
         reflection_far,
-        dc_load_ohm: line.dc_load_ohm,
+        dc_load_ohm: line.dc_load_ohm.is_finite().then_some(line.dc_load_ohm),
         idle_v: line.idle_v,
         unit_loads: line.unit_loads,
         worst_amplitude_v: amp,
@@ -92,7 +95,7 @@ pub fn line_figures(spec: &Spec, line: &LineModel) -> LineFigures {
 pub fn node_figures(spec: &Spec, line: &LineModel, node: usize, weakest_v: f64) -> NodeFigures {
     NodeFigures {
         amplitude_step_v: line.amplitude_v[node],
-        amplitude_dc_v: line.amplitude_dc_v[node],
+        amplitude_dc_v: line.amplitude_dc_v[node].is_finite().then_some(line.amplitude_dc_v[node]),
         drive_load_ohm: line.drive_load_ohm[node],
         margin_v: spec.nodes[node].transceiver.receiver.margin_v(weakest_v),
         idle_v: line.idle_v,

@@ -56,7 +56,10 @@ impl<'a> V<'a> {
             return Err(self.err(
                 v.span(),
                 key,
-                format!("{t} is longer than the longest supported time, 10^6 s (about 11.6 days)"),
+                format!(
+                    "\"{}\" is longer than the longest supported time, 10^6 s (about 11.6 days)",
+                    v.get_ref().trim()
+                ),
             ));
         }
         Ok(t)

@@ -64,7 +64,10 @@ impl<'a> Levels<'a> {
                 return Err(self.v.err(
                     s.span(),
                     &k,
-                    format!("{t} is longer than the longest transceiver time supported, {MAX_TRANSCEIVER_TIME} (firmware delays belong in turnaround or response_latency)"),
+                    format!(
+                        "\"{}\" is longer than the longest transceiver time supported, {MAX_TRANSCEIVER_TIME} (firmware delays belong in turnaround or response_latency)",
+                        s.get_ref().trim()
+                    ),
                 ));
             }
             Ok(t)

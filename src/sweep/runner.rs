@@ -64,6 +64,9 @@ pub struct Outcome {
     pub not_started: u64,
 }
 
+/// How a failed (panicked) worker's error begins.
+pub const WORKER_FAILED: &str = "a sweep worker failed";
+
 /// Simulate one run; `None` if abandoned part-way.
 pub fn simulate_run(plan: &Plan, run: RunId, abandon: &AtomicBool) -> Result<Option<Row>, String> {
     let spec = plan.run_spec(run).map_err(|e| e.to_string())?;
@@ -119,7 +122,7 @@ pub async fn execute(
         }
         tokio::select! {
             joined = set.join_next() => {
-                let result = joined.expect("the set is not empty").map_err(|e| format!("a sweep worker failed: {e}"))?;
+                let result = joined.expect("the set is not empty").map_err(|e| format!("{WORKER_FAILED}: {e}"))?;
                 match result {
                     Ok(Some(row)) => {
                         finished += 1;

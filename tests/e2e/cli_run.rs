@@ -301,7 +301,7 @@ fn a_full_stdout_is_an_error_not_a_panic() {
         .output()
         .unwrap();
     let err = String::from_utf8_lossy(&out.stderr);
-    assert_eq!(out.status.code(), Some(1), "{err}");
+    assert_eq!(out.status.code(), Some(2), "{err}");
     assert!(err.contains("cannot write to stdout") && !err.contains("panicked"), "{err}");
 }
 

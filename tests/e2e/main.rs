@@ -11,6 +11,7 @@ mod cli_run;
 mod cosim;
 mod csma;
 mod line_figures;
+mod mutation;
 mod pictures;
 mod polling_queueing;
 mod polling_timing;
