@@ -69,3 +69,95 @@ proptest! {
         }
     }
 }
+
+/// Every demo (one or more per scheme), with a random seed, interframe gap and load.
+fn demo_variant() -> impl Strategy<Value = (String, String)> {
+    let demos: Vec<String> = [
+        "fruit-grader",
+        "buoy-link",
+        "railcar-doors",
+        "lighting-truss-tdma",
+        "vineyard-probes",
+        "greenhouse-csma",
+        "solar-tracker-arbitration",
+    ]
+    .iter()
+    .map(|d| d.to_string())
+    .collect();
+    (prop::sample::select(demos), 1u64..10_000, 0u64..3_000, 1u64..40).prop_map(|(demo, seed, gap_ns, load)| {
+        let text = std::fs::read_to_string(format!("scenarios/{demo}.toml")).unwrap();
+        let mut doc: toml_edit::DocumentMut = text.parse().unwrap();
+        doc["seed"] = toml_edit::value(seed as i64);
+        doc["frame"]["interframe_gap"] = toml_edit::value(format!("{gap_ns} ns"));
+        // More load: every Poisson rate and periodic period scaled.
+        let out = doc.to_string().lines().map(|l| scale_traffic(l, load)).collect::<Vec<_>>().join("\n");
+        (demo, out)
+    })
+}
+
+/// `rate = "R/s"` × k and `period = "P"` ÷ k within a traffic line (jitter is dropped).
+fn scale_traffic(line: &str, k: u64) -> String {
+    if k == 1 || !line.contains("pattern") {
+        return line.to_owned();
+    }
+    let mut l = line.to_owned();
+    if let Some(i) = l.find("rate = \"") {
+        let start = i + 8;
+        let end = start + l[start..].find('/').unwrap();
+        let r: f64 = l[start..end].trim().parse().unwrap();
+        l.replace_range(start..end, &format!("{}", r * k as f64));
+    }
+    if let Some(i) = l.find("period = \"") {
+        let start = i + 10;
+        let end = start + l[start..].find('"').unwrap();
+        let p = halfwire::units::parse_time(&l[start..end]).unwrap();
+        l.replace_range(start..end, &format!("{} ps", (p.0 / k).max(1)));
+        if let Some(j) = l.find(", jitter = \"") {
+            let e = j + 12 + l[j + 12..].find('"').unwrap() + 1;
+            l.replace_range(j..e, "");
+        }
+    }
+    l
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 48, ..ProptestConfig::default() })]
+
+    /// Engine invariant: a node never asserts its enable before its previous
+    /// occupancy is off plus the interframe gap (the dominant bits of an
+    /// arbitration field, and the frame that continues it, are one frame).
+    #[test]
+    fn no_node_enables_before_its_previous_occupancy_is_off_plus_the_gap((demo, text) in demo_variant()) {
+        use halfwire::bus::trace::BusEventKind;
+        let mut spec = halfwire::scenario::parse_str(&text, &demo).unwrap();
+        spec.duration = spec.duration.min(halfwire::units::Picos::from_ms(30));
+        spec.warmup = halfwire::units::Picos::ZERO;
+        let gap = spec.frame.interframe_gap.0;
+        let mut sim = halfwire::engine::Simulation::with_trace(&spec, Some((halfwire::units::Picos::ZERO, halfwire::units::Picos::MAX)));
+        sim.run_until(spec.duration);
+        let (_, mut events) = sim.finish_with_trace();
+        events.sort_by_key(|e| e.t);
+        // Per node: (off of the previous occupancy, was it dominant).
+        let mut last: Vec<Option<(u64, bool)>> = vec![None; spec.nodes.len()];
+        let mut enables = 0;
+        let mut dominant_open = vec![false; spec.nodes.len()];
+        for e in &events {
+            match e.kind {
+                BusEventKind::DriverEnable { dominant } => {
+                    enables += 1;
+                    if let Some((off, prev_dominant)) = last[e.node] {
+                        if !dominant && !prev_dominant {
+                            prop_assert!(e.t >= off + gap,
+                                "{demo}: {} enables at {} ps, before its previous off ({off} ps) + {gap} ps",
+                                spec.nodes[e.node].name, e.t);
+                        }
+                    }
+                    dominant_open[e.node] = dominant;
+                }
+                BusEventKind::DriverOff => last[e.node] = Some((e.t, dominant_open[e.node])),
+                _ => {}
+            }
+        }
+        prop_assert!(enables > 0, "{demo}: no driver enabled");
+    }
+}
