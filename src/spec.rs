@@ -137,6 +137,24 @@ pub struct LineSpec {
     pub delay_s_per_m: f64,
     pub termination: Termination,
     pub bias: Option<Bias>,
+    /// DC resistance per metre of one conductor (the loop is twice this).
+    pub conductor_ohm_per_m: f64,
+    /// Cable loss at a stated frequency, scaled with √f (skin effect).
+    pub attenuation: Option<Attenuation>,
+}
+
+/// Cable attenuation: `db_per_m` at `at_hz`, scaling with the square root of frequency.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Attenuation {
+    pub db_per_m: f64,
+    pub at_hz: f64,
+}
+
+impl Attenuation {
+    /// Loss in dB per metre at `f_hz` (skin effect: ∝ √f).
+    pub fn db_per_m_at(&self, f_hz: f64) -> f64 {
+        self.db_per_m * (f_hz / self.at_hz).sqrt()
+    }
 }
 
 /// How the ends of the line are terminated. `None` resistances mean "matched
@@ -154,7 +172,17 @@ pub enum Termination {
 /// Per-node transceiver parameters, after defaults and overrides are merged.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Transceiver {
+    /// The weakest drive the part may have (the standard's minimum for a
+    /// family preset): every amplitude, margin and limit uses it.
     pub driver: Driver,
+    /// The typical drive (shown beside the minimum).
+    pub driver_typical: Driver,
+    /// The strongest drive: the largest swing, for the common-mode check.
+    pub driver_max: Driver,
+    /// The driver's common-mode offset voltage range (V), when known.
+    pub offset_v: Option<(f64, f64)>,
+    /// The fastest bit rate is `edge_fraction / transition_time`.
+    pub edge_fraction: f64,
     /// From driver enable asserted to output valid (the value this run uses).
     pub enable_time: Picos,
     /// From enable released to output high-impedance (the value this run uses).
@@ -187,28 +215,38 @@ pub struct Transceiver {
 pub enum Driver {
     /// Current mode: V_AB = I · R_eff.
     Current { amps: f64 },
-    /// Voltage mode (Thevenin): V_AB = V_oc · R_eff / (R_eff + R_out).
-    Voltage { open_circuit_v: f64, output_ohm: f64 },
+    /// Voltage mode (Thevenin): V_AB = min(limit, V_oc · R_eff / (R_eff + R_out)).
+    /// `limit_v` is infinite for a plain Thevenin source; a worst-case
+    /// envelope that the standard guarantees only up to a level sets it.
+    Voltage { open_circuit_v: f64, output_ohm: f64, limit_v: f64 },
 }
 
 impl Driver {
+    /// A plain Thevenin source.
+    pub fn thevenin(open_circuit_v: f64, output_ohm: f64) -> Driver {
+        Driver::Voltage { open_circuit_v, output_ohm, limit_v: f64::INFINITY }
+    }
+
     /// Differential amplitude into `load_ohm`.
     pub fn amplitude_v(&self, load_ohm: f64) -> f64 {
         match *self {
             Driver::Current { amps } => amps * load_ohm,
-            Driver::Voltage { open_circuit_v, output_ohm } => {
-                if load_ohm.is_infinite() {
+            Driver::Voltage { open_circuit_v, output_ohm, limit_v } => {
+                let v = if load_ohm.is_infinite() {
                     open_circuit_v
                 } else {
                     open_circuit_v * load_ohm / (load_ohm + output_ohm)
-                }
+                };
+                v.min(limit_v)
             }
         }
     }
 }
 
-/// TIA-485-A unit load: 12 kΩ (from memory of TIA-485-A).
-pub const UNIT_LOAD_OHM: f64 = 12_000.0;
+/// TIA-485-A unit load, across the pair: 12 kΩ from each input to the
+/// common-mode node, so 24 kΩ differential, and 32 unit loads are 750 Ω
+/// (from memory of TIA-485-A).
+pub const UNIT_LOAD_OHM: f64 = 24_000.0;
 
 /// Most unit loads TIA-485-A allows on one bus (from memory of TIA-485-A).
 pub const MAX_UNIT_LOADS: f64 = 32.0;
@@ -219,6 +257,8 @@ pub struct Bias {
     pub supply_v: f64,
     pub pull_up_ohm: f64,
     pub pull_down_ohm: f64,
+    /// Where on the line the network sits.
+    pub position_m: f64,
 }
 
 #[derive(Clone, Debug, PartialEq)]

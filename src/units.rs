@@ -209,11 +209,12 @@ pub enum Dimension {
     Rate,
     DataSize,
     DelayPerLength,
+    ResistancePerLength,
 }
 
 impl Dimension {
     /// Every dimension, in declaration order.
-    pub const ALL: [Dimension; 10] = [
+    pub const ALL: [Dimension; 11] = [
         Dimension::Time,
         Dimension::Length,
         Dimension::Resistance,
@@ -224,6 +225,7 @@ impl Dimension {
         Dimension::Rate,
         Dimension::DataSize,
         Dimension::DelayPerLength,
+        Dimension::ResistancePerLength,
     ];
 }
 
@@ -240,6 +242,7 @@ fn info(dim: Dimension) -> (&'static str, &'static str) {
         Dimension::Rate => ("2000/s", "a rate"),
         Dimension::DataSize => ("64 B", "a data size"),
         Dimension::DelayPerLength => ("5 ns/m", "a delay per length"),
+        Dimension::ResistancePerLength => ("0.084 ohm/m", "a resistance per length"),
     }
 }
 
@@ -333,6 +336,13 @@ const UNITS: &[(Dimension, &str, u64, i32, Prefixes)] = &[
     (Dimension::DataSize, "bits", 1, 0, Prefixes::Data),
     (Dimension::DataSize, "B", 8, 0, Prefixes::Data),
     (Dimension::DelayPerLength, "s/m", 1, 0, Prefixes::Si),
+    (Dimension::ResistancePerLength, "ohm/m", 1, 0, Prefixes::Si),
+    (Dimension::ResistancePerLength, "ohms/m", 1, 0, Prefixes::Si),
+    (Dimension::ResistancePerLength, "\u{2126}/m", 1, 0, Prefixes::Si),
+    (Dimension::ResistancePerLength, "\u{3a9}/m", 1, 0, Prefixes::Si),
+    (Dimension::ResistancePerLength, "ohm/km", 1, -3, Prefixes::Si),
+    (Dimension::ResistancePerLength, "\u{2126}/km", 1, -3, Prefixes::Si),
+    (Dimension::ResistancePerLength, "\u{3a9}/km", 1, -3, Prefixes::Si),
 ];
 
 /// Result of matching unit text against one dimension.
@@ -548,7 +558,8 @@ mod tests {
         DataSize: 64 B=512|1 kB=8000|1 KiB=8192|2 MiB=16777216|1 GiB=8589934592|1 MB=8e6
         DataSize: 1 GB=8e9|1 bit=1|3 bits=3|12 kbit=12000|1 Mbit=1e6|1 Gbits=1e9|1 Kibit=1024
         DataSize: 0.125 B=1|1.5 kbit=1500|0 B=0|11bits=11|1 Gibit=1073741824|2 Mibits=2097152
-        DelayPerLength: 5 ns/m=5e-9|5.5 ns/m=5.5e-9|4800 ps/m=4.8e-9|0.005 us/m=5e-9";
+        DelayPerLength: 5 ns/m=5e-9|5.5 ns/m=5.5e-9|4800 ps/m=4.8e-9|0.005 us/m=5e-9
+        ResistancePerLength: 0.084 ohm/m=0.084|84 mohm/m=0.084|84 ohm/km=0.084|0.2 Ω/m=0.2|84 Ω/km=0.084";
 
     /// `Dimension | input | part of the error message`.
     const BAD: &str = r#"

@@ -3,6 +3,7 @@
 //! implementation in `line::figures`).
 
 pub mod checks;
+pub mod electrical;
 pub mod handover;
 pub mod text;
 
@@ -61,13 +62,12 @@ pub struct Budget {
 impl Budget {
     pub fn compute(spec: &Spec, options: Options) -> Budget {
         let line = LineModel::new(spec);
-        let (_, weakest_v) = figures::weakest(&line);
         let nodes = (0..spec.nodes.len())
-            .map(|i| (spec.nodes[i].name.clone(), figures::node_figures(spec, &line, i, weakest_v)))
+            .map(|i| (spec.nodes[i].name.clone(), figures::node_figures(spec, &line, i)))
             .collect();
         let limits = Limits {
-            max_bit_rate_bit_s: checks::max_bit_rate(spec, options.stub_fraction),
-            max_nodes: checks::max_nodes(spec),
+            max_bit_rate_bit_s: electrical::max_bit_rate(spec, options.stub_fraction),
+            max_nodes: electrical::max_nodes(spec),
             unit_loads: line.unit_loads,
             unit_load_limit: crate::spec::MAX_UNIT_LOADS,
         };

@@ -19,6 +19,12 @@
 //! The result is exactly that of the per-receiver pass (integer arithmetic);
 //! anything unusual (a bound from a later occupancy, clipping at the window
 //! edges, a next driver that does not dominate) takes the per-receiver pass.
+//!
+//! ## Settling receivers
+//! On a biased line, a receiver whose thresholds the idle voltage clears
+//! still floats for a while after each release, until the line has relaxed
+//! past its threshold (`line::settled`): its window is the gap, cut at that
+//! settling time. Such receivers always take the per-receiver pass.
 
 use rustc_hash::FxHashMap;
 
@@ -48,8 +54,12 @@ const PROFILE_BUDGET_VALUES: usize = 1 << 21;
 
 #[derive(Debug)]
 pub struct FloatingSweep {
-    hazard: Vec<bool>,
+    /// Per node: how long a gap at it counts as floating (0: never, a
+    /// failsafe receiver; `u64::MAX`: all of it; else a settling time).
+    settle: Vec<u64>,
     hazard_ids: Vec<usize>,
+    /// Every hazard receiver floats for the whole gap (the fast path's premise).
+    whole_gaps: bool,
     /// Per node: until when its position is driven. Valid only when `dominant` is `None`.
     driven_until: Vec<u64>,
     /// `Some((p, b_p))` when every hazard receiver i is driven until exactly b_p + d(p,i).
@@ -62,11 +72,13 @@ pub struct FloatingSweep {
 }
 
 impl FloatingSweep {
-    pub fn new(hazard: Vec<bool>, window: (Picos, Picos)) -> Self {
-        let n = hazard.len();
+    /// `settle[i]`: how long a gap at receiver i counts (see the field).
+    pub fn new(settle: Vec<u64>, window: (Picos, Picos)) -> Self {
+        let n = settle.len();
         FloatingSweep {
-            hazard_ids: (0..n).filter(|&i| hazard[i]).collect(),
-            hazard,
+            hazard_ids: (0..n).filter(|&i| settle[i] > 0).collect(),
+            whole_gaps: settle.iter().all(|&s| s == 0 || s == u64::MAX),
+            settle,
             driven_until: vec![0; n],
             dominant: None,
             profiles: FxHashMap::default(),
@@ -89,7 +101,7 @@ impl FloatingSweep {
         self.materialize(|_| unreachable!("no dominant state without delays"));
         let until = self.driven_until[node];
         if from > until {
-            self.close(until, from.min(next_arrival));
+            self.close(until, from.min(next_arrival).min(until.saturating_add(self.settle[node])));
         }
         if to > until {
             self.driven_until[node] = to;
@@ -111,7 +123,7 @@ impl FloatingSweep {
         if self.hazard_ids.is_empty() {
             return;
         }
-        if self.fast_path && next.is_none() && self.try_fast(k, a, b, &rows) {
+        if self.fast_path && self.whole_gaps && next.is_none() && self.try_fast(k, a, b, &rows) {
             return;
         }
         self.materialize(&rows);
@@ -121,13 +133,15 @@ impl FloatingSweep {
         let mut dominates = true;
         // Branch-free: when the signal arrives before `until` the clipped
         // window is empty, because then to ≤ from ≤ until ≤ max(until, w0).
+        let settle = &self.settle;
         let mut one = |i: usize, until: &mut u64| {
             let d = delays[i];
             let from = a + d;
             let to = match next {
                 None => from,
                 Some(n) => from.min(n[i]),
-            };
+            }
+            .min((*until).saturating_add(settle[i]));
             let len = to.min(w1).saturating_sub((*until).max(w0));
             windows += u64::from(len > 0);
             total += u128::from(len);
@@ -220,10 +234,10 @@ impl FloatingSweep {
     /// Close every receiver's open window at the end of the run.
     pub fn finish<'a, D: Fn(usize) -> &'a [u64]>(&mut self, end: u64, rows: D) {
         self.materialize(rows);
-        for node in 0..self.hazard.len() {
-            if self.hazard[node] && self.driven_until[node] < end {
+        for node in 0..self.settle.len() {
+            if self.settle[node] > 0 && self.driven_until[node] < end {
                 let from = self.driven_until[node];
-                self.close(from, end);
+                self.close(from, end.min(from.saturating_add(self.settle[node])));
                 self.driven_until[node] = end;
             }
         }
@@ -250,7 +264,7 @@ mod tests {
 
     #[test]
     fn gaps_between_occupancies_are_windows() {
-        let mut f = FloatingSweep::new(vec![true, false], (Picos(0), Picos(1000)));
+        let mut f = FloatingSweep::new(vec![u64::MAX, 0], (Picos(0), Picos(1000)));
         f.feed(0, 100, 300, u64::MAX);
         f.feed(0, 350, 600, u64::MAX);
         f.feed(0, 500, 900, u64::MAX); // overlaps: no window
@@ -260,8 +274,20 @@ mod tests {
     }
 
     #[test]
+    fn a_settling_receiver_floats_only_until_the_line_has_settled() {
+        // Settling time 30 ps: of the gaps 0..100, 300..350 and 900..1000 it
+        // floats 0..30, 300..330 and 900..930.
+        let mut f = FloatingSweep::new(vec![30], (Picos(0), Picos(1000)));
+        f.feed(0, 100, 300, u64::MAX);
+        f.feed(0, 350, 600, u64::MAX);
+        f.feed(0, 500, 900, u64::MAX);
+        f.finish(1000, |_| &[]);
+        assert_eq!(f.totals, FloatingTotals { windows: 3, total_ps: 90, longest_ps: 30 });
+    }
+
+    #[test]
     fn window_bounded_by_earlier_arrival() {
-        let mut f = FloatingSweep::new(vec![true], (Picos(0), Picos(1000)));
+        let mut f = FloatingSweep::new(vec![u64::MAX], (Picos(0), Picos(1000)));
         f.feed(0, 0, 100, u64::MAX);
         // Next fed occupancy arrives at 400, but another known one arrives at 250.
         f.feed(0, 400, 500, 250);
@@ -284,7 +310,7 @@ mod tests {
                 .collect();
             let rows = |i: usize| delays[i].as_slice();
             let window = (Picos(w0), Picos(60_000));
-            let hz: Vec<bool> = hazard[..n].to_vec();
+            let hz: Vec<u64> = hazard[..n].iter().map(|&h| if h { u64::MAX } else { 0 }).collect();
             let mut fast = FloatingSweep::new(hz.clone(), window);
             let mut slow = FloatingSweep::new(hz, window).without_fast_path();
             let mut t = 0u64;

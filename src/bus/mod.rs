@@ -92,9 +92,15 @@ impl Bus {
     pub fn new(spec: &Spec, line: &LineModel) -> Self {
         let window = (spec.warmup.0, spec.duration.0);
         let receiver_delay: Vec<u64> = spec.nodes.iter().map(|n| n.transceiver.receiver_delay.0).collect();
-        // A receiver is a hazard when the undriven line (biased or not) reads undefined.
-        let hazard =
-            (0..spec.nodes.len()).map(|i| line.idle_state(spec, i) == crate::line::IdleState::Undefined).collect();
+        // A receiver floats through every gap when the undriven line (biased or
+        // not) reads undefined there, and on a biased line until it has settled.
+        let hazard = (0..spec.nodes.len())
+            .map(|i| match (line.idle_state(spec, i), line.settled.settle[i]) {
+                (crate::line::IdleState::Undefined, _) => u64::MAX,
+                (_, Some(t)) => t.0,
+                (_, None) => 0,
+            })
+            .collect();
         Bus {
             log: VecDeque::with_capacity(64),
             processed: 0,

@@ -21,13 +21,17 @@ pub struct Ends {
 }
 
 impl Ends {
-    /// Resolve a termination against the loaded impedance (matched ends take Z').
-    pub fn resolve(termination: &Termination, loaded_ohm: f64) -> Self {
+    /// Resolve a termination: a matched end takes the loaded impedance of
+    /// the section it terminates (`near_ohm`, `far_ohm`).
+    pub fn resolve(termination: &Termination, near_section_ohm: f64, far_section_ohm: f64) -> Self {
         match *termination {
-            Termination::BothEnds { near_ohm, far_ohm } => {
-                Ends { near_ohm: near_ohm.unwrap_or(loaded_ohm), far_ohm: far_ohm.unwrap_or(loaded_ohm) }
+            Termination::BothEnds { near_ohm, far_ohm } => Ends {
+                near_ohm: near_ohm.unwrap_or(near_section_ohm),
+                far_ohm: far_ohm.unwrap_or(far_section_ohm),
+            },
+            Termination::FarEnd { far_ohm } => {
+                Ends { near_ohm: f64::INFINITY, far_ohm: far_ohm.unwrap_or(far_section_ohm) }
             }
-            Termination::FarEnd { far_ohm } => Ends { near_ohm: f64::INFINITY, far_ohm: far_ohm.unwrap_or(loaded_ohm) },
             Termination::Unterminated => Ends { near_ohm: f64::INFINITY, far_ohm: f64::INFINITY },
         }
     }
@@ -56,7 +60,7 @@ pub fn current_mode_v(current_a: f64, load_ohm: f64) -> f64 {
 
 /// Differential amplitude of a voltage-mode driver: V = V_oc · R / (R + R_out).
 pub fn voltage_mode_v(open_circuit_v: f64, output_ohm: f64, load_ohm: f64) -> f64 {
-    crate::spec::Driver::Voltage { open_circuit_v, output_ohm }.amplitude_v(load_ohm)
+    crate::spec::Driver::thevenin(open_circuit_v, output_ohm).amplitude_v(load_ohm)
 }
 
 #[cfg(test)]
@@ -86,16 +90,16 @@ mod tests {
 
     #[test]
     fn driver_position_sets_the_load() {
-        let both = Ends::resolve(&Termination::BothEnds { near_ohm: None, far_ohm: None }, 60.0);
+        let both = Ends::resolve(&Termination::BothEnds { near_ohm: None, far_ohm: None }, 60.0, 60.0);
         // Mid-line: Z'/2. At a matched end: R_T ∥ Z' = Z'/2 as well.
         assert_eq!(both.step_load_ohm(1.0, 2.0, 60.0), 30.0);
         assert_eq!(both.step_load_ohm(0.0, 2.0, 60.0), 30.0);
         assert_eq!(both.step_load_ohm(2.0, 2.0, 60.0), 30.0);
         assert_eq!(both.dc_load_ohm(), 30.0);
         // Multidrop: the near end is open, so a near-end driver sees Z'.
-        let far = Ends::resolve(&Termination::FarEnd { far_ohm: None }, 60.0);
+        let far = Ends::resolve(&Termination::FarEnd { far_ohm: None }, 60.0, 60.0);
         assert_eq!(far.step_load_ohm(0.0, 2.0, 60.0), 60.0);
-        let open = Ends::resolve(&Termination::Unterminated, 60.0);
+        let open = Ends::resolve(&Termination::Unterminated, 60.0, 60.0);
         assert!(open.dc_load_ohm().is_infinite());
     }
 }

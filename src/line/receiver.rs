@@ -3,6 +3,10 @@
 //! Threshold values are common practice for the standards named on each
 //! constructor, quoted from memory; confirm against the datasheet in use.
 
+/// How close to a threshold a voltage meets it (1 nV: far below any
+/// receiver's resolution, far above floating-point rounding).
+pub const THRESHOLD_TOLERANCE_V: f64 = 1e-9;
+
 /// Receiver input thresholds: the output reads high above `high_v` and low
 /// below `low_v`; in between it is undefined.
 #[derive(Clone, Debug, PartialEq)]
@@ -40,11 +44,14 @@ impl ReceiverClass {
         Self { name: "tia485".into(), low_v: -0.200, high_v: 0.200 }
     }
 
-    /// The state read at a differential input voltage `v`.
+    /// The state read at a differential input voltage `v`. A voltage at a
+    /// threshold meets it: the comparison allows [`THRESHOLD_TOLERANCE_V`], so
+    /// that a value computed to lie exactly on it (5 V through 720 Ω each
+    /// across 60 Ω is 200 mV) is not lost to floating-point rounding.
     pub fn read(&self, v: f64) -> IdleState {
-        if v > self.high_v {
+        if v >= self.high_v - THRESHOLD_TOLERANCE_V {
             IdleState::High
-        } else if v < self.low_v {
+        } else if v <= self.low_v + THRESHOLD_TOLERANCE_V {
             IdleState::Low
         } else {
             IdleState::Undefined
@@ -60,8 +67,15 @@ impl ReceiverClass {
     /// high-state and low-state margins. Negative means the receiver cannot
     /// resolve the signal.
     pub fn margin_v(&self, amplitude_v: f64) -> f64 {
-        let high = amplitude_v - self.high_v;
-        let low = self.low_v + amplitude_v;
+        self.margin_biased_v(amplitude_v, 0.0)
+    }
+
+    /// The same around a bias offset `bias_v` (the idle voltage at the
+    /// receiver, which the signal adds to): high at bias + amplitude, low at
+    /// bias − amplitude.
+    pub fn margin_biased_v(&self, amplitude_v: f64, bias_v: f64) -> f64 {
+        let high = bias_v + amplitude_v - self.high_v;
+        let low = self.low_v - (bias_v - amplitude_v);
         high.min(low)
     }
 }
@@ -80,6 +94,11 @@ mod tests {
         assert_eq!(ReceiverClass::tia485().idle_state(), IdleState::Undefined);
         let t2 = ReceiverClass::type2();
         assert_eq!(t2.read(0.100), IdleState::Undefined);
+        // A threshold is met exactly: 5 V through 720 Ω each across 60 Ω is
+        // 200 mV (common practice for TIA-485 bias), computed in floating point.
+        assert_eq!(ReceiverClass::tia485().read(5.0 * 60.0 / (1440.0 + 60.0)), IdleState::High);
+        assert_eq!(t2.read(0.150), IdleState::High);
+        assert_eq!(t2.read(0.050), IdleState::Low);
         assert_eq!(t2.read(0.151), IdleState::High);
         assert_eq!(t2.read(0.049), IdleState::Low);
     }

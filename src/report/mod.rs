@@ -192,7 +192,7 @@ impl Report {
                 .collect(),
         };
         let hazard: Vec<String> = (0..spec.nodes.len())
-            .filter(|&i| line.idle_state(spec, i) == IdleState::Undefined)
+            .filter(|&i| line.idle_state(spec, i) == IdleState::Undefined || line.settled.settle[i].is_some_and(|t| t.0 > 0))
             .map(|i| spec.nodes[i].name.clone())
             .collect();
         let floating = Floating {
@@ -203,8 +203,7 @@ impl Report {
         };
         let utilization = t.utilization();
         let line_fig = crate::line::figures::line_figures(spec, line);
-        let amp = line_fig.worst_amplitude_v;
-        let warnings = warnings(w, amp, &contention, &floating, &frames);
+        let warnings = warnings(w, &contention, &floating, &frames);
         Report {
             schema: SCHEMA,
             scenario: ScenarioId {
@@ -237,17 +236,18 @@ impl Report {
     }
 }
 
-fn warnings(w: &World, amp: f64, c: &Contention, f: &Floating, frames: &Frames) -> Vec<Warning> {
+fn warnings(w: &World, c: &Contention, f: &Floating, frames: &Frames) -> Vec<Warning> {
     let mut out = Vec::new();
-    for n in &w.spec.nodes {
-        let margin = n.transceiver.receiver.margin_v(amp);
+    for (i, n) in w.spec.nodes.iter().enumerate() {
+        let margin = crate::line::figures::margin_of(&w.spec, &w.line, i);
         if margin < 0.0 {
             out.push(Warning {
                 code: "amplitude-below-threshold",
                 node: Some(n.name.clone()),
                 message: format!(
-                    "the weakest driver's {} swing is {} short of this {} receiver's threshold",
-                    crate::units::format_si(amp, "V"),
+                    "its weakest signal ({}, from {}) is {} short of this {} receiver's threshold",
+                    crate::units::format_si(w.line.settled.received_v[i], "V"),
+                    w.spec.nodes[w.line.settled.received_from[i]].name,
                     crate::units::format_si(-margin, "V"),
                     n.transceiver.receiver.name
                 ),

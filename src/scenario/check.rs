@@ -113,6 +113,7 @@ fn noun(dim: Dimension) -> &'static str {
         Dimension::Rate => "rate",
         Dimension::DataSize => "size",
         Dimension::DelayPerLength => "delay per length",
+        Dimension::ResistancePerLength => "resistance per length",
     }
 }
 

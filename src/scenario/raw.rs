@@ -48,6 +48,17 @@ pub struct RawLine {
     pub velocity_factor: Option<Spanned<f64>>,
     pub termination: Option<Spanned<RawTermination>>,
     pub bias: Option<Spanned<RawBias>>,
+    pub conductor_resistance: Option<S>,
+    pub attenuation: Option<Spanned<RawAttenuation>>,
+}
+
+/// `attenuation = { db = 2.2, per = "100 m", at = "1 MHz" }`: cable loss at a frequency.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawAttenuation {
+    pub db: Option<Spanned<f64>>,
+    pub per: Option<S>,
+    pub at: Option<S>,
 }
 
 /// `[line.bias]`: pull-up and pull-down resistors to a supply.
@@ -57,6 +68,7 @@ pub struct RawBias {
     pub supply: S,
     pub pull_up: S,
     pub pull_down: S,
+    pub position: Option<S>,
 }
 
 #[derive(Debug, Default, Deserialize)]
@@ -74,6 +86,8 @@ pub struct RawTransceiver {
     pub stub_length: Option<S>,
     pub ground_offset: Option<S>,
     pub common_mode: Option<Spanned<Vec<S>>>,
+    pub offset: Option<Spanned<RawTime>>,
+    pub edge_fraction: Option<Spanned<f64>>,
     pub enable_time: Option<Spanned<RawTime>>,
     pub disable_time: Option<Spanned<RawTime>>,
     pub receiver_delay: Option<Spanned<RawTime>>,

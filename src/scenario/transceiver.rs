@@ -102,7 +102,7 @@ pub fn resolve(
         let chosen = v.choice(&name, &k, family::NAMES)?;
         l.family = family::lookup(chosen);
     }
-    let driver = driver(&l)?;
+    let (driver, driver_typical, driver_max) = driver(&l)?;
     let enable_range = l.time(|t| &t.enable_time, "enable_time")?;
     let disable_range = l.time(|t| &t.disable_time, "disable_time")?;
     let receiver_range = l.time(|t| &t.receiver_delay, "receiver_delay")?;
@@ -153,8 +153,37 @@ pub fn resolve(
         Some((list, k)) => Some(pair(v, &list, &k, "common_mode takes two voltages: [low, high]")?),
         None => l.family.as_ref().and_then(|f| f.common_mode_v),
     };
+    let offset_v = match l.get(|t| &t.offset, "offset") {
+        Some((raw, k)) => Some(match raw.get_ref() {
+            RawTime::One(s) => {
+                let x = v.qty(&Spanned::new(raw.span(), s.clone()), Dimension::Voltage, &k)?;
+                (x, x)
+            }
+            RawTime::Range(list) => pair(v, &Spanned::new(raw.span(), list.clone()), &k, "offset takes a voltage or two: [low, high]")?,
+        }),
+        None => l.family.as_ref().and_then(|f| f.offset_v),
+    };
+    if let Some((lo, hi)) = offset_v {
+        if lo.abs() > 100.0 || hi.abs() > 100.0 {
+            return Err(v.err(l.at.clone(), "transceiver.offset", "a driver offset beyond ±100 V is outside the supported range"));
+        }
+    }
+    let edge_fraction = match l.get(|t| &t.edge_fraction, "edge_fraction") {
+        Some((f, k)) => {
+            let x = *f.get_ref();
+            if !(x > 0.0 && x <= 1.0) {
+                return Err(v.err(f.span(), &k, format!("edge_fraction {x} must lie in (0, 1]: the fastest bit rate is edge_fraction / transition_time")));
+            }
+            x
+        }
+        None => l.family.as_ref().map_or(family::DEFAULT_EDGE_FRACTION, |f| f.edge_fraction),
+    };
     Ok(Transceiver {
         driver,
+        driver_typical,
+        driver_max,
+        offset_v,
+        edge_fraction,
         enable_time,
         disable_time,
         receiver_delay,
@@ -184,20 +213,28 @@ fn pair(v: &V, list: &Spanned<Vec<S>>, key: &str, msg: &str) -> R<(f64, f64)> {
     Ok((a, b))
 }
 
-fn driver(l: &Levels) -> R<Driver> {
+/// The node's weakest, typical and strongest drive.
+fn driver(l: &Levels) -> R<(Driver, Driver, Driver)> {
     let v = l.v;
     let current = l.get(|t| &t.drive_current, "drive_current");
     let voc = l.get(|t| &t.output_voltage, "output_voltage");
     let min = l.get(|t| &t.min_output, "min_output");
     let rout = match l.get(|t| &t.output_resistance, "output_resistance") {
-        Some((s, k)) => Some(v.non_negative(&s, Dimension::Resistance, &k)?),
+        Some((s, k)) => {
+            let r = v.non_negative(&s, Dimension::Resistance, &k)?;
+            if r > 1e6 {
+                return Err(v.err(s.span(), &k, "an output resistance above 1 MΩ is outside the supported range"));
+            }
+            Some(r)
+        }
         None => None,
     };
+    let one = |d: Driver| (d, d, d);
     let kind = match l.get(|t| &t.driver, "driver") {
         Some((s, k)) => v.choice(&s, &k, DRIVERS)?,
         None if current.is_some() => "current",
         None if voc.is_some() || min.is_some() => "voltage",
-        None => match l.family.as_ref().map(|f| f.driver) {
+        None => match l.family.as_ref().map(|f| f.driver_min) {
             Some(Driver::Current { .. }) => "current",
             Some(Driver::Voltage { .. }) => "voltage",
             None => {
@@ -214,28 +251,33 @@ fn driver(l: &Levels) -> R<Driver> {
     };
     if kind == "current" {
         return match current {
-            // A range counts with its weakest value: amplitudes are worst-case.
-            Some((raw, k)) => {
-                let amps = match raw.get_ref() {
-                    RawTime::One(s) => {
-                        v.within(&Spanned::new(raw.span(), s.clone()), Dimension::Current, &k, 1e-9, 1.0, "A")?
+            // A range: amplitudes use its weakest value, the common-mode check its strongest.
+            Some((raw, k)) => match raw.get_ref() {
+                RawTime::One(s) => {
+                    let amps =
+                        v.within(&Spanned::new(raw.span(), s.clone()), Dimension::Current, &k, 1e-9, 1.0, "A")?;
+                    Ok(one(Driver::Current { amps }))
+                }
+                RawTime::Range(list) => {
+                    if list.len() != 2 {
+                        return Err(v.err(raw.span(), &k, "a current range takes two values: [min, max]"));
                     }
-                    RawTime::Range(list) => {
-                        if list.len() != 2 {
-                            return Err(v.err(raw.span(), &k, "a current range takes two values: [min, max]"));
-                        }
-                        let lo = v.within(&list[0], Dimension::Current, &k, 1e-9, 1.0, "A")?;
-                        let hi = v.within(&list[1], Dimension::Current, &k, 1e-9, 1.0, "A")?;
-                        if lo > hi {
-                            return Err(v.err(raw.span(), &k, "the range's min exceeds its max"));
-                        }
-                        lo
+                    let lo = v.within(&list[0], Dimension::Current, &k, 1e-9, 1.0, "A")?;
+                    let hi = v.within(&list[1], Dimension::Current, &k, 1e-9, 1.0, "A")?;
+                    if lo > hi {
+                        return Err(v.err(raw.span(), &k, "the range's min exceeds its max"));
                     }
-                };
-                Ok(Driver::Current { amps })
-            }
-            None => match l.family.as_ref().map(|f| f.driver) {
-                Some(d @ Driver::Current { .. }) => Ok(d),
+                    Ok((
+                        Driver::Current { amps: lo },
+                        Driver::Current { amps: (lo + hi) / 2.0 },
+                        Driver::Current { amps: hi },
+                    ))
+                }
+            },
+            None => match l.family.as_ref() {
+                Some(f) if matches!(f.driver_min, Driver::Current { .. }) => {
+                    Ok((f.driver_min, f.driver_typical, f.driver_max))
+                }
                 _ => Err(l.missing("drive_current", "the drive current")),
             },
         };
@@ -243,7 +285,7 @@ fn driver(l: &Levels) -> R<Driver> {
     match (voc, min) {
         (Some((s, k)), None) => {
             let oc = v.within(&s, Dimension::Voltage, &k, 1e-3, 100.0, "V")?;
-            Ok(Driver::Voltage { open_circuit_v: oc, output_ohm: rout.unwrap_or(0.0) })
+            Ok(one(Driver::thevenin(oc, rout.unwrap_or(0.0))))
         }
         (None, Some((list, k))) => {
             // "At least V into R_test": with output resistance R_out the
@@ -258,19 +300,23 @@ fn driver(l: &Levels) -> R<Driver> {
             }
             let volts = v.qty(&items[0], Dimension::Voltage, &k)?;
             let test = v.qty(&items[1], Dimension::Resistance, &k)?;
-            if volts <= 0.0 || test <= 0.0 {
-                return Err(v.err(list.span(), &k, "min_output needs a positive voltage and test load"));
+            if !(volts > 0.0 && volts <= 100.0 && test > 0.0 && test <= 1e6) {
+                return Err(v.err(list.span(), &k, "min_output needs a voltage (up to 100 V) and a positive test load"));
             }
             let r = rout.unwrap_or(0.0);
-            Ok(Driver::Voltage { open_circuit_v: volts * (test + r) / test, output_ohm: r })
+            Ok(one(Driver::thevenin(volts * (test + r) / test, r)))
         }
         (Some((s, k)), Some(_)) => Err(v.err(s.span(), &k, "give output_voltage or min_output, not both")),
-        (None, None) => match l.family.as_ref().map(|f| f.driver) {
-            Some(Driver::Voltage { open_circuit_v, output_ohm }) => {
-                let r = rout.unwrap_or(output_ohm);
-                // The preset's figure is a minimum into 54 Ω: keep it with a given R_out.
-                Ok(Driver::Voltage { open_circuit_v: open_circuit_v * (54.0 + r) / 54.0, output_ohm: r })
-            }
+        (None, None) => match l.family.as_ref() {
+            Some(f) if matches!(f.driver_min, Driver::Voltage { .. }) => Ok(match rout {
+                // A given output resistance: the part meets the standard's
+                // minimum (1.5 V into 54 Ω) through it.
+                Some(r) => {
+                    let d = Driver::thevenin(1.5 * (54.0 + r) / 54.0, r);
+                    (d, d, f.driver_max)
+                }
+                None => (f.driver_min, f.driver_typical, f.driver_max),
+            }),
             _ => Err(l.missing("output_voltage", "the driver's output")),
         },
     }

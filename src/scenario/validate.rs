@@ -218,14 +218,73 @@ fn validate_line(v: &V, l: &RawLine, at: Range<usize>) -> R<LineSpec> {
                 ));
             }
             let r = b.get_ref();
+            let position_m = match &r.position {
+                None => 0.0,
+                Some(p) => {
+                    let x = v.qty(p, Dimension::Length, "line.bias.position")?;
+                    if !(0.0..=length_m * (1.0 + 1e-12)).contains(&x) {
+                        return Err(v.err(
+                            p.span(),
+                            "line.bias.position",
+                            format!(
+                                "position {} lies outside the line (0 m to {})",
+                                units::format_si(x, "m"),
+                                units::format_si(length_m, "m")
+                            ),
+                        ));
+                    }
+                    x.min(length_m)
+                }
+            };
             Some(Bias {
                 supply_v: v.within(&r.supply, Dimension::Voltage, "line.bias.supply", 0.1, 100.0, "V")?,
                 pull_up_ohm: v.within(&r.pull_up, Dimension::Resistance, "line.bias.pull_up", 1.0, 1e9, "Ω")?,
                 pull_down_ohm: v.within(&r.pull_down, Dimension::Resistance, "line.bias.pull_down", 1.0, 1e9, "Ω")?,
+                position_m,
             })
         }
     };
-    Ok(LineSpec { bias, length_m, impedance_ohm, delay_s_per_m, termination })
+    let conductor_ohm_per_m = match &l.conductor_resistance {
+        None => 0.0,
+        Some(r) => {
+            let x = v.non_negative(r, Dimension::ResistancePerLength, "line.conductor_resistance")?;
+            if x > 1000.0 {
+                return Err(v.err(
+                    r.span(),
+                    "line.conductor_resistance",
+                    format!("\"{}\" is outside the supported range 0 to 1 kΩ/m", r.get_ref()),
+                ));
+            }
+            x
+        }
+    };
+    let attenuation = match &l.attenuation {
+        None => None,
+        Some(a) => Some(attenuation(v, a)?),
+    };
+    Ok(LineSpec { bias, length_m, impedance_ohm, delay_s_per_m, termination, conductor_ohm_per_m, attenuation })
+}
+
+/// `line.attenuation`: every part required, each in range.
+fn attenuation(v: &V, a: &Spanned<RawAttenuation>) -> R<Attenuation> {
+    let r = a.get_ref();
+    let need = |key: &str, example: &str| {
+        v.err(
+            a.span(),
+            &format!("line.attenuation.{key}"),
+            format!("an attenuation needs `{key}`: write it as {{ db = 2.2, per = \"100 m\", at = \"1 MHz\" }} ({example})"),
+        )
+    };
+    let db = r.db.as_ref().ok_or_else(|| need("db", "the loss in dB"))?;
+    let per = r.per.as_ref().ok_or_else(|| need("per", "the length the loss is given for"))?;
+    let at = r.at.as_ref().ok_or_else(|| need("at", "the frequency the loss is given at"))?;
+    let loss = *db.get_ref();
+    if !(loss.is_finite() && (0.0..=1000.0).contains(&loss)) {
+        return Err(v.err(db.span(), "line.attenuation.db", format!("a loss of {loss} dB is outside 0 to 1000 dB")));
+    }
+    let per_m = v.within(per, Dimension::Length, "line.attenuation.per", 1e-3, 1e6, "m")?;
+    let at_hz = v.within(at, Dimension::Rate, "line.attenuation.at", 1.0, 1e12, "Hz")?;
+    Ok(Attenuation { db_per_m: loss / per_m, at_hz })
 }
 
 fn validate_expectations(v: &V, raw: &RawScenario) -> R<Vec<Expectation>> {

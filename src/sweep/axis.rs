@@ -57,6 +57,7 @@ pub fn base_unit(dim: Dimension) -> &'static str {
         Dimension::Rate => "1/s",
         Dimension::DataSize => "bit",
         Dimension::DelayPerLength => "s/m",
+        Dimension::ResistancePerLength => "ohm/m",
     }
 }
 

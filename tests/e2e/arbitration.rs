@@ -7,7 +7,7 @@
 
 use crate::common;
 
-use common::{halfwire, loaded_tpd, run_toml};
+use common::{halfwire, run_toml, section_times};
 
 /// A periodic message: (identifier, period µs, jitter µs, payload bytes).
 type Flow = (u64, u64, u64, u64);
@@ -106,8 +106,10 @@ fn above_the_bound_the_lowest_identifier_wins_within_the_response_time_bound() {
     assert!(s["lost"].as_u64().unwrap() > 10, "arbitration really happened");
     assert_eq!(j["frames"]["corrupted"], 0);
     assert_eq!(j["contention"]["events"], 0);
-    let tpd = loaded_tpd(5e-9, 120.0, 4.0 * 20e-12, 30.0);
-    let bounds = wcrt(2e-6, 30.0 * tpd, 50e-9, 50e-9, 40e-9);
+    // End-to-end delay: the loaded-line formula section by section.
+    let nodes: Vec<(f64, f64)> = NODES.iter().map(|n| (n.1, 20e-12)).collect();
+    let times = section_times(5e-9, 120.0, 30.0, &nodes);
+    let bounds = wcrt(2e-6, times[3] - times[0], 50e-9, 50e-9, 40e-9);
     for (id, bound) in bounds {
         let key = format!("{id:#06x}");
         let observed = j["latency_s"]["ids"][&key]["max"].as_f64().unwrap();

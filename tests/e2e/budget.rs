@@ -57,12 +57,14 @@ fn loaded_line_three_hand_worked_cases() {
         (90.0, 6.0, 3.0, 10, 6.0, 78.9352, 6.8411), // by hand: C0 = 66.67 pF/m, C_d·n = 20 pF/m, ratio 0.3, k = sqrt(1.3) = 1.14018
     ];
     for (z0, tpd, len, n, load, z_exp, t_exp) in cases {
-        let positions: Vec<f64> = (0..n).map(|i| len * i as f64 / (n - 1) as f64).collect();
+        // Each node in the middle of its own equal stretch: the load is spread evenly, as the formula assumes.
+        let positions: Vec<f64> = (0..n).map(|i| len * (i as f64 + 0.5) / n as f64).collect();
         let line = format!("length = \"{len} m\"\nimpedance = \"{z0} ohm\"\ndelay = \"{tpd} ns/m\"");
         let tx = format!("drive_current = \"11.3 mA\"\nload = \"{load} pF\"\nreceiver = \"type2\"\n{TIMING}");
         let b = budget(&bus(&line, &tx, POLL, &positions), &[]);
         let l = &b["line"];
         assert!(close(l["loaded_impedance_ohm"].as_f64().unwrap(), z_exp, 1e-5), "{z0}: {l}");
+        assert!(close(l["loaded_impedance_min_ohm"].as_f64().unwrap(), z_exp, 1e-5), "{z0}: {l}");
         assert!(close(l["loaded_delay_s_per_m"].as_f64().unwrap(), t_exp * 1e-9, 1e-5), "{z0}: {l}");
         assert!(close(l["end_to_end_delay_s"].as_f64().unwrap(), t_exp * 1e-9 * len, 1e-4));
     }
@@ -98,7 +100,8 @@ fn amplitudes_against_common_practice() {
         assert!(close(a, 0.339, 1e-9) && a > 0.300);
         assert!(close(b["nodes"][n]["amplitude_dc_v"].as_f64().unwrap(), 0.339, 1e-9));
     }
-    // LVDS (common practice): 3.5 mA into 100 Ω = 350 mV, from the family preset.
+    // LVDS (TIA/EIA-644, from memory): the preset's weakest driver gives 247 mV
+    // into 100 Ω (2.47 mA), and its typical one 350 mV (3.5 mA, common practice).
     let lvds = format!("family = \"lvds\"\nload = \"0 pF\"\n{TIMING}");
     let b = budget(
         &bus(
@@ -109,7 +112,8 @@ fn amplitudes_against_common_practice() {
         ),
         &[],
     );
-    assert!(close(b["nodes"]["n0"]["amplitude_step_v"].as_f64().unwrap(), 0.350, 1e-9));
+    assert!(close(b["nodes"]["n0"]["amplitude_step_v"].as_f64().unwrap(), 0.247, 1e-9));
+    assert!(close(b["nodes"]["n0"]["amplitude_typical_v"].as_f64().unwrap(), 0.350, 1e-9));
     // A voltage-mode driver (3.3 V behind 50 Ω) into 54 Ω (two 108 Ω ends):
     // 3.3·54/104 = 1.713 V, above TIA-485-A's 1.5 V minimum (from memory).
     let b = budget(
@@ -138,8 +142,15 @@ fn failsafe_bias_sets_the_idle_state() {
     assert!(close(b["line"]["idle_v"].as_f64().unwrap(), 0.200, 1e-12));
     // The bias adds 1440 Ω across the pair: DC load 60 ∥ 1440 = 57.6 Ω.
     assert!(close(b["line"]["dc_load_ohm"].as_f64().unwrap(), 57.6, 1e-9));
-    // 200 mV is not above ±200 mV: still undefined there; 680 Ω gives 211 mV.
-    assert_eq!(b["nodes"]["n1"]["idle_state"], "undefined");
+    // A voltage exactly at a threshold meets it: 200 mV reads high at a
+    // ±200 mV receiver (the comparison allows for floating-point rounding).
+    assert_eq!(b["nodes"]["n1"]["idle_state"], "high");
+    // 740 Ω gives 5·60/1540 = 195 mV: undefined, and the budget says the bias is too weak.
+    let weak = budget(&bus(&line(740), &tx("tia485"), POLL, &[0.0, 10.0]), &[]);
+    assert_eq!(weak["nodes"]["n1"]["idle_state"], "undefined");
+    let w = weak["warnings"].as_array().unwrap().iter().find(|w| w["code"] == "idle-undefined").unwrap().clone();
+    assert!(w["message"].as_str().unwrap().contains("bias too weak at n0: 194.8 mV against the 200 mV"), "{w}");
+    // 680 Ω gives 211 mV.
     let b = budget(&bus(&line(680), &tx("tia485"), POLL, &[0.0, 10.0]), &[]);
     assert!(close(b["line"]["idle_v"].as_f64().unwrap(), 5.0 * 60.0 / 1420.0, 1e-12));
     assert_eq!(b["nodes"]["n1"]["idle_state"], "high");
@@ -148,8 +159,12 @@ fn failsafe_bias_sets_the_idle_state() {
         let b = budget(&bus(&line(680), &tx(rx), POLL, &[0.0, 10.0]), &[]);
         assert_eq!(b["nodes"]["n1"]["idle_state"], "high", "{rx}");
     }
-    // Without the bias a type-1 receiver reads the idle line as undefined;
-    // the run then counts floating windows, and with the bias it counts none.
+    // Without the bias a type-1 receiver reads the idle line as undefined, and
+    // the run counts a floating window at every gap. With the bias it floats
+    // only while the line relaxes after a release: from the far swing
+    // (−678 mV: 11.3 mA into 60 Ω at an end) to its +50 mV threshold around
+    // the 211 mV idle level, with τ = R·C, R = 60 Ω ∥ 1360 Ω, C = 10 m ×
+    // tpd0/Z0 (41.67 pF/m): t = τ·ln((0.2113 + 0.678)/(0.2113 − 0.05)).
     let plain = bus(
         "length = \"10 m\"\nimpedance = \"120 ohm\"\ndelay = \"5 ns/m\"\ntermination = \"120 ohm\"",
         &tx("type1"),
@@ -157,7 +172,13 @@ fn failsafe_bias_sets_the_idle_state() {
         &[0.0, 10.0],
     );
     assert!(common::run_toml(&plain)["floating"]["windows"].as_u64().unwrap() > 0);
-    assert_eq!(common::run_toml(&bus(&line(680), &tx("type1"), POLL, &[0.0, 10.0]))["floating"]["windows"], 0);
+    let biased = common::run_toml(&bus(&line(680), &tx("type1"), POLL, &[0.0, 10.0]));
+    let tau = 1.0 / (1.0 / 60.0 + 1.0 / 1360.0) * 10.0 * 5e-9 / 120.0;
+    let b0: f64 = 5.0 * 60.0 / 1420.0;
+    let settle = tau * ((b0 + 11.3e-3 * 60.0) / (b0 - 0.05)).ln();
+    let f = &biased["floating"];
+    assert!(f["windows"].as_u64().unwrap() > 0, "{f}");
+    assert!((f["longest_s"].as_f64().unwrap() - settle).abs() < 2e-12, "{f} against {settle}");
 }
 
 #[test]
@@ -212,7 +233,8 @@ fn tdma_guard_minimum_matches_the_derivation() {
     let eps: f64 = 100e-6;
     let b = budget(&common::tdma_pair(50_000, 5_657_000, 8_000_000, R_FAST), &[]);
     let pr = b["handovers"].as_array().unwrap().iter().find(|h| h["from"] == "p" && h["to"] == "r").unwrap().clone();
-    let d = (7.0 * common::loaded_tpd(5e-9, 100.0, 15e-12, 10.0) * 1e12).round() * 1e-12;
+    let times = common::section_times(5e-9, 100.0, 10.0, &[(0.0, 5e-12), (2.0, 5e-12), (9.0, 5e-12)]);
+    let d = common::wire_ps(&times, 1, 2) as f64 * 1e-12;
     let o_r = 5657e-9;
     let expected = (1.0 + eps) * (9e-9 + d + o_r * (1.0 - 1.0 / (1.0 + eps)));
     assert!((pr["min_turnaround_s"].as_f64().unwrap() - expected).abs() < 2e-12, "{pr} vs {expected}");

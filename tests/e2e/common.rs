@@ -175,6 +175,35 @@ pub fn loaded_tpd(tpd0: f64, z0: f64, total_load_f: f64, length_m: f64) -> f64 {
     tpd0 * (1.0 + total_load_f / length_m / c0).sqrt()
 }
 
+/// Signal time (s) from the near end to each node on a line loaded section by
+/// section: each node's load spread over its own stretch (to the midpoints
+/// with its neighbours, the line's ends for the first and last), each stretch
+/// with the handbook formula (Johnson & Graham 1993), tpd' = tpd0·sqrt(1 +
+/// C/(C0·Δx)); written out here apart from the library, as a check on it.
+/// `nodes`: (position m, load F), in position order, at distinct positions.
+pub fn section_times(tpd0: f64, z0: f64, length_m: f64, nodes: &[(f64, f64)]) -> Vec<f64> {
+    let c0 = tpd0 / z0;
+    let bounds: Vec<(f64, f64)> = (0..nodes.len())
+        .map(|k| {
+            let from = if k == 0 { 0.0 } else { (nodes[k - 1].0 + nodes[k].0) / 2.0 };
+            let to = if k + 1 == nodes.len() { length_m } else { (nodes[k].0 + nodes[k + 1].0) / 2.0 };
+            (from, to)
+        })
+        .collect();
+    let tpd = |k: usize| tpd0 * (1.0 + nodes[k].1 / (c0 * (bounds[k].1 - bounds[k].0))).sqrt();
+    nodes
+        .iter()
+        .map(|&(x, _)| {
+            (0..nodes.len()).map(|k| (x.min(bounds[k].1) - bounds[k].0).max(0.0) * tpd(k)).sum()
+        })
+        .collect()
+}
+
+/// Wire delay (ps) between two nodes of [`section_times`], rounded as the engine rounds.
+pub fn wire_ps(times: &[f64], i: usize, j: usize) -> u64 {
+    ((times[i] - times[j]).abs() * 1e12).round() as u64
+}
+
 /// Mean waiting time (arrival to start of service) in a symmetric polling
 /// system with N queues, Poisson arrivals λ per queue, service time b with
 /// second moment b2, and deterministic switchover r per queue:

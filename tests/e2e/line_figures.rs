@@ -6,12 +6,21 @@ use crate::common;
 
 use common::run_toml;
 
-/// Three or two nodes on a line whose node loads add exactly 3·C0 per metre,
-/// so the loaded impedance is Z0/2 and the delay 2·tpd0.
+/// Three or two nodes on a line whose node loads add exactly 3·C0 per metre
+/// of each node's own stretch, so the loaded impedance is Z0/2 and the delay
+/// 2·tpd0 everywhere. Nodes at the ends of a three-node line have half-length
+/// stretches, so they carry half the middle node's load.
 fn line(z0: f64, termination: &str, drive: &str, nodes: &str) -> String {
     let c0_pf = 5e-9 / z0 * 1e12; // C0 = tpd0 / Z0 in pF/m, tpd0 = 5 ns/m
     let count = nodes.matches("[[node]]").count() as f64;
     let load = 3.0 * c0_pf / count; // 1 m line
+    let nodes = if count == 3.0 {
+        nodes.replace("position = \"0 m\"\n", &format!("position = \"0 m\"\n[node.transceiver]\nload = \"{} pF\"\n", 3.0 * c0_pf * 0.25))
+            .replace("position = \"1 m\"\n", &format!("position = \"1 m\"\n[node.transceiver]\nload = \"{} pF\"\n", 3.0 * c0_pf * 0.25))
+            .replace("position = \"0.5 m\"\n", &format!("position = \"0.5 m\"\n[node.transceiver]\nload = \"{} pF\"\n", 3.0 * c0_pf * 0.5))
+    } else {
+        nodes.to_owned()
+    };
     format!(
         r#"
 duration = "200 us"

@@ -9,7 +9,7 @@
 
 use crate::common;
 
-use common::{loaded_tpd, mean_ci, par_map, pollaczek_khinchine, takagi, Bus};
+use common::{mean_ci, par_map, pollaczek_khinchine, section_times, takagi, wire_ps, Bus};
 
 const TB: f64 = 10e-9; // 100 Mbit/s
 const LD: f64 = 560.0; // 48 overhead + 512 payload bits, NRZ
@@ -26,13 +26,14 @@ struct Setup {
 /// One replication's mean wait (through the built binary).
 fn mean_wait(bus: &Bus) -> f64 {
     let j = bus.run();
-    // Wire delay slave → master from the handbook loaded-line formula.
-    let tpd = loaded_tpd(5e-9, 100.0, (bus.slaves + 1) as f64 * 5e-12, bus.length_m);
+    // Wire delay slave → master from the handbook loaded-line formula, section by section.
+    let mut nodes = vec![(0.0, 5e-12)];
+    nodes.extend((0..bus.slaves).map(|i| (bus.first_m + bus.spacing_m * i as f64, 5e-12)));
+    let times = section_times(5e-9, 100.0, bus.length_m, &nodes);
     let (mut sum, mut count) = (0.0, 0.0);
     for (name, l) in j["latency_s"]["nodes"].as_object().unwrap() {
         let k: f64 = name.trim_start_matches('s').parse().unwrap();
-        let x = bus.first_m + bus.spacing_m * (k - 1.0);
-        let d = (x * tpd * 1e12).round() * 1e-12;
+        let d = wire_ps(&times, 0, k as usize) as f64 * 1e-12;
         let tail = 20e-9 + 7e-9 + LD * TB + d + 5e-9;
         let n = l["count"].as_f64().unwrap();
         sum += (l["mean"].as_f64().unwrap() - tail) * n;

@@ -3,7 +3,7 @@
 
 use crate::common;
 
-use common::{loaded_tpd, Bus};
+use common::{section_times, wire_ps, Bus};
 use serde_json::Value;
 
 fn ps(x: &Value) -> u64 {
@@ -16,13 +16,15 @@ fn zero_load_cycle_is_the_sum_of_the_timing_terms() {
     let j = bus.run();
     // Independent computation of the documented cycle:
     // Σ_i [e_M + Lp·tb + d(M,i) + r_i + T_i + e_i + Le·tb + d(i,M) + r_M + T_M]
-    let tpd = loaded_tpd(5e-9, 100.0, 6.0 * 5e-12, bus.length_m);
+    // Wire delays from the loaded-line formula, section by section (the master at 0 m).
+    let mut nodes = vec![(0.0, 5e-12)];
+    nodes.extend((0..bus.slaves).map(|i| (bus.first_m + bus.spacing_m * i as f64, 5e-12)));
+    let times = section_times(5e-9, 100.0, bus.length_m, &nodes);
     let (e, r, t_s, t_m, tb) = (7_000u64, 5_000u64, 20_000u64, 30_000u64, 10_000u64);
     let (lp, le) = (32u64, 16u64);
     let mut cycle = 0u64;
     for i in 0..bus.slaves {
-        let x = bus.first_m + bus.spacing_m * i as f64;
-        let d = (x * tpd * 1e12).round() as u64;
+        let d = wire_ps(&times, 0, i + 1);
         cycle += e + lp * tb + d + r + t_s + e + le * tb + d + r + t_m;
     }
     let s = &j["scheme"];

@@ -4,7 +4,7 @@
 
 use crate::common;
 
-use common::{loaded_tpd, run_toml, tdma_pair};
+use common::{run_toml, section_times, tdma_pair, wire_ps};
 use serde_json::Value;
 
 const EN: f64 = 7e-9;
@@ -26,8 +26,9 @@ fn guard_bound_with_clock_error() {
     // — the disable time, the wire delay between consecutive owners and the
     // clock error accumulated since the beacon.
     let eps = 100e-6;
-    let tpd = loaded_tpd(5e-9, 100.0, 15e-12, 10.0);
-    let d = (7.0 * tpd * 1e12).round() * 1e-12;
+    // d(P,R): the loaded-line formula section by section (tk 0 m, P 2 m, R 9 m, 5 pF each).
+    let times = section_times(5e-9, 100.0, 10.0, &[(0.0, 5e-12), (2.0, 5e-12), (9.0, 5e-12)]);
+    let d = wire_ps(&times, 1, 2) as f64 * 1e-12;
     let g_star = ((DIS + d) * (1.0 + eps) + eps * (EN + DUR)) / (1.0 - eps);
     let run = |g: f64| {
         let g_ps = (g * 1e12).round() as u64;

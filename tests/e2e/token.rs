@@ -106,15 +106,15 @@ fn ps(v: &Value) -> u64 {
 fn zero_load_rotation_is_the_sum_of_the_hops() {
     let ring = Ring::default();
     let j = ring.run();
-    // rotation = Σ_i [T_i + e_i + Lt·tb + d(i, i+1) + r_(i+1)], tpd' from the
-    // loaded-line formula (Johnson & Graham 1993): 5 nodes × 5 pF on 2 m.
-    let c0 = 5e-9 / 100.0;
-    let tpd = 5e-9 * (1.0f64 + 25e-12 / 2.0 / c0).sqrt();
-    let positions: Vec<f64> = (0..5).map(|i| 0.4 * i as f64).collect();
+    // rotation = Σ_i [T_i + e_i + Lt·tb + d(i, i+1) + r_(i+1)], with wire delays
+    // from the loaded-line formula (Johnson & Graham 1993) section by section:
+    // 5 nodes × 5 pF at 0, 0.4, … 1.6 m of a 2 m line.
+    let nodes: Vec<(f64, f64)> = (0..5).map(|i| (0.4 * i as f64, 5e-12)).collect();
+    let times = common::section_times(5e-9, 100.0, 2.0, &nodes);
     let mut rotation = 0u64;
     for i in 0..5 {
         let next = (i + 1) % 5;
-        let d = ((positions[i] - positions[next]).abs() * tpd * 1e12).round() as u64;
+        let d = common::wire_ps(&times, i, next);
         rotation += 20_000 + 7_000 + 24 * 10_000 + d + 5_000;
     }
     let s = &j["scheme"];

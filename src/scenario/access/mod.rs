@@ -167,16 +167,11 @@ impl<'a> Access<'a> {
         WorstTimes::of(self.nodes).lag(self.max_wire())
     }
 
-    /// The largest wire delay between two nodes, on the loaded line.
+    /// The largest wire delay between two nodes, on the loaded line (section by section).
     pub fn max_wire(&self) -> Picos {
-        let total: f64 = self.nodes.iter().map(|n| n.transceiver.load_f).sum();
-        let (lo, hi) = self
-            .nodes
-            .iter()
-            .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), n| (lo.min(n.position_m), hi.max(n.position_m)));
-        let line =
-            crate::line::LoadedLine::new(self.line.impedance_ohm, self.line.delay_s_per_m, self.line.length_m, total);
-        Picos(((hi - lo) * line.delay_s_per_m * 1e12).round() as u64)
+        let (_, times) = crate::line::node_times(self.line, self.nodes);
+        let (lo, hi) = times.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &t| (lo.min(t), hi.max(t)));
+        Picos(((hi - lo) * 1e12).round() as u64)
     }
 
     /// `access.slot_time` if given (> 0), else `default`.
