@@ -147,9 +147,8 @@ fn margins(spec: &Spec, line: &LineModel, out: &mut Vec<BudgetWarning>) {
                 "amplitude-below-threshold",
                 Some(&n.name),
                 format!(
-                    "gets {} from {} (its weakest signal){bias}: a margin of {} against its {} thresholds ({} / {})",
+                    "its weakest signal is {}{bias}: a margin of {} against its {} thresholds ({} / {})",
                     format_si(s.received_v[i], "V"),
-                    spec.nodes[s.received_from[i]].name,
                     format_si(m, "V"),
                     rx.name,
                     format_si(rx.low_v, "V"),
@@ -263,14 +262,16 @@ fn edges(spec: &Spec, line: &LineModel, options: Options, out: &mut Vec<BudgetWa
     let limit = options.stub_fraction * fastest.as_secs_f64();
     let sections = &line.sections.list;
     if sections.len() >= 3 {
-        let worst = sections[1..sections.len() - 1].iter().max_by(|a, b| a.delay_s().total_cmp(&b.delay_s()));
-        if let Some(s) = worst.filter(|s| 2.0 * s.delay_s() > limit && s.load_f > 0.0) {
+        let inner = &sections[1..sections.len() - 1];
+        let longest = inner.iter().map(|s| s.delay_s()).fold(0.0, f64::max);
+        let worst = inner.iter().find(|s| s.delay_s() >= longest && s.load_f > 0.0);
+        if let Some(s) = worst.filter(|s| 2.0 * s.delay_s() > limit) {
             warn(
                 out,
                 "loading-not-distributed",
                 None,
                 format!(
-                    "the loads around {} are {} apart in time (round trip {}), not small against the {fastest} edge (at most {} of it): the loaded-line figures (Z', tpd') are approximate there",
+                    "neighbouring loads are up to {1} apart in time (first around {0}; round trip {2}), not small against the {fastest} edge (at most {3} of it): the loaded-line figures (Z', tpd') are approximate there",
                     format_si((s.from_m + s.to_m) / 2.0, "m"),
                     format_seconds(s.delay_s()),
                     format_seconds(2.0 * s.delay_s()),

@@ -25,6 +25,8 @@ pub struct Handover {
     /// What the scenario sets, and whether it is enough.
     pub configured_s: f64,
     pub ok: bool,
+    /// How much room the setting leaves: set − minimum (negative when too short).
+    pub slack_s: f64,
     /// With a floating-window limit: the longest turnaround that keeps every
     /// window at an undefined-idle receiver within it (`None`: no such
     /// receiver, or no limit asked for).
@@ -49,6 +51,7 @@ fn turnaround(spec: &Spec, p: NodeId, r: NodeId, configured: Picos) -> Handover 
         min_turnaround_s: min.as_secs_f64(),
         configured_s: configured.as_secs_f64(),
         ok: configured >= min,
+        slack_s: 0.0,
         max_turnaround_for_float_s: None,
         min,
         responder: Some(r),
@@ -123,6 +126,9 @@ pub fn handovers(spec: &Spec, line: &LineModel, float_limit: Option<Picos>) -> V
             }
         }
     }
+    for h in &mut out {
+        h.slack_s = h.configured_s - h.min_turnaround_s;
+    }
     out.sort_by_key(|h| std::cmp::Reverse(h.min));
     out
 }
@@ -135,6 +141,7 @@ fn whole_bus(kind: &'static str, min: Picos, configured: Picos) -> Handover {
         min_turnaround_s: min.as_secs_f64(),
         configured_s: configured.as_secs_f64(),
         ok: configured >= min,
+        slack_s: 0.0,
         max_turnaround_for_float_s: None,
         min,
         responder: None,
@@ -194,6 +201,7 @@ fn tdma(spec: &Spec, line: &LineModel, t: &crate::spec::TdmaSpec) -> Vec<Handove
             min_turnaround_s: min.as_secs_f64(),
             configured_s: t.guard.as_secs_f64(),
             ok: t.guard >= min,
+            slack_s: 0.0,
             max_turnaround_for_float_s: None,
             min,
             responder: Some(r),

@@ -3,6 +3,7 @@
 //! implementation in `line::figures`).
 
 pub mod checks;
+pub mod cycle;
 pub mod electrical;
 pub mod handover;
 pub mod text;
@@ -56,7 +57,22 @@ pub struct Budget {
     pub nodes: BTreeMap<String, NodeFigures>,
     pub limits: Limits,
     pub handovers: Vec<Handover>,
+    /// The undriven line and its loading along the line, node by node in position order.
+    pub profile: Vec<ProfilePoint>,
+    /// The scheme's zero-load cycle and the bandwidth it leaves (`null` for random access).
+    pub cycle: Option<cycle::Cycle>,
     pub warnings: Vec<BudgetWarning>,
+}
+
+/// One node's place on the line.
+#[derive(Clone, Debug, Serialize)]
+pub struct ProfilePoint {
+    pub node: String,
+    pub position_m: f64,
+    /// The undriven line's voltage there.
+    pub idle_v: f64,
+    /// The loaded impedance of the section there.
+    pub impedance_ohm: f64,
 }
 
 impl Budget {
@@ -73,6 +89,17 @@ impl Budget {
         };
         let handovers = handover::handovers(spec, &line, options.float_limit);
         let warnings = checks::warnings(spec, &line, &handovers, options);
+        let mut order: Vec<usize> = (0..spec.nodes.len()).collect();
+        order.sort_by(|&a, &b| spec.nodes[a].position_m.total_cmp(&spec.nodes[b].position_m));
+        let profile = order
+            .into_iter()
+            .map(|i| ProfilePoint {
+                node: spec.nodes[i].name.clone(),
+                position_m: spec.nodes[i].position_m,
+                idle_v: line.settled.idle_v[i],
+                impedance_ohm: line.sections.at(spec.nodes[i].position_m).line.impedance_ohm,
+            })
+            .collect();
         Budget {
             schema: SCHEMA,
             scenario: spec.name.clone(),
@@ -81,6 +108,8 @@ impl Budget {
             nodes,
             limits,
             handovers,
+            profile,
+            cycle: cycle::cycle(spec, &line),
             warnings,
         }
     }

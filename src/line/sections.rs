@@ -3,10 +3,15 @@
 //! The loaded-line formula (Johnson & Graham, *High-Speed Digital Design*,
 //! 1993) holds for capacitance spread evenly along a line. A real line is
 //! often loaded unevenly (twenty cards crowded at one end of a backplane), so
-//! each node's load is spread over its own stretch of line: from the midpoint
-//! to its neighbour on one side to the midpoint to its neighbour on the other
-//! (the line's end for the first and last node; nodes at one position share
-//! a stretch). Each section then has its own loaded impedance and delay:
+//! each node's load is spread over its own pitch: from the midpoint to its
+//! neighbour on one side to the midpoint to its neighbour on the other. The
+//! first and last node reach as far outward as inward (half the gap to their
+//! only neighbour), clipped to the line (the part of a pitch beyond an end is
+//! capacitance lumped at the end, which changes edges, not the loaded
+//! impedance or delay); stretches no node reaches are unloaded, and nodes at
+//! one position share a pitch. So evenly spaced nodes load the line evenly
+//! wherever they sit, a node at the very end included.
+//! Each section then has its own loaded impedance and delay:
 //!
 //! ```text
 //! Z'_k   = Z0   / sqrt(1 + C_k / (C0·Δx_k))
@@ -68,10 +73,32 @@ impl Sections {
             });
             return Sections { list };
         }
+        let unloaded = |from: f64, to: f64| Section {
+            from_m: from,
+            to_m: to,
+            load_f: 0.0,
+            line: LoadedLine::new(z0_ohm, tpd0_s_per_m, to - from, 0.0),
+        };
+        let m = points.len();
+        let edge = |k: usize, inward: usize| (points[inward].0 - points[k].0).abs() / 2.0;
         for (k, &(x, c)) in points.iter().enumerate() {
-            let from = if k == 0 { 0.0 } else { (points[k - 1].0 + x) / 2.0 };
-            let to = if k + 1 == points.len() { length_m } else { (x + points[k + 1].0) / 2.0 };
+            let (from, to, c) = if m == 1 {
+                (0.0, length_m, c)
+            } else {
+                let from = if k == 0 { x - edge(0, 1) } else { (points[k - 1].0 + x) / 2.0 };
+                let to = if k + 1 == m { x + edge(m - 1, m - 2) } else { (x + points[k + 1].0) / 2.0 };
+                // A pitch that reaches past an end keeps its density: the part
+                // beyond is capacitance lumped at the end, left out here.
+                let (a, b) = (from.max(0.0), to.min(length_m));
+                (a, b, c * (b - a) / (to - from))
+            };
+            if k == 0 && from > 0.0 {
+                list.push(unloaded(0.0, from));
+            }
             list.push(Section { from_m: from, to_m: to, load_f: c, line: LoadedLine::new(z0_ohm, tpd0_s_per_m, to - from, c) });
+            if k + 1 == m && to < length_m {
+                list.push(unloaded(to, length_m));
+            }
         }
         Sections { list }
     }
@@ -123,6 +150,16 @@ mod tests {
     }
 
     #[test]
+    fn evenly_spaced_nodes_from_end_to_end_load_evenly() {
+        // 0, 0.5 and 1 m: each reaches half a gap both ways (clipped at the
+        // ends), so 7.5 pF each is 15 pF/m everywhere.
+        let s = Sections::new(100.0, 5e-9, 1.0, &[(0.0, 7.5e-12), (0.5, 7.5e-12), (1.0, 7.5e-12)]);
+        assert_eq!(s.list.len(), 3);
+        let z = 100.0 / (1.0f64 + 15e-12 / 50e-12).sqrt();
+        assert!(s.list.iter().all(|x| (x.line.impedance_ohm - z).abs() < 1e-9), "{s:?}");
+    }
+
+    #[test]
     fn a_crowded_stretch_is_loaded_more_than_the_average() {
         // Twenty cards at 0.75 in pitch on the first 15 in of a 1 m line
         // (Z0 = 100 Ω, tpd0 = 6 ns/m, C0 = 60 pF/m), 4.32 pF each: spread over
@@ -137,8 +174,8 @@ mod tests {
         assert!((crowded - 45.7).abs() < 0.1, "{crowded}");
         let average = LoadedLine::new(100.0, 6e-9, 1.0, 20.0 * 4.32e-12).impedance_ohm;
         assert!((average - 64.0).abs() < 0.1, "{average}");
-        // The rest of the line carries only the last card's outer half-stretch: almost unloaded.
-        assert!(s.at(0.9).line.impedance_ohm > 94.0);
+        // The rest of the line carries no card: unloaded.
+        assert_eq!(s.at(0.9).line.impedance_ohm, 100.0);
         // Delays sum the sections crossed.
         let inside = s.time_to(0.1);
         assert!((inside - 0.1 * 6e-9 * (1.0 + 4.32 / (60.0 * pitch)).sqrt()).abs() < 1e-15);

@@ -176,25 +176,35 @@ pub fn loaded_tpd(tpd0: f64, z0: f64, total_load_f: f64, length_m: f64) -> f64 {
 }
 
 /// Signal time (s) from the near end to each node on a line loaded section by
-/// section: each node's load spread over its own stretch (to the midpoints
-/// with its neighbours, the line's ends for the first and last), each stretch
-/// with the handbook formula (Johnson & Graham 1993), tpd' = tpd0·sqrt(1 +
-/// C/(C0·Δx)); written out here apart from the library, as a check on it.
-/// `nodes`: (position m, load F), in position order, at distinct positions.
+/// section: each node's load spread over its pitch (to the midpoints with its
+/// neighbours; the first and last node as far outward as inward, clipped to
+/// the line; the rest unloaded), each stretch with the handbook formula
+/// (Johnson & Graham 1993), tpd' = tpd0·sqrt(1 + C/(C0·Δx)); written out here
+/// apart from the library, as a check on it. `nodes`: (position m, load F),
+/// in position order, at distinct positions, at least two.
 pub fn section_times(tpd0: f64, z0: f64, length_m: f64, nodes: &[(f64, f64)]) -> Vec<f64> {
     let c0 = tpd0 / z0;
-    let bounds: Vec<(f64, f64)> = (0..nodes.len())
+    let m = nodes.len();
+    let bounds: Vec<(f64, f64)> = (0..m)
         .map(|k| {
-            let from = if k == 0 { 0.0 } else { (nodes[k - 1].0 + nodes[k].0) / 2.0 };
-            let to = if k + 1 == nodes.len() { length_m } else { (nodes[k].0 + nodes[k + 1].0) / 2.0 };
-            (from, to)
+            let from = if k == 0 { nodes[0].0 - (nodes[1].0 - nodes[0].0) / 2.0 } else { (nodes[k - 1].0 + nodes[k].0) / 2.0 };
+            let to = if k + 1 == m { nodes[m - 1].0 + (nodes[m - 1].0 - nodes[m - 2].0) / 2.0 } else { (nodes[k].0 + nodes[k + 1].0) / 2.0 };
+            (from.max(0.0), to.min(length_m))
         })
         .collect();
-    let tpd = |k: usize| tpd0 * (1.0 + nodes[k].1 / (c0 * (bounds[k].1 - bounds[k].0))).sqrt();
+    // Each node's load per metre of its pitch (the part of a pitch past an end is left out).
+    let pitch = |k: usize| {
+        let lo = if k == 0 { nodes[0].0 - (nodes[1].0 - nodes[0].0) / 2.0 } else { (nodes[k - 1].0 + nodes[k].0) / 2.0 };
+        let hi = if k + 1 == m { nodes[m - 1].0 + (nodes[m - 1].0 - nodes[m - 2].0) / 2.0 } else { (nodes[k].0 + nodes[k + 1].0) / 2.0 };
+        hi - lo
+    };
+    let tpd = |k: usize| tpd0 * (1.0 + nodes[k].1 / (c0 * pitch(k))).sqrt();
     nodes
         .iter()
         .map(|&(x, _)| {
-            (0..nodes.len()).map(|k| (x.min(bounds[k].1) - bounds[k].0).max(0.0) * tpd(k)).sum()
+            // The unloaded stretch before the first node's pitch, then the pitches crossed.
+            let lead = bounds[0].0.min(x) * tpd0;
+            lead + (0..m).map(|k| (x.min(bounds[k].1) - bounds[k].0).max(0.0) * tpd(k)).sum::<f64>()
         })
         .collect()
 }

@@ -84,7 +84,7 @@ fn demo_variant() -> impl Strategy<Value = (String, String)> {
     .iter()
     .map(|d| d.to_string())
     .collect();
-    (prop::sample::select(demos), 1u64..10_000, 0u64..3_000, 1u64..40).prop_map(|(demo, seed, gap_ns, load)| {
+    (prop::sample::select(demos), 1u64..10_000, 0u64..3_000, 5u64..40).prop_map(|(demo, seed, gap_ns, load)| {
         let text = std::fs::read_to_string(format!("scenarios/{demo}.toml")).unwrap();
         let mut doc: toml_edit::DocumentMut = text.parse().unwrap();
         doc["seed"] = toml_edit::value(seed as i64);
