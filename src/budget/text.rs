@@ -184,6 +184,10 @@ fn nodes(o: &mut String, b: &Budget) {
 
 /// Hand-overs, worst first; identical ones (same kind, minimum and setting) share a row.
 fn handovers(o: &mut String, b: &Budget) {
+    if b.handovers.is_empty() {
+        let _ = writeln!(o, "Hand-overs: none the scheme times (random access without a slot)");
+        return;
+    }
     let _ = writeln!(o, "Hand-overs (worst first; slack = set − minimum)");
     // Hand-overs alike (kind, minimum, setting) from one node, or else to one node, share a row.
     type Key = ([String; 4], Option<String>);

@@ -58,6 +58,10 @@ pub struct NodeFigures {
     /// The undriven line's voltage at this node, and what its receiver reads there.
     pub idle_v: f64,
     pub idle_state: IdleState,
+    /// On a biased line: how long after each release the line takes to
+    /// settle past this receiver's threshold (it floats meanwhile); `None`
+    /// (null) without a bias network or where the bias leaves it undefined.
+    pub settle_s: Option<f64>,
 }
 
 /// A driver's worst amplitude at its own position: the smaller of its step and settled values.
@@ -119,5 +123,6 @@ pub fn node_figures(spec: &Spec, line: &LineModel, node: usize) -> NodeFigures {
         margin_v: margin_of(spec, line, node),
         idle_v: line.settled.idle_v[node],
         idle_state: line.idle_state(spec, node),
+        settle_s: line.settled.settle[node].map(|t| t.as_secs_f64()),
     }
 }

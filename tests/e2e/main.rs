@@ -10,6 +10,7 @@ mod budget;
 mod cli_run;
 mod cosim;
 mod csma;
+mod electrical;
 mod line_figures;
 mod mutation;
 mod pictures;
