@@ -32,10 +32,15 @@ fn mean(l: &Latency) -> Picos {
     }
 }
 
-/// Time on the wire of `k` back-to-back data frames of `payload` bits.
-fn burst(frame: &FrameFormat, k: u32, payload: u64) -> Picos {
-    let one = frame.duration(frame.data_line_bits(payload)).0;
-    Picos(one * u64::from(k) + frame.interframe_gap.0 * u64::from(k.saturating_sub(1)))
+/// Time on the wire of `k` back-to-back data frames of `payload` bits (ps;
+/// every sum here is 128-bit: a cycle adds many bounded terms).
+fn burst(frame: &FrameFormat, k: u32, payload: u64) -> u128 {
+    let one = u128::from(frame.duration(frame.data_line_bits(payload)).0);
+    one * u128::from(k) + u128::from(frame.interframe_gap.0) * u128::from(k.saturating_sub(1))
+}
+
+fn w(t: Picos) -> u128 {
+    u128::from(t.0)
 }
 
 /// `None` for schemes without a fixed turn order (random access, arbitration).
@@ -48,25 +53,26 @@ pub fn cycle(spec: &Spec, line: &LineModel) -> Option<Cycle> {
             let m = p.master;
             let k = p.max_per_poll.max(1);
             let lat = mean(&p.response_latency);
-            let (mut zero, mut sat, mut bits) = (0u64, 0u64, 0u64);
+            let (mut zero, mut sat, mut bits) = (0u128, 0u128, 0u128);
             for &s in &p.order {
-                let common = t(m).enable_time.0
-                    + f.duration(f.control_line_bits(p.request_bits)).0
-                    + line.delay_ps(m, s)
-                    + t(s).receiver_delay.0
-                    + p.turnaround[s].0
-                    + lat.0
-                    + t(s).enable_time.0
-                    + line.delay_ps(s, m)
-                    + t(m).receiver_delay.0
-                    + p.turnaround[m].0
-                    + lat.0;
-                zero += common + f.duration(f.control_line_bits(p.empty_reply_bits)).0;
+                let common = w(t(m).enable_time)
+                    + w(f.duration(f.control_line_bits(p.request_bits)))
+                    + u128::from(line.delay_ps(m, s))
+                    + w(t(s).receiver_delay)
+                    + w(p.turnaround[s])
+                    + w(lat)
+                    + w(t(s).enable_time)
+                    + u128::from(line.delay_ps(s, m))
+                    + w(t(m).receiver_delay)
+                    + w(p.turnaround[m])
+                    + w(lat);
+                let empty = w(f.duration(f.control_line_bits(p.empty_reply_bits)));
+                zero += common + empty;
                 if spec.nodes[s].traffic.is_empty() {
-                    sat += common + f.duration(f.control_line_bits(p.empty_reply_bits)).0;
+                    sat += common + empty;
                 } else {
-                    sat += common + burst(f, k, payload(s)).0;
-                    bits += u64::from(k) * payload(s);
+                    sat += common + burst(f, k, payload(s));
+                    bits += u128::from(k) * u128::from(payload(s));
                 }
             }
             ("poll cycle", zero, sat, bits, k)
@@ -74,50 +80,50 @@ pub fn cycle(spec: &Spec, line: &LineModel) -> Option<Cycle> {
         AccessSpec::Token(tk) => {
             let k = tk.max_per_token.max(1);
             let lat = mean(&tk.response_latency);
-            let (mut zero, mut sat, mut bits) = (0u64, 0u64, 0u64);
+            let (mut zero, mut sat, mut bits) = (0u128, 0u128, 0u128);
             for (i, &n) in tk.order.iter().enumerate() {
                 let next = tk.order[(i + 1) % tk.order.len()];
-                let hop = tk.turnaround[n].0
-                    + lat.0
-                    + t(n).enable_time.0
-                    + f.duration(f.control_line_bits(tk.token_bits)).0
-                    + line.delay_ps(n, next)
-                    + t(next).receiver_delay.0;
+                let hop = w(tk.turnaround[n])
+                    + w(lat)
+                    + w(t(n).enable_time)
+                    + w(f.duration(f.control_line_bits(tk.token_bits)))
+                    + u128::from(line.delay_ps(n, next))
+                    + w(t(next).receiver_delay);
                 zero += hop;
                 sat += hop;
                 if !spec.nodes[n].traffic.is_empty() {
                     let mut frames = k;
                     if let Some(hold) = tk.token_hold {
                         // The first frame always goes; more while they end within the hold.
-                        let one = burst(f, 1, payload(n)).0 + f.interframe_gap.0;
-                        let fit = (hold.0 + f.interframe_gap.0).saturating_sub(t(n).enable_time.0) / one.max(1);
-                        frames = frames.min(fit.max(1) as u32);
+                        let one = burst(f, 1, payload(n)) + w(f.interframe_gap);
+                        let fit = (w(hold) + w(f.interframe_gap)).saturating_sub(w(t(n).enable_time)) / one.max(1);
+                        frames = frames.min(fit.clamp(1, u128::from(u32::MAX)) as u32);
                     }
-                    sat += burst(f, frames, payload(n)).0 + f.interframe_gap.0;
-                    bits += u64::from(frames) * payload(n);
+                    sat += burst(f, frames, payload(n)) + w(f.interframe_gap);
+                    bits += u128::from(frames) * u128::from(payload(n));
                 }
             }
             ("token rotation", zero, sat, bits, k)
         }
         AccessSpec::Tdma(td) => {
-            let cycle = td.cycle(f, t(td.timekeeper).enable_time).0;
-            let mut bits = 0u64;
+            let cycle = w(td.cycle(f, t(td.timekeeper).enable_time));
+            let mut bits = 0u128;
             for s in &td.slots {
-                let room = s.length.0.saturating_sub(td.guard.0 + t(s.owner).enable_time.0) + f.interframe_gap.0;
-                let one = burst(f, 1, payload(s.owner)).0 + f.interframe_gap.0;
+                let room = w(s.length).saturating_sub(w(td.guard) + w(t(s.owner).enable_time)) + w(f.interframe_gap);
+                let one = burst(f, 1, payload(s.owner)) + w(f.interframe_gap);
                 if payload(s.owner) > 0 {
-                    bits += room / one.max(1) * payload(s.owner);
+                    bits += room / one.max(1) * u128::from(payload(s.owner));
                 }
             }
             ("TDMA cycle", cycle, cycle, bits, 0)
         }
         _ => return None,
     };
-    let sat_s = Picos(saturated).as_secs_f64();
+    let sat_s = saturated as f64 * 1e-12;
     let rate = if sat_s > 0.0 { bits as f64 / sat_s } else { 0.0 };
     Some(Cycle {
         kind,
-        zero_load_s: Picos(zero).as_secs_f64(),
+        zero_load_s: zero as f64 * 1e-12,
         saturated_s: sat_s,
         payload_bit_s: rate,
         line_fraction: rate / f.bit_rate,

@@ -59,18 +59,23 @@ pub fn max_nodes(spec: &Spec) -> usize {
             classes.push(&n.transceiver.receiver);
         }
     }
+    // One synthetic node (no traffic, no name: only its electrical figures count), and the
+    // scenario without its nodes, cloned once.
+    let mut template = weakest.clone();
+    template.name.clear();
+    template.traffic.clear();
+    template.transceiver.load_f = heaviest;
+    template.transceiver.input_ohm = input;
+    let bare = crate::spec::Spec { nodes: Vec::new(), expect: Vec::new(), ..spec.clone() };
     let fits = |count: usize| -> bool {
         if count as f64 * crate::spec::UNIT_LOAD_OHM / input > MAX_UNIT_LOADS + 1e-9 {
             return false;
         }
-        let mut s = spec.clone();
+        let mut s = bare.clone();
         s.nodes = (0..count)
             .map(|i| {
-                let mut n = weakest.clone();
-                n.name = format!("n{i}");
+                let mut n = template.clone();
                 n.position_m = spec.line.length_m * (i as f64 + 0.5) / count as f64;
-                n.transceiver.load_f = heaviest;
-                n.transceiver.input_ohm = input;
                 n
             })
             .collect();
@@ -284,7 +289,10 @@ fn edges(spec: &Spec, line: &LineModel, options: Options, out: &mut Vec<BudgetWa
 
 fn long_line(spec: &Spec, line: &LineModel, options: Options, out: &mut Vec<BudgetWarning>) {
     // Common practice bounds TIA-485 cable by length × rate (from memory).
-    if spec.nodes.iter().any(|n| n.transceiver.family.as_deref() == Some("tia485") || n.transceiver.receiver.name == "tia485")
+    if spec
+        .nodes
+        .iter()
+        .any(|n| n.transceiver.family.as_deref() == Some("tia485") || n.transceiver.receiver.name == "tia485")
     {
         let lr = spec.line.length_m * spec.frame.bit_rate;
         if lr > TIA485_LENGTH_RATE {

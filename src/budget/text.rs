@@ -114,7 +114,8 @@ fn profile(o: &mut String, b: &Budget) {
     }
     let _ = write!(o, "  idle line along it:");
     // At most eight points: the ends and evenly chosen nodes between.
-    let picks: Vec<usize> = if p.len() <= 8 { (0..p.len()).collect() } else { (0..8).map(|k| k * (p.len() - 1) / 7).collect() };
+    let picks: Vec<usize> =
+        if p.len() <= 8 { (0..p.len()).collect() } else { (0..8).map(|k| k * (p.len() - 1) / 7).collect() };
     for (n, &k) in picks.iter().enumerate() {
         let x = &p[k];
         let _ = write!(
@@ -177,7 +178,17 @@ fn nodes(o: &mut String, b: &Budget) {
         .collect();
     table(
         o,
-        &["node", "step (min)", "step (typ)", "settled", "drive load", "weakest at a receiver", "margin", "idle", "reads"],
+        &[
+            "node",
+            "step (min)",
+            "step (typ)",
+            "settled",
+            "drive load",
+            "weakest at a receiver",
+            "margin",
+            "idle",
+            "reads",
+        ],
         &rows,
     );
 }

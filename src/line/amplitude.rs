@@ -25,10 +25,9 @@ impl Ends {
     /// the section it terminates (`near_ohm`, `far_ohm`).
     pub fn resolve(termination: &Termination, near_section_ohm: f64, far_section_ohm: f64) -> Self {
         match *termination {
-            Termination::BothEnds { near_ohm, far_ohm } => Ends {
-                near_ohm: near_ohm.unwrap_or(near_section_ohm),
-                far_ohm: far_ohm.unwrap_or(far_section_ohm),
-            },
+            Termination::BothEnds { near_ohm, far_ohm } => {
+                Ends { near_ohm: near_ohm.unwrap_or(near_section_ohm), far_ohm: far_ohm.unwrap_or(far_section_ohm) }
+            }
             Termination::FarEnd { far_ohm } => {
                 Ends { near_ohm: f64::INFINITY, far_ohm: far_ohm.unwrap_or(far_section_ohm) }
             }

@@ -85,7 +85,7 @@ impl Ladder {
         let n = self.xs.len();
         let g = |k: usize| self.shunt[k] + extra[k];
         let total: f64 = (0..n).map(g).sum();
-        if !(total > 0.0) {
+        if total.is_nan() || total <= 0.0 {
             return None;
         }
         if self.series.is_empty() || n == 1 {

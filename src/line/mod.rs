@@ -109,12 +109,18 @@ impl LineModel {
         let drive_load_ohm: Vec<f64> = spec
             .nodes
             .iter()
-            .map(|node| ends.step_load_ohm(node.position_m, spec.line.length_m, sections.at(node.position_m).line.impedance_ohm))
+            .map(|node| {
+                ends.step_load_ohm(node.position_m, spec.line.length_m, sections.at(node.position_m).line.impedance_ohm)
+            })
             .collect();
         let amplitude_v: Vec<f64> =
             spec.nodes.iter().zip(&drive_load_ohm).map(|(node, r)| node.transceiver.driver.amplitude_v(*r)).collect();
-        let amplitude_typical_v =
-            spec.nodes.iter().zip(&drive_load_ohm).map(|(node, r)| node.transceiver.driver_typical.amplitude_v(*r)).collect();
+        let amplitude_typical_v = spec
+            .nodes
+            .iter()
+            .zip(&drive_load_ohm)
+            .map(|(node, r)| node.transceiver.driver_typical.amplitude_v(*r))
+            .collect();
         let settled = settled::Settled::new(spec, &ends, &amplitude_v, &drive_load_ohm);
         let unit_loads = spec.nodes.iter().map(|n| crate::spec::UNIT_LOAD_OHM / n.transceiver.input_ohm).sum();
         LineModel {

@@ -47,6 +47,8 @@ impl Section {
 #[derive(Clone, Debug, PartialEq)]
 pub struct Sections {
     pub list: Vec<Section>,
+    /// Signal time from position 0 to the start of each section (s).
+    starts: Vec<f64>,
 }
 
 impl Sections {
@@ -71,7 +73,7 @@ impl Sections {
                 load_f: 0.0,
                 line: LoadedLine::new(z0_ohm, tpd0_s_per_m, length_m, 0.0),
             });
-            return Sections { list };
+            return Sections::with_starts(list);
         }
         let unloaded = |from: f64, to: f64| Section {
             from_m: from,
@@ -95,24 +97,34 @@ impl Sections {
             if k == 0 && from > 0.0 {
                 list.push(unloaded(0.0, from));
             }
-            list.push(Section { from_m: from, to_m: to, load_f: c, line: LoadedLine::new(z0_ohm, tpd0_s_per_m, to - from, c) });
+            list.push(Section {
+                from_m: from,
+                to_m: to,
+                load_f: c,
+                line: LoadedLine::new(z0_ohm, tpd0_s_per_m, to - from, c),
+            });
             if k + 1 == m && to < length_m {
                 list.push(unloaded(to, length_m));
             }
         }
-        Sections { list }
+        Sections::with_starts(list)
+    }
+
+    fn with_starts(list: Vec<Section>) -> Sections {
+        let mut starts = Vec::with_capacity(list.len());
+        let mut t = 0.0;
+        for s in &list {
+            starts.push(t);
+            t += s.delay_s();
+        }
+        Sections { list, starts }
     }
 
     /// Signal time from position 0 to `x` (s): the sections crossed, summed.
     pub fn time_to(&self, x: f64) -> f64 {
-        let mut t = 0.0;
-        for s in &self.list {
-            if x <= s.from_m {
-                break;
-            }
-            t += (x.min(s.to_m) - s.from_m) * s.line.delay_s_per_m;
-        }
-        t
+        let k = self.list.partition_point(|s| s.to_m <= x).min(self.list.len() - 1);
+        let s = &self.list[k];
+        self.starts[k] + (x.clamp(s.from_m, s.to_m) - s.from_m) * s.line.delay_s_per_m
     }
 
     /// The section holding position `x` (the later one at a boundary).

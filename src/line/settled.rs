@@ -47,13 +47,7 @@ impl Settled {
     /// The figures with only `drivers` driving (the others' per-driver
     /// entries stay zero): for the budget's node-count search, which needs the
     /// worst pairs only.
-    pub fn for_drivers(
-        spec: &Spec,
-        ends: &Ends,
-        step_v: &[f64],
-        drive_load_ohm: &[f64],
-        drivers: &[usize],
-    ) -> Settled {
+    pub fn for_drivers(spec: &Spec, ends: &Ends, step_v: &[f64], drive_load_ohm: &[f64], drivers: &[usize]) -> Settled {
         let n = spec.nodes.len();
         let line = &spec.line;
         let mut positions: Vec<f64> = spec.nodes.iter().map(|x| x.position_m).collect();
@@ -115,7 +109,8 @@ impl Settled {
             s.amplitude_dc_v[d] = at_own;
             s.dc_load_ohm = s.dc_load_ohm.min(own);
             let strongest = t.driver_max.amplitude_v(drive_load_ohm[d]).max(t.driver_max.amplitude_v(own));
-            s.swing_max_v[d] = if strongest.is_finite() { strongest } else { t.driver_max.amplitude_v(drive_load_ohm[d]) };
+            s.swing_max_v[d] =
+                if strongest.is_finite() { strongest } else { t.driver_max.amplitude_v(drive_load_ohm[d]) };
             for r in 0..n {
                 if r == d {
                     continue;

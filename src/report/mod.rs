@@ -192,7 +192,9 @@ impl Report {
                 .collect(),
         };
         let hazard: Vec<String> = (0..spec.nodes.len())
-            .filter(|&i| line.idle_state(spec, i) == IdleState::Undefined || line.settled.settle[i].is_some_and(|t| t.0 > 0))
+            .filter(|&i| {
+                line.idle_state(spec, i) == IdleState::Undefined || line.settled.settle[i].is_some_and(|t| t.0 > 0)
+            })
             .map(|i| spec.nodes[i].name.clone())
             .collect();
         let floating = Floating {

@@ -159,20 +159,32 @@ pub fn resolve(
                 let x = v.qty(&Spanned::new(raw.span(), s.clone()), Dimension::Voltage, &k)?;
                 (x, x)
             }
-            RawTime::Range(list) => pair(v, &Spanned::new(raw.span(), list.clone()), &k, "offset takes a voltage or two: [low, high]")?,
+            RawTime::Range(list) => {
+                pair(v, &Spanned::new(raw.span(), list.clone()), &k, "offset takes a voltage or two: [low, high]")?
+            }
         }),
         None => l.family.as_ref().and_then(|f| f.offset_v),
     };
     if let Some((lo, hi)) = offset_v {
         if lo.abs() > 100.0 || hi.abs() > 100.0 {
-            return Err(v.err(l.at.clone(), "transceiver.offset", "a driver offset beyond ±100 V is outside the supported range"));
+            return Err(v.err(
+                l.at.clone(),
+                "transceiver.offset",
+                "a driver offset beyond ±100 V is outside the supported range",
+            ));
         }
     }
     let edge_fraction = match l.get(|t| &t.edge_fraction, "edge_fraction") {
         Some((f, k)) => {
             let x = *f.get_ref();
             if !(x > 0.0 && x <= 1.0) {
-                return Err(v.err(f.span(), &k, format!("edge_fraction {x} must lie in (0, 1]: the fastest bit rate is edge_fraction / transition_time")));
+                return Err(v.err(
+                    f.span(),
+                    &k,
+                    format!(
+                        "edge_fraction {x} must lie in (0, 1]: the fastest bit rate is edge_fraction / transition_time"
+                    ),
+                ));
             }
             x
         }
@@ -301,7 +313,11 @@ fn driver(l: &Levels) -> R<(Driver, Driver, Driver)> {
             let volts = v.qty(&items[0], Dimension::Voltage, &k)?;
             let test = v.qty(&items[1], Dimension::Resistance, &k)?;
             if !(volts > 0.0 && volts <= 100.0 && test > 0.0 && test <= 1e6) {
-                return Err(v.err(list.span(), &k, "min_output needs a voltage (up to 100 V) and a positive test load"));
+                return Err(v.err(
+                    list.span(),
+                    &k,
+                    "min_output needs a voltage (up to 100 V) and a positive test load",
+                ));
             }
             let r = rout.unwrap_or(0.0);
             Ok(one(Driver::thevenin(volts * (test + r) / test, r)))

@@ -272,7 +272,9 @@ fn attenuation(v: &V, a: &Spanned<RawAttenuation>) -> R<Attenuation> {
         v.err(
             a.span(),
             &format!("line.attenuation.{key}"),
-            format!("an attenuation needs `{key}`: write it as {{ db = 2.2, per = \"100 m\", at = \"1 MHz\" }} ({example})"),
+            format!(
+                "an attenuation needs `{key}`: write it as {{ db = 2.2, per = \"100 m\", at = \"1 MHz\" }} ({example})"
+            ),
         )
     };
     let db = r.db.as_ref().ok_or_else(|| need("db", "the loss in dB"))?;

@@ -187,15 +187,25 @@ pub fn section_times(tpd0: f64, z0: f64, length_m: f64, nodes: &[(f64, f64)]) ->
     let m = nodes.len();
     let bounds: Vec<(f64, f64)> = (0..m)
         .map(|k| {
-            let from = if k == 0 { nodes[0].0 - (nodes[1].0 - nodes[0].0) / 2.0 } else { (nodes[k - 1].0 + nodes[k].0) / 2.0 };
-            let to = if k + 1 == m { nodes[m - 1].0 + (nodes[m - 1].0 - nodes[m - 2].0) / 2.0 } else { (nodes[k].0 + nodes[k + 1].0) / 2.0 };
+            let from =
+                if k == 0 { nodes[0].0 - (nodes[1].0 - nodes[0].0) / 2.0 } else { (nodes[k - 1].0 + nodes[k].0) / 2.0 };
+            let to = if k + 1 == m {
+                nodes[m - 1].0 + (nodes[m - 1].0 - nodes[m - 2].0) / 2.0
+            } else {
+                (nodes[k].0 + nodes[k + 1].0) / 2.0
+            };
             (from.max(0.0), to.min(length_m))
         })
         .collect();
     // Each node's load per metre of its pitch (the part of a pitch past an end is left out).
     let pitch = |k: usize| {
-        let lo = if k == 0 { nodes[0].0 - (nodes[1].0 - nodes[0].0) / 2.0 } else { (nodes[k - 1].0 + nodes[k].0) / 2.0 };
-        let hi = if k + 1 == m { nodes[m - 1].0 + (nodes[m - 1].0 - nodes[m - 2].0) / 2.0 } else { (nodes[k].0 + nodes[k + 1].0) / 2.0 };
+        let lo =
+            if k == 0 { nodes[0].0 - (nodes[1].0 - nodes[0].0) / 2.0 } else { (nodes[k - 1].0 + nodes[k].0) / 2.0 };
+        let hi = if k + 1 == m {
+            nodes[m - 1].0 + (nodes[m - 1].0 - nodes[m - 2].0) / 2.0
+        } else {
+            (nodes[k].0 + nodes[k + 1].0) / 2.0
+        };
         hi - lo
     };
     let tpd = |k: usize| tpd0 * (1.0 + nodes[k].1 / (c0 * pitch(k))).sqrt();

@@ -55,7 +55,8 @@ fn a_multipoint_lvds_preset_drives_at_the_standards_minimum() {
     // matched at both ends sees 50 Ω: its step is exactly the standard's
     // minimum, and 11.3 mA (565 mV, common practice) is only its typical value.
     let line = "length = \"1 m\"\nimpedance = \"100 ohm\"\ndelay = \"5 ns/m\"";
-    let b = budget(&bus(line, "family = \"mlvds\"\nload = \"0 pF\"\nreceiver = \"type2\"", "100 Mbit/s", &[0.0, 0.5, 1.0]));
+    let b =
+        budget(&bus(line, "family = \"mlvds\"\nload = \"0 pF\"\nreceiver = \"type2\"", "100 Mbit/s", &[0.0, 0.5, 1.0]));
     let n = &b["nodes"]["n01"];
     assert!(close(n["drive_load_ohm"].as_f64().unwrap(), 50.0, 1e-12), "{n}");
     assert!(close(n["amplitude_step_v"].as_f64().unwrap(), 0.480, 1e-12), "{n}");
@@ -73,7 +74,11 @@ fn thirty_two_unit_loads_are_750_ohm_across_the_pair() {
     let positions: Vec<f64> = (0..32).map(|i| 100.0 * i as f64 / 31.0).collect();
     let b = budget(&bus(line, "family = \"tia485\"\nload = \"50 pF\"", "100 kbit/s", &positions));
     assert!(close(b["limits"]["unit_loads"].as_f64().unwrap(), 32.0, 1e-12));
-    assert!(close(b["line"]["dc_load_ohm"].as_f64().unwrap(), 1.0 / (2.0 / 120.0 + 1.0 / 750.0), 1e-9), "{}", b["line"]);
+    assert!(
+        close(b["line"]["dc_load_ohm"].as_f64().unwrap(), 1.0 / (2.0 / 120.0 + 1.0 / 750.0), 1e-9),
+        "{}",
+        b["line"]
+    );
     assert!(close(b["line"]["dc_load_ohm"].as_f64().unwrap(), 55.556, 1e-4));
     // 33 of them exceed the 32 the standard allows.
     let positions: Vec<f64> = (0..33).map(|i| 100.0 * i as f64 / 32.0).collect();
@@ -120,10 +125,11 @@ fn a_long_biased_cable_is_failsafe_near_the_bias_only() {
     g[n - 1][n - 1] += 1.0 / 120.0;
     g[0][n] = 5.0 / 1120.0;
     for c in 0..n {
-        for k in c + 1..n {
-            let f = g[k][c] / g[c][c];
-            for j in c..=n {
-                g[k][j] -= f * g[c][j];
+        let pivot = g[c].clone();
+        for row in g.iter_mut().skip(c + 1) {
+            let f = row[c] / pivot[c];
+            for (x, p) in row.iter_mut().zip(&pivot).skip(c) {
+                *x -= f * p;
             }
         }
     }
@@ -146,8 +152,12 @@ fn a_long_biased_cable_is_failsafe_near_the_bias_only() {
     assert_eq!(far["code"], "idle-undefined");
     assert!(far["message"].as_str().unwrap().contains("bias too weak at n31: 118.9 mV against the 200 mV"), "{far}");
     // The run agrees: the far receivers float in every gap; the near ones only while the line settles.
-    let r = run_toml(&bus(line, "family = \"tia485\"\nload = \"50 pF\"", "9600 bit/s", &xs).replace("duration = \"2 ms\"", "duration = \"100 ms\""));
-    let hazards: Vec<&str> = r["floating"]["hazard_receivers"].as_array().unwrap().iter().map(|x| x.as_str().unwrap()).collect();
+    let r = run_toml(
+        &bus(line, "family = \"tia485\"\nload = \"50 pF\"", "9600 bit/s", &xs)
+            .replace("duration = \"2 ms\"", "duration = \"100 ms\""),
+    );
+    let hazards: Vec<&str> =
+        r["floating"]["hazard_receivers"].as_array().unwrap().iter().map(|x| x.as_str().unwrap()).collect();
     assert!(hazards.contains(&"n31") && hazards.contains(&"n00"), "{hazards:?}");
     assert!(r["floating"]["windows"].as_u64().unwrap() > 0);
 }
@@ -162,7 +172,12 @@ fn a_crowded_section_is_loaded_locally() {
     let pitch = 0.75 * 0.0254;
     let positions: Vec<f64> = (0..20).map(|i| pitch / 2.0 + pitch * i as f64).collect();
     let line = "length = \"1 m\"\nimpedance = \"100 ohm\"\ndelay = \"6 ns/m\"";
-    let b = budget(&bus(line, "drive_current = \"11.3 mA\"\nload = \"4.32 pF\"\nreceiver = \"type2\"", "50 Mbit/s", &positions));
+    let b = budget(&bus(
+        line,
+        "drive_current = \"11.3 mA\"\nload = \"4.32 pF\"\nreceiver = \"type2\"",
+        "50 Mbit/s",
+        &positions,
+    ));
     assert!((b["line"]["loaded_impedance_ohm"].as_f64().unwrap() - 64.0).abs() < 0.05, "{}", b["line"]);
     let local = 100.0 / (1.0f64 + 4.32 / (60.0 * pitch)).sqrt();
     assert!((local - 45.7).abs() < 0.05);
@@ -200,7 +215,10 @@ fn the_swing_pushes_a_pin_out_of_the_common_mode_range_the_offset_alone_passes()
     // V_AB/2 + ground difference).
     let line = "length = \"1 m\"\nimpedance = \"100 ohm\"\ndelay = \"5 ns/m\"";
     let mut text = bus(line, "family = \"lvds\"\nload = \"0 pF\"", "100 Mbit/s", &[0.0, 0.5, 1.0]);
-    text = text.replace("name = \"n01\"\nposition = \"0.5 m\"\n", "name = \"n01\"\nposition = \"0.5 m\"\n[node.transceiver]\nground_offset = \"1 V\"\n");
+    text = text.replace(
+        "name = \"n01\"\nposition = \"0.5 m\"\n",
+        "name = \"n01\"\nposition = \"0.5 m\"\n[node.transceiver]\nground_offset = \"1 V\"\n",
+    );
     let b = budget(&text);
     let cm: Vec<&Value> = b["warnings"].as_array().unwrap().iter().filter(|w| w["code"] == "common-mode").collect();
     assert!(!cm.is_empty(), "{}", b["warnings"]);
@@ -217,7 +235,12 @@ fn cable_loss_scales_with_the_root_of_frequency() {
     // so the loss is 2·sqrt(2) dB per 100 m (skin effect), 28.28 dB over 1 km:
     // the far receiver gets 10^(−28.28/20) = 3.85 % of the step.
     let line = "length = \"1000 m\"\nimpedance = \"120 ohm\"\nvelocity_factor = 0.66\nattenuation = { db = 2.0, per = \"100 m\", at = \"1 MHz\" }";
-    let b = budget(&bus(line, "drive_current = \"60 mA\"\nload = \"0 pF\"\nreceiver = \"tia485\"", "4 Mbit/s", &[0.0, 1000.0]));
+    let b = budget(&bus(
+        line,
+        "drive_current = \"60 mA\"\nload = \"0 pF\"\nreceiver = \"tia485\"",
+        "4 Mbit/s",
+        &[0.0, 1000.0],
+    ));
     let step = b["nodes"]["n00"]["amplitude_step_v"].as_f64().unwrap();
     let got = b["nodes"]["n00"]["weakest_received_v"].as_f64().unwrap();
     let expected = step * 10f64.powf(-2.0 * 2f64.sqrt() * 10.0 / 20.0);
@@ -231,15 +254,35 @@ fn cable_loss_scales_with_the_root_of_frequency() {
 fn new_keys_refuse_bad_input_with_place_and_key() {
     let tx = "drive_current = \"11.3 mA\"\nload = \"5 pF\"\nreceiver = \"type2\"";
     let base = "length = \"10 m\"\nimpedance = \"100 ohm\"\ndelay = \"5 ns/m\"";
-    refused(&bus(&format!("{base}\nconductor_resistance = \"-0.1 ohm/m\""), tx, "1 Mbit/s", &[0.0, 10.0]), &["line.conductor_resistance", "negative"]);
-    refused(&bus(&format!("{base}\nconductor_resistance = \"0.1 ohm\""), tx, "1 Mbit/s", &[0.0, 10.0]), &["line.conductor_resistance", "resistance per length"]);
+    refused(
+        &bus(&format!("{base}\nconductor_resistance = \"-0.1 ohm/m\""), tx, "1 Mbit/s", &[0.0, 10.0]),
+        &["line.conductor_resistance", "negative"],
+    );
+    refused(
+        &bus(&format!("{base}\nconductor_resistance = \"0.1 ohm\""), tx, "1 Mbit/s", &[0.0, 10.0]),
+        &["line.conductor_resistance", "resistance per length"],
+    );
     refused(
         &bus(&format!("{base}\n[line.bias]\nsupply = \"5 V\"\npull_up = \"560 ohm\"\npull_down = \"560 ohm\"\nposition = \"12 m\""), tx, "1 Mbit/s", &[0.0, 10.0]),
         &["line.bias.position", "outside the line"],
     );
-    refused(&bus(&format!("{base}\nattenuation = {{ db = 2.0, per = \"100 m\" }}"), tx, "1 Mbit/s", &[0.0, 10.0]), &["line.attenuation.at", "frequency"]);
-    refused(&bus(&format!("{base}\nattenuation = {{ db = -2.0, per = \"100 m\", at = \"1 MHz\" }}"), tx, "1 Mbit/s", &[0.0, 10.0]), &["line.attenuation.db"]);
-    refused(&bus(base, &format!("{tx}\nedge_fraction = 1.5"), "1 Mbit/s", &[0.0, 10.0]), &["transceiver.edge_fraction"]);
+    refused(
+        &bus(&format!("{base}\nattenuation = {{ db = 2.0, per = \"100 m\" }}"), tx, "1 Mbit/s", &[0.0, 10.0]),
+        &["line.attenuation.at", "frequency"],
+    );
+    refused(
+        &bus(
+            &format!("{base}\nattenuation = {{ db = -2.0, per = \"100 m\", at = \"1 MHz\" }}"),
+            tx,
+            "1 Mbit/s",
+            &[0.0, 10.0],
+        ),
+        &["line.attenuation.db"],
+    );
+    refused(
+        &bus(base, &format!("{tx}\nedge_fraction = 1.5"), "1 Mbit/s", &[0.0, 10.0]),
+        &["transceiver.edge_fraction"],
+    );
 }
 
 #[test]
@@ -263,8 +306,12 @@ fn run_and_budget_agree_on_every_demo() {
             .map(|(k, _)| k.clone())
             .collect();
         from_budget.sort();
-        let mut from_run: Vec<String> =
-            run["floating"]["hazard_receivers"].as_array().unwrap().iter().map(|x| x.as_str().unwrap().to_owned()).collect();
+        let mut from_run: Vec<String> = run["floating"]["hazard_receivers"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|x| x.as_str().unwrap().to_owned())
+            .collect();
         from_run.sort();
         assert_eq!(from_run, from_budget, "{p}");
     }

@@ -40,7 +40,10 @@ fn check_passes_and_fails_on_a_tightened_bound() {
     let run: serde_json::Value =
         serde_json::from_slice(&halfwire(&["run", "scenarios/fruit-grader.toml", "--format", "json"]).stdout).unwrap();
     let p99 = halfwire::check::show("latency_s.all.p99", run["latency_s"]["all"]["p99"].as_f64().unwrap());
-    assert!(text.contains(&format!("FAIL  latency_s.all.p99 = {p99}  (required <= 64 µs)  grading deadline")), "{text}");
+    assert!(
+        text.contains(&format!("FAIL  latency_s.all.p99 = {p99}  (required <= 64 µs)  grading deadline")),
+        "{text}"
+    );
     assert!(text.contains("1 failed"));
 }
 
