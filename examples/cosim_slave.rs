@@ -9,7 +9,11 @@
 //! `max_per_poll` queued messages or else an empty reply.
 //!
 //!     cargo run --release --example cosim_slave -- 127.0.0.1:7400 slave02
-//!         [--turnaround-ps N] [--latency-ps N]
+//!         [--turnaround-ps N] [--latency-ps N] [--release-after-stop-ps ±N]
+//!
+//! `--release-after-stop-ps` releases the driver enable that long after the
+//! last stop bit ends (negative: before it, as firmware that drops the enable
+//! at "transmit register empty" does).
 //!
 //! Replace `decide` with your firmware's logic (or call into it).
 
@@ -23,6 +27,7 @@ struct Rules {
     latency_ps: u64,
     max_per_poll: u64,
     empty_reply_bits: u64,
+    release_after_stop_ps: Option<i64>,
 }
 
 /// What to do about one batch of events: the messages to send before `wait`.
@@ -43,7 +48,11 @@ fn decide(rules: &Rules, batch: &Value) -> Vec<Value> {
         } else {
             (0..take).map(|_| json!({ "kind": "data" })).collect()
         };
-        out.push(json!({ "type": "transmit", "at_ps": at, "frames": frames }));
+        let mut tx = json!({ "type": "transmit", "at_ps": at, "frames": frames });
+        if let Some(r) = rules.release_after_stop_ps {
+            tx["release_after_stop_ps"] = json!(r);
+        }
+        out.push(tx);
     }
     out
 }
@@ -59,7 +68,9 @@ fn send(w: &mut impl Write, v: &Value) -> std::io::Result<()> {
 fn main() -> Result<(), Box<dyn std::error::Error>> {
     let args: Vec<String> = std::env::args().skip(1).collect();
     let (Some(addr), Some(node)) = (args.first(), args.get(1)) else {
-        eprintln!("usage: cosim_slave ADDR:PORT NODE [--turnaround-ps N] [--latency-ps N]");
+        eprintln!(
+            "usage: cosim_slave ADDR:PORT NODE [--turnaround-ps N] [--latency-ps N] [--release-after-stop-ps ±N]"
+        );
         std::process::exit(2);
     };
     let flag = |name: &str| args.iter().position(|a| a == name).and_then(|i| args.get(i + 1)).map(|v| v.parse::<u64>());
@@ -77,6 +88,12 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         latency_ps: flag("--latency-ps").transpose()?.unwrap_or(welcome["response_latency_ps"].as_u64().unwrap_or(0)),
         max_per_poll: welcome["max_per_poll"].as_u64().unwrap_or(1),
         empty_reply_bits: welcome["empty_reply_bits"].as_u64().unwrap_or(16),
+        release_after_stop_ps: args
+            .iter()
+            .position(|a| a == "--release-after-stop-ps")
+            .and_then(|i| args.get(i + 1))
+            .map(|v| v.parse::<i64>())
+            .transpose()?,
     };
     for line in lines {
         let msg: Value = serde_json::from_str(&line?)?;

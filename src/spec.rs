@@ -183,6 +183,18 @@ pub struct Transceiver {
     pub offset_v: Option<(f64, f64)>,
     /// The fastest bit rate is `edge_fraction / transition_time`.
     pub edge_fraction: f64,
+    /// From the enable's assertion to the first bit's edge (firmware's DE
+    /// lead; `None`: the enable time, so the first bit starts as the output
+    /// turns valid; shorter cuts into the first bit).
+    pub enable_lead: Option<Picos>,
+    /// From the end of the last bit to the enable's release (ps, signed):
+    /// positive is firmware hold time, negative cuts into the last bit.
+    pub release_after_stop: i64,
+    /// When this node's receiver counts a frame as received.
+    pub react_at: ReactAt,
+    /// An auto-direction transceiver: the driver is on for dominant (0) bits
+    /// only, and the bias network makes the recessive ones.
+    pub auto_direction: bool,
     /// From driver enable asserted to output valid (the value this run uses).
     pub enable_time: Picos,
     /// From enable released to output high-impedance (the value this run uses).
@@ -208,6 +220,16 @@ pub struct Transceiver {
     pub common_mode_v: Option<(f64, f64)>,
     /// The standard family the values came from, if a preset was used.
     pub family: Option<String>,
+}
+
+/// When a receiving node reacts to a frame.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum ReactAt {
+    /// At the end of its last bit, as its receiver shows it.
+    FrameEnd,
+    /// At the middle of its (first) stop bit, as a UART's receive-complete
+    /// interrupt fires ([`FrameFormat::stop_sample_offset`] earlier).
+    StopSample,
 }
 
 /// A differential driver.
@@ -325,6 +347,60 @@ impl NodeSpec {
     }
 }
 
+/// UART character parity.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Parity {
+    None,
+    Even,
+    Odd,
+    /// Always 1.
+    Mark,
+    /// Always 0.
+    Space,
+}
+
+/// A UART character: a start bit, `data` data bits (5–9, least significant
+/// first), a parity bit unless none, and 1, 1.5 or 2 stop bits.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Uart {
+    pub data: u8,
+    pub parity: Parity,
+    /// Stop bits in half bits: 2, 3 or 4.
+    pub stop_halves: u8,
+}
+
+impl Uart {
+    /// 8N1, the classic character.
+    pub const N81: Uart = Uart { data: 8, parity: Parity::None, stop_halves: 2 };
+
+    /// Line time of one character, in half bits: start + data + parity + stop.
+    pub fn char_halves(&self) -> u64 {
+        2 * (1 + u64::from(self.data) + u64::from(self.parity != Parity::None)) + u64::from(self.stop_halves)
+    }
+
+    /// Characters needed for `data_bits` (whole characters).
+    pub fn chars(&self, data_bits: u64) -> u64 {
+        data_bits.div_ceil(u64::from(self.data))
+    }
+
+    /// The name as written: `uart-8e1`, `uart-8n1.5`.
+    pub fn name(&self) -> String {
+        let p = match self.parity {
+            Parity::None => 'n',
+            Parity::Even => 'e',
+            Parity::Odd => 'o',
+            Parity::Mark => 'm',
+            Parity::Space => 's',
+        };
+        let stop = match self.stop_halves {
+            2 => "1",
+            3 => "1.5",
+            _ => "2",
+        };
+        format!("uart-{}{p}{stop}", self.data)
+    }
+}
+
 /// Line coding: how many line symbols carry a given number of data bits.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum Encoding {
@@ -332,28 +408,60 @@ pub enum Encoding {
     Nrz,
     /// Ten line symbols per eight data bits (rounded up to whole code groups).
     B8b10b,
-    /// Start bit, eight data bits, stop bit: ten symbols per data byte, whole bytes.
-    Uart8n1,
+    /// UART characters (whole characters).
+    Uart(Uart),
     /// Two line symbols per bit.
     Manchester,
 }
 
 impl Encoding {
-    pub fn name(self) -> &'static str {
+    pub fn name(self) -> String {
         match self {
-            Encoding::Nrz => "nrz",
-            Encoding::B8b10b => "8b10b",
-            Encoding::Uart8n1 => "uart-8n1",
-            Encoding::Manchester => "manchester",
+            Encoding::Nrz => "nrz".into(),
+            Encoding::B8b10b => "8b10b".into(),
+            Encoding::Uart(u) => u.name(),
+            Encoding::Manchester => "manchester".into(),
         }
     }
 
-    /// Line symbols needed for `data_bits`.
-    pub fn line_bits(self, data_bits: u64) -> u64 {
+    /// Line time of `data_bits`, in half bits (a UART's 1.5 stop bits are three).
+    pub fn line_halves(self, data_bits: u64) -> u64 {
         match self {
-            Encoding::Nrz => data_bits,
-            Encoding::B8b10b | Encoding::Uart8n1 => data_bits.div_ceil(8) * 10,
-            Encoding::Manchester => data_bits * 2,
+            Encoding::Nrz => 2 * data_bits,
+            Encoding::B8b10b => 2 * data_bits.div_ceil(8) * 10,
+            Encoding::Uart(u) => u.chars(data_bits) * u.char_halves(),
+            Encoding::Manchester => 4 * data_bits,
+        }
+    }
+
+    /// The UART character format, if this is one.
+    pub fn uart(self) -> Option<Uart> {
+        match self {
+            Encoding::Uart(u) => Some(u),
+            _ => None,
+        }
+    }
+}
+
+/// Idle time between the characters of one UART frame.
+#[derive(Clone, Debug, PartialEq)]
+pub enum CharGap {
+    None,
+    Fixed(Picos),
+    /// Drawn per character from the sender's own stream, each draw capped at `cap`.
+    Random {
+        latency: Latency,
+        cap: Picos,
+    },
+}
+
+impl CharGap {
+    /// The longest one gap can be.
+    pub fn max(&self) -> Picos {
+        match self {
+            CharGap::None => Picos::ZERO,
+            CharGap::Fixed(t) => *t,
+            CharGap::Random { cap, .. } => *cap,
         }
     }
 }
@@ -368,12 +476,23 @@ pub struct FrameFormat {
     pub encoding: Encoding,
     /// Idle time between back-to-back frames from one driver.
     pub interframe_gap: Picos,
+    /// UART only: idle time between the characters of a frame.
+    pub char_gap: CharGap,
+    /// UART only: a gap inside a frame longer than this makes a receiver discard the frame.
+    pub char_timeout: Option<Picos>,
+    /// UART only: a frame must start at least this long after the previous one ended (at each receiver).
+    pub silence: Option<Picos>,
 }
 
 impl FrameFormat {
-    /// Time on the wire of `line_bits` symbols, rounded to the nearest picosecond.
+    /// Time on the wire of `halves` half bits, rounded to the nearest picosecond.
+    pub fn time_of_halves(&self, halves: u64) -> Picos {
+        Picos((halves as f64 * 1e12 / (2.0 * self.bit_rate)).round() as u64)
+    }
+
+    /// Time on the wire of `line_bits` whole symbols, rounded to the nearest picosecond.
     pub fn duration(&self, line_bits: u64) -> Picos {
-        Picos((line_bits as f64 * 1e12 / self.bit_rate).round() as u64)
+        self.time_of_halves(2 * line_bits)
     }
 
     /// One line-bit time (unit interval), rounded to the nearest picosecond.
@@ -381,14 +500,48 @@ impl FrameFormat {
         self.duration(1)
     }
 
-    /// Line symbols of a data frame carrying `payload_bits`.
-    pub fn data_line_bits(&self, payload_bits: u64) -> u64 {
-        self.encoding.line_bits(self.overhead_bits + payload_bits)
+    /// A frame of `data_bits`, its characters back to back (no gaps between them).
+    pub fn base_time(&self, data_bits: u64) -> Picos {
+        self.time_of_halves(self.encoding.line_halves(data_bits))
     }
 
-    /// Line symbols of a control frame of `data_bits` total data bits.
-    pub fn control_line_bits(&self, data_bits: u64) -> u64 {
-        self.encoding.line_bits(data_bits)
+    /// The characters of a UART frame of `data_bits` (0 for other encodings).
+    pub fn chars(&self, data_bits: u64) -> u64 {
+        self.encoding.uart().map_or(0, |u| u.chars(data_bits))
+    }
+
+    /// The longest a frame of `data_bits` can last: its characters and the
+    /// longest gap between each two (exact when the gap is fixed).
+    pub fn wire_max(&self, data_bits: u64) -> Picos {
+        let gaps = self.chars(data_bits).saturating_sub(1);
+        self.base_time(data_bits) + Picos(gaps * self.char_gap.max().0)
+    }
+
+    /// The longest data frame carrying `payload_bits`.
+    pub fn data_time(&self, payload_bits: u64) -> Picos {
+        self.wire_max(self.overhead_bits + payload_bits)
+    }
+
+    /// The longest control frame of `data_bits` total data bits.
+    pub fn control_time(&self, data_bits: u64) -> Picos {
+        self.wire_max(data_bits)
+    }
+
+    /// The same in seconds without rounding, for bounds: `None` past any range.
+    pub fn wire_max_s(&self, data_bits: u64) -> f64 {
+        let halves = self.encoding.line_halves(data_bits) as f64;
+        let gaps = self.chars(data_bits).saturating_sub(1) as f64;
+        halves / (2.0 * self.bit_rate) + gaps * self.char_gap.max().as_secs_f64()
+    }
+
+    /// Where a UART's receive-complete fires: the middle of the (first) stop
+    /// bit, this long before the frame's end (half a bit before the end of one
+    /// stop bit); half a bit before the end for other encodings.
+    pub fn stop_sample_offset(&self) -> Picos {
+        match self.encoding.uart() {
+            Some(u) => self.time_of_halves(u64::from(u.stop_halves) - 1),
+            None => self.time_of_halves(1),
+        }
     }
 }
 
@@ -594,7 +747,7 @@ pub struct TdmaSpec {
 impl TdmaSpec {
     /// The beacon slot: guard, enable lead-in and beacon bits, in the timekeeper's time.
     pub fn beacon_slot(&self, frame: &FrameFormat, timekeeper_enable: Picos) -> Picos {
-        self.guard + timekeeper_enable + frame.duration(frame.control_line_bits(self.beacon_bits))
+        self.guard + timekeeper_enable + frame.control_time(self.beacon_bits)
     }
 
     /// The whole cycle in the timekeeper's time.

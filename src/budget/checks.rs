@@ -44,6 +44,7 @@ fn drivers(spec: &Spec) -> usize {
 pub fn warnings(spec: &Spec, line: &LineModel, handovers: &[Handover], options: Options) -> Vec<BudgetWarning> {
     let mut out = Vec::new();
     super::electrical::warnings(spec, line, options, &mut out);
+    super::firmware::warnings(spec, line, &mut out);
     // A multidrop line has one driver, at the unterminated near end.
     if matches!(spec.line.termination, Termination::FarEnd { .. }) {
         let drivers = drivers(spec);
@@ -90,7 +91,21 @@ pub fn warnings(spec: &Spec, line: &LineModel, handovers: &[Handover], options: 
     }
     // Hand-overs the scenario sets too short.
     for h in handovers {
-        if !h.ok {
+        if let Some(si) = h.silence_min_s.filter(|&si| h.configured_s < si) {
+            warn(
+                &mut out,
+                "silence-too-short",
+                Some(&h.to),
+                format!(
+                    "{} → {}: a wait of {} starts the reply inside the frame.silence of the frame before it (needs at least {}): receivers merge the two frames and lose them",
+                    h.from,
+                    h.to,
+                    crate::units::format_seconds(h.configured_s),
+                    crate::units::format_seconds(si)
+                ),
+            );
+        }
+        if h.configured_s < h.min_turnaround_s {
             warn(
                 &mut out,
                 "handover-too-short",

@@ -6,7 +6,7 @@
 use serde::Serialize;
 
 use crate::line::LineModel;
-use crate::spec::{AccessSpec, FrameFormat, Latency, NodeId, Spec};
+use crate::spec::{AccessSpec, CharGap, FrameFormat, Latency, NodeId, Spec};
 use crate::units::Picos;
 
 #[derive(Clone, Debug, Serialize)]
@@ -32,10 +32,20 @@ fn mean(l: &Latency) -> Picos {
     }
 }
 
+/// A frame of `data_bits` on the wire, with the mean gap between its characters (ps).
+fn frame_time(frame: &FrameFormat, data_bits: u64) -> u128 {
+    let gap = match &frame.char_gap {
+        CharGap::None => 0,
+        CharGap::Fixed(t) => t.0,
+        CharGap::Random { latency, .. } => mean(latency).0,
+    };
+    w(frame.base_time(data_bits)) + u128::from(frame.chars(data_bits).saturating_sub(1)) * u128::from(gap)
+}
+
 /// Time on the wire of `k` back-to-back data frames of `payload` bits (ps;
 /// every sum here is 128-bit: a cycle adds many bounded terms).
 fn burst(frame: &FrameFormat, k: u32, payload: u64) -> u128 {
-    let one = u128::from(frame.duration(frame.data_line_bits(payload)).0);
+    let one = frame_time(frame, frame.overhead_bits + payload);
     one * u128::from(k) + u128::from(frame.interframe_gap.0) * u128::from(k.saturating_sub(1))
 }
 
@@ -47,6 +57,12 @@ fn w(t: Picos) -> u128 {
 pub fn cycle(spec: &Spec, line: &LineModel) -> Option<Cycle> {
     let f = &spec.frame;
     let t = |n: NodeId| &spec.nodes[n].transceiver;
+    // Enable to first bit, and how much earlier than the frame's end a node reacts.
+    let lead = |n: NodeId| t(n).enable_lead.unwrap_or(t(n).enable_time);
+    let react = |n: NodeId| match t(n).react_at {
+        crate::spec::ReactAt::FrameEnd => 0,
+        crate::spec::ReactAt::StopSample => w(f.stop_sample_offset()),
+    };
     let payload = |n: NodeId| spec.nodes[n].longest_payload_bits();
     let (kind, zero, saturated, bits, k) = match &spec.access {
         AccessSpec::Polling(p) => {
@@ -55,18 +71,20 @@ pub fn cycle(spec: &Spec, line: &LineModel) -> Option<Cycle> {
             let lat = mean(&p.response_latency);
             let (mut zero, mut sat, mut bits) = (0u128, 0u128, 0u128);
             for &s in &p.order {
-                let common = w(t(m).enable_time)
-                    + w(f.duration(f.control_line_bits(p.request_bits)))
+                let common = w(lead(m))
+                    + frame_time(f, p.request_bits)
                     + u128::from(line.delay_ps(m, s))
                     + w(t(s).receiver_delay)
                     + w(p.turnaround[s])
                     + w(lat)
-                    + w(t(s).enable_time)
+                    + w(lead(s))
                     + u128::from(line.delay_ps(s, m))
                     + w(t(m).receiver_delay)
                     + w(p.turnaround[m])
-                    + w(lat);
-                let empty = w(f.duration(f.control_line_bits(p.empty_reply_bits)));
+                    + w(lat)
+                    - react(s)
+                    - react(m);
+                let empty = frame_time(f, p.empty_reply_bits);
                 zero += common + empty;
                 if spec.nodes[s].traffic.is_empty() {
                     sat += common + empty;
@@ -85,10 +103,11 @@ pub fn cycle(spec: &Spec, line: &LineModel) -> Option<Cycle> {
                 let next = tk.order[(i + 1) % tk.order.len()];
                 let hop = w(tk.turnaround[n])
                     + w(lat)
-                    + w(t(n).enable_time)
-                    + w(f.duration(f.control_line_bits(tk.token_bits)))
+                    + w(lead(n))
+                    + frame_time(f, tk.token_bits)
                     + u128::from(line.delay_ps(n, next))
-                    + w(t(next).receiver_delay);
+                    + w(t(next).receiver_delay)
+                    - react(next);
                 zero += hop;
                 sat += hop;
                 if !spec.nodes[n].traffic.is_empty() {
@@ -96,7 +115,7 @@ pub fn cycle(spec: &Spec, line: &LineModel) -> Option<Cycle> {
                     if let Some(hold) = tk.token_hold {
                         // The first frame always goes; more while they end within the hold.
                         let one = burst(f, 1, payload(n)) + w(f.interframe_gap);
-                        let fit = (w(hold) + w(f.interframe_gap)).saturating_sub(w(t(n).enable_time)) / one.max(1);
+                        let fit = (w(hold) + w(f.interframe_gap)).saturating_sub(w(lead(n))) / one.max(1);
                         frames = frames.min(fit.clamp(1, u128::from(u32::MAX)) as u32);
                     }
                     sat += burst(f, frames, payload(n)) + w(f.interframe_gap);

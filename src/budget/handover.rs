@@ -4,14 +4,33 @@
 //! A responder R enabling after a releasing driver P overlaps it worst at
 //! R's own position, where P's disable tail arrives last (see the bus's
 //! contention geometry). R's receiver shows P's last bit d(P,R) + r_R after
-//! P releases and R enables T_R later, while P's tail reaches R d(P,R) +
-//! disable_P after the release: the wire delay cancels, and
-//! T_R ≥ disable_P − r_R is necessary and sufficient.
+//! it leaves P, R reacts that instant (or `o_R` earlier, at the stop bit's
+//! sample point) and enables T_R later, while P's output turns off
+//! h_P + disable_P after its last bit (h_P: the firmware's hold,
+//! `release_after_stop`) and that reaches R d(P,R) later. The wire delay
+//! cancels, and
+//!
+//! ```text
+//! T_R ≥ h_P + disable_P + o_R − r_R
+//! ```
+//!
+//! is necessary and sufficient (an auto-direction driver lets go at the end
+//! of its last dominant bit, before the stop bits: h_P = −stop bits). The
+//! slack is T_R minus the right-hand side unclipped: the gap the hand-over
+//! leaves on the line at its tightest point, which a run measures too.
+//!
+//! With `frame.silence`, R's first bit (`enable_lead` after its enable) must
+//! reach every receiver at least the silence after P's last bit did; the
+//! tightest receiver is P itself, so
+//!
+//! ```text
+//! T_R ≥ silence + o_R − r_R − lead_R.
+//! ```
 
 use serde::Serialize;
 
 use crate::line::LineModel;
-use crate::spec::{AccessSpec, AlohaSpec, CsmaSpec, Drift, NodeId, Spec, WorstTimes};
+use crate::spec::{AccessSpec, AlohaSpec, CsmaSpec, Drift, Latency, NodeId, ReactAt, Spec, WorstTimes};
 use crate::units::Picos;
 
 /// One hand-over and its minimum.
@@ -25,8 +44,13 @@ pub struct Handover {
     /// What the scenario sets, and whether it is enough.
     pub configured_s: f64,
     pub ok: bool,
-    /// How much room the setting leaves: set − minimum (negative when too short).
+    /// How much room the setting leaves on the line: set − minimum, with
+    /// the minimum before clipping at zero (negative when too short).
     pub slack_s: f64,
+    /// With `frame.silence`: the smallest turnaround that keeps the silence
+    /// between P's last bit and R's first at every receiver.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub silence_min_s: Option<f64>,
     /// With a floating-window limit: the longest turnaround that keeps every
     /// window at an undefined-idle receiver within it (`None`: no such
     /// receiver, or no limit asked for).
@@ -34,26 +58,62 @@ pub struct Handover {
     pub max_turnaround_for_float_s: Option<f64>,
     #[serde(skip)]
     pub min: Picos,
+    /// The minimum before clipping at zero (ps).
+    #[serde(skip)]
+    pub raw_min: i128,
+    /// What the scenario sets (ps).
+    #[serde(skip)]
+    pub set: Picos,
     #[serde(skip)]
     pub responder: Option<NodeId>,
+}
+
+/// The shortest wait a responder's firmware can leave: its turnaround plus
+/// the shortest response latency the scenario allows.
+pub fn wait(turnaround: Picos, latency: &Latency) -> Picos {
+    turnaround
+        + match *latency {
+            Latency::Fixed(t) => t,
+            Latency::Uniform { min, .. } => min,
+            // Normal draws are truncated at zero; exponential ones reach it.
+            Latency::Normal { .. } | Latency::Exponential { .. } => Picos::ZERO,
+        }
 }
 
 fn turnaround(spec: &Spec, p: NodeId, r: NodeId, configured: Picos) -> Handover {
     // Worst case: the releasing driver turns off as slowly, and the
     // responder's receiver reacts as fast, as their ranges allow.
-    let dis = spec.nodes[p].transceiver.disable_range.max;
-    let rx = spec.nodes[r].transceiver.receiver_range.min;
-    let min = dis.saturating_sub(rx);
+    let (tp, tr) = (&spec.nodes[p].transceiver, &spec.nodes[r].transceiver);
+    let tail = i128::from(tp.disable_range.max.0)
+        + if tp.auto_direction {
+            -i128::from(spec.frame.encoding.uart().map_or(0, |u| spec.frame.time_of_halves(u64::from(u.stop_halves)).0))
+        } else {
+            i128::from(tp.release_after_stop)
+        };
+    let react = match tr.react_at {
+        ReactAt::FrameEnd => 0,
+        ReactAt::StopSample => i128::from(spec.frame.stop_sample_offset().0),
+    };
+    let rx_min = i128::from(tr.receiver_range.min.0);
+    let raw = tail + react - rx_min;
+    let min = Picos(raw.max(0) as u64);
+    let silence = spec.frame.silence.map(|si| {
+        let lead = tr.enable_lead.unwrap_or(tr.enable_range.min);
+        Picos((i128::from(si.0) + react - rx_min - i128::from(lead.0)).max(0) as u64)
+    });
     Handover {
         from: spec.nodes[p].name.clone(),
         to: spec.nodes[r].name.clone(),
         kind: "turnaround",
         min_turnaround_s: min.as_secs_f64(),
         configured_s: configured.as_secs_f64(),
-        ok: configured >= min,
+        ok: configured >= min && silence.is_none_or(|s| configured >= s),
         slack_s: 0.0,
+        silence_min_s: silence.map(Picos::as_secs_f64),
         max_turnaround_for_float_s: None,
         min,
+        raw_min: raw,
+        set: configured,
         responder: Some(r),
     }
 }
@@ -83,15 +143,15 @@ pub fn handovers(spec: &Spec, line: &LineModel, float_limit: Option<Picos>) -> V
             let mut seen = std::collections::BTreeSet::new();
             for &s in &p.order {
                 if seen.insert(s) {
-                    out.push(turnaround(spec, p.master, s, p.turnaround[s]));
-                    out.push(turnaround(spec, s, p.master, p.turnaround[p.master]));
+                    out.push(turnaround(spec, p.master, s, wait(p.turnaround[s], &p.response_latency)));
+                    out.push(turnaround(spec, s, p.master, wait(p.turnaround[p.master], &p.response_latency)));
                 }
             }
         }
         AccessSpec::Token(t) => {
             for (i, &n) in t.order.iter().enumerate() {
                 let next = t.order[(i + 1) % t.order.len()];
-                out.push(turnaround(spec, n, next, t.turnaround[next]));
+                out.push(turnaround(spec, n, next, wait(t.turnaround[next], &t.response_latency)));
             }
         }
         AccessSpec::Tdma(t) => out.extend(tdma(spec, line, t)),
@@ -127,7 +187,8 @@ pub fn handovers(spec: &Spec, line: &LineModel, float_limit: Option<Picos>) -> V
         }
     }
     for h in &mut out {
-        h.slack_s = h.configured_s - h.min_turnaround_s;
+        // Exact in picoseconds, then in seconds.
+        h.slack_s = (i128::from(h.set.0) - h.raw_min) as f64 * 1e-12;
     }
     out.sort_by_key(|h| std::cmp::Reverse(h.min));
     out
@@ -142,15 +203,18 @@ fn whole_bus(kind: &'static str, min: Picos, configured: Picos) -> Handover {
         configured_s: configured.as_secs_f64(),
         ok: configured >= min,
         slack_s: 0.0,
+        silence_min_s: None,
         max_turnaround_for_float_s: None,
         min,
+        raw_min: i128::from(min.0),
+        set: configured,
         responder: None,
     }
 }
 
 fn longest_frame(spec: &Spec) -> Picos {
     let bits = spec.nodes.iter().map(crate::spec::NodeSpec::longest_payload_bits).max().unwrap_or(0);
-    spec.frame.duration(spec.frame.data_line_bits(bits))
+    spec.frame.data_time(bits)
 }
 
 /// TDMA: guard for every slot boundary, with the worst clock errors (the
@@ -202,8 +266,11 @@ fn tdma(spec: &Spec, line: &LineModel, t: &crate::spec::TdmaSpec) -> Vec<Handove
             configured_s: t.guard.as_secs_f64(),
             ok: t.guard >= min,
             slack_s: 0.0,
+            silence_min_s: None,
             max_turnaround_for_float_s: None,
             min,
+            raw_min: i128::from(min.0),
+            set: t.guard,
             responder: Some(r),
         });
     }

@@ -5,6 +5,7 @@
 pub mod checks;
 pub mod cycle;
 pub mod electrical;
+pub mod firmware;
 pub mod handover;
 pub mod text;
 

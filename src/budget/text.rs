@@ -9,7 +9,7 @@ use crate::report::text::line_transit_row;
 use crate::units::{format_seconds, format_si};
 
 /// "card01, card02, … card20 (20)" for several names, or the names themselves.
-fn names(list: &[&str]) -> String {
+pub(crate) fn names(list: &[&str]) -> String {
     match list {
         [] => String::new(),
         [one] => (*one).to_owned(),
@@ -199,9 +199,14 @@ fn handovers(o: &mut String, b: &Budget) {
         let _ = writeln!(o, "Hand-overs: none the scheme times (random access without a slot)");
         return;
     }
-    let _ = writeln!(o, "Hand-overs (worst first; slack = set − minimum)");
+    let turnarounds = b.handovers.iter().any(|h| h.kind == "turnaround");
+    let _ = writeln!(
+        o,
+        "Hand-overs (worst first; {}slack = set − minimum, the room left on the line)",
+        if turnarounds { "set = turnaround + shortest response latency; " } else { "" }
+    );
     // Hand-overs alike (kind, minimum, setting) from one node, or else to one node, share a row.
-    type Key = ([String; 4], Option<String>);
+    type Key = ([String; 4], Option<String>, Option<String>);
     let key_of = |h: &super::Handover| -> Key {
         (
             [
@@ -211,6 +216,7 @@ fn handovers(o: &mut String, b: &Budget) {
                 format!("{}{}", format_seconds(h.slack_s), if h.ok { "" } else { "  too short" }),
             ],
             h.max_turnaround_for_float_s.map(format_seconds),
+            h.silence_min_s.map(format_seconds),
         )
     };
     let mut by_from: Vec<(Key, &str, Vec<&str>)> = Vec::new();
@@ -237,17 +243,26 @@ fn handovers(o: &mut String, b: &Budget) {
         rows.push((format!("{} → {to}", names(&froms)), k));
     }
     let with_float = rows.iter().any(|r| r.1 .1.is_some());
+    let with_silence = rows.iter().any(|r| r.1 .2.is_some());
     let cells: Vec<Vec<String>> = rows
         .iter()
-        .map(|(who, (k, f))| {
-            let mut r = vec![who.clone(), k[0].clone(), k[1].clone(), k[2].clone(), k[3].clone()];
+        .map(|(who, (k, f, si))| {
+            let mut r = vec![who.clone(), k[0].clone(), k[1].clone()];
+            if with_silence {
+                r.push(si.clone().unwrap_or_default());
+            }
+            r.extend([k[2].clone(), k[3].clone()]);
             if with_float {
                 r.push(f.clone().unwrap_or_default());
             }
             r
         })
         .collect();
-    let mut header = vec!["hand-over", "kind", "minimum", "set", "slack"];
+    let mut header = vec!["hand-over", "kind", "minimum"];
+    if with_silence {
+        header.push("silence minimum");
+    }
+    header.extend(["set", "slack"]);
     if with_float {
         header.push("max for float limit");
     }

@@ -96,6 +96,17 @@ mod tests {
     }
 
     proptest! {
+        // The hand-over slack a_k − b_j − D (see `stats::slack`) is negative
+        // exactly when the two occupancies overlap somewhere on the line.
+        #[test]
+        fn slack_is_negative_exactly_when_they_overlap(aj in 0u64..5000, lj in 1u64..3000, after in 0u64..6000,
+                                                       lk in 1u64..3000, d in 0u64..2000) {
+            let ak = aj + after;
+            let slack = ak as i64 - (aj + lj) as i64 - d as i64;
+            let overlap = worst_overlap(span(aj, aj + lj, 0.0), span(ak, ak + lk, 1.0), d);
+            prop_assert_eq!(slack < 0, overlap.is_some(), "slack {} overlap {:?}", slack, overlap);
+        }
+
         // The analytic maximum equals a brute-force scan over positions.
         #[test]
         fn matches_brute_force(aj in 0u64..5000, lj in 1u64..3000, ak in 0u64..5000,

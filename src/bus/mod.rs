@@ -23,6 +23,7 @@ use std::collections::VecDeque;
 
 use crate::line::LineModel;
 use crate::spec::{NodeId, Spec};
+use crate::stats::slack::HandoverStats;
 use crate::stats::utilization::{Piece, UtilizationSweep};
 use crate::units::Picos;
 use contention::{worst_overlap, Span};
@@ -39,7 +40,9 @@ pub struct Occupancy {
     pub node: NodeId,
     /// Enable asserted.
     pub a: u64,
-    /// Enable released (end of the last bit).
+    /// End of the last bit (the release for a dominant drive).
+    pub last_bit: u64,
+    /// Enable released (`last_bit + release_after_stop`).
     pub release: u64,
     /// Output high-impedance: `release + disable_time`.
     pub b: u64,
@@ -86,6 +89,12 @@ pub struct Bus {
     pub contention: ContentionTotals,
     /// Reused per-receiver buffer (no allocation per occupancy).
     scratch: Vec<u64>,
+    /// Every hand-over of the line from one driver to another.
+    pub handover: HandoverStats,
+    /// The latest processed non-dominant occupancy: the one a hand-over starts from.
+    prev: Option<Occupancy>,
+    /// Keep processed occupancies this much longer (the silence rule looks back at them).
+    keep: u64,
 }
 
 impl Bus {
@@ -114,14 +123,16 @@ impl Bus {
             floating: FloatingSweep::new(hazard, (spec.warmup, spec.duration)),
             contention: ContentionTotals::default(),
             scratch: Vec::with_capacity(spec.nodes.len()),
+            handover: HandoverStats::default(),
+            prev: None,
+            keep: spec.frame.silence.map_or(0, |t| t.0),
         }
     }
 
     /// Record a new occupancy. `a` must not lie before any processed entry's
     /// processing time (the engine guarantees `a ≥ now`).
-    #[allow(clippy::too_many_arguments)]
-    pub fn insert(&mut self, id: u64, node: NodeId, a: u64, release: u64, b: u64, frames: u32, dominant: bool) {
-        let occ = Occupancy { id, node, a, release, b, pending: frames, dominant };
+    pub fn insert(&mut self, occ: Occupancy) {
+        let a = occ.a;
         let mut at = self.log.len();
         while at > self.processed && self.log[at - 1].a > a {
             at -= 1;
@@ -146,6 +157,8 @@ impl Bus {
     /// must not lie in the past).
     pub fn cut_short(&mut self, id: u64, release: u64, b: u64) {
         if let Some(o) = self.log.iter_mut().rev().find(|o| o.id == id) {
+            // The line carries bits (jam, or the dominant level) up to the release.
+            o.last_bit = release;
             o.release = release;
             o.b = b;
         }
@@ -163,6 +176,18 @@ impl Bus {
             let d = line.delay_ps(o.node, dest);
             o.a + d < e && o.b + d > s
         })
+    }
+
+    /// The latest end of a frame-carrying occupancy's last bit, as it
+    /// reaches `r`, at or before `t` (other than occupancy `exclude`): the
+    /// previous frame `r` heard, for the silence rule.
+    pub fn last_frame_end_at(&self, line: &LineModel, r: NodeId, t: u64, exclude: u64) -> Option<u64> {
+        self.log
+            .iter()
+            .filter(|o| !o.dominant && o.id != exclude)
+            .map(|o| o.last_bit + line.delay_ps(o.node, r))
+            .filter(|&x| x <= t)
+            .max()
     }
 
     /// If the receiver of `node` shows another driver at `t`, until when the
@@ -200,7 +225,7 @@ impl Bus {
         self.util.advance(frontier);
         // Drop processed entries that can no longer overlap, corrupt or be sensed.
         let horizon = frontier.saturating_sub(self.max_delay + self.max_rx_delay);
-        while self.processed > 0 && self.log[0].b <= horizon {
+        while self.processed > 0 && self.log[0].b.max(self.log[0].last_bit) + self.keep <= horizon {
             self.log.pop_front();
             self.processed -= 1;
         }
@@ -272,6 +297,20 @@ impl Bus {
             Some(self.scratch.as_slice())
         };
         self.floating.feed_occupancy(k.node, k.a, k.b, |i| line.delay_row(i), next);
+        if !k.dominant {
+            if let Some(j) = self.prev.filter(|j| j.node != k.node) {
+                if k.a >= self.window.0 && k.a < self.window.1 {
+                    let d = line.delay_ps(j.node, k.node);
+                    let slack = i128::from(k.a) - i128::from(j.b) - i128::from(d);
+                    let sj = Span { from: j.a, to: j.b, position_m: self.positions[j.node] };
+                    let sk = Span { from: k.a, to: k.b, position_m: self.positions[k.node] };
+                    let contended = worst_overlap(sj, sk, d).is_some();
+                    // Times are below 2^60 ps, so a difference fits i64.
+                    self.handover.record(j.node, k.node, slack as i64, contended);
+                }
+            }
+            self.prev = Some(k);
+        }
         self.util.add(if k.dominant { Piece::Dominant } else { Piece::Occupancy }, k.a, k.b);
         trace.push(BusEvent { t: k.a, node: k.node, kind: BusEventKind::DriverEnable { dominant: k.dominant } });
         trace.push(BusEvent { t: k.release, node: k.node, kind: BusEventKind::DriverRelease });

@@ -20,6 +20,8 @@ pub enum BusEventKind {
     FrameStart {
         frame: &'static str,
         to: NodeId,
+        /// Seeds the frame's random character gaps (0 when they are not random).
+        gap_seed: u64,
     },
     FrameEnd {
         frame: &'static str,

@@ -41,6 +41,17 @@ pub fn flatten(report: &Value) -> BTreeMap<String, f64> {
     out
 }
 
+/// Metrics a report has only once there is something to measure, with why
+/// a run may have no value: an expectation may name them all the same.
+pub const CONDITIONAL: &[(&str, &str)] = &[
+    ("handover.slack_min_s", "no hand-over from one driver to another happened in the measured window"),
+    ("handover.slack_p01_s", "no hand-over from one driver to another happened in the measured window"),
+];
+
+fn conditional(metric: &str) -> Option<&'static str> {
+    CONDITIONAL.iter().find(|(m, _)| *m == metric).map(|(_, why)| *why)
+}
+
 /// The physical dimension of a metric, from its name; `None` for counts and fractions.
 pub fn dimension_of(path: &str) -> Option<Dimension> {
     let parts: Vec<&str> = path.split('.').collect();
@@ -91,7 +102,7 @@ pub fn resolve(
             hint: None,
             source_line: None,
         };
-        if !metrics.contains_key(&e.metric) {
+        if !metrics.contains_key(&e.metric) && conditional(&e.metric).is_none() {
             let mut err = place(e.metric_at, "metric", format!("the report has no metric \"{}\"", e.metric));
             if let Some(m) = did_you_mean(&e.metric, metrics.keys().map(String::as_str)) {
                 err = err.with_hint(format!("did you mean \"{m}\"?"));
@@ -153,7 +164,19 @@ pub fn evaluate(
     interval: Option<&BTreeMap<String, (f64, f64)>>,
 ) -> Outcome {
     let e = &r.expectation;
-    let measured = metrics[&e.metric];
+    let Some(&measured) = metrics.get(&e.metric) else {
+        // A metric the run gives no value for fails its expectation, saying why.
+        let why = conditional(&e.metric).unwrap_or("the report has no such metric");
+        return Outcome {
+            metric: e.metric.clone(),
+            op: e.op.symbol(),
+            required: r.required,
+            measured: f64::NAN,
+            limit: None,
+            pass: false,
+            message: Some(format!("no value: {why}")),
+        };
+    };
     let (limit, pass) = match (e.confidence, interval.and_then(|i| i.get(&e.metric))) {
         // At the confidence limit: the unfavourable end of the interval.
         (true, Some(&(lo, hi))) => match e.op {
@@ -176,6 +199,9 @@ pub fn evaluate(
 
 /// Show a metric's value with its unit.
 pub fn show(metric: &str, x: f64) -> String {
+    if x.is_nan() {
+        return "none".into();
+    }
     match dimension_of(metric) {
         Some(Dimension::Time) => units::format_seconds(x),
         Some(Dimension::BitRate) => units::format_si(x, "bit/s"),

@@ -33,6 +33,8 @@ pub struct BudgetArgs {
     /// Print only the highest bit rate the edges and stubs allow.
     #[arg(long, conflicts_with = "verify")]
     pub max_rate: bool,
+    #[command(flatten)]
+    pub overrides: super::overrides::ScenarioOverrides,
 }
 
 pub fn budget(args: BudgetArgs) -> Result<u8, Failure> {
@@ -44,7 +46,7 @@ pub fn budget(args: BudgetArgs) -> Result<u8, Failure> {
         .as_deref()
         .map(|t| halfwire::units::parse_time(t).map_err(|e| Failure::input(format!("--float-limit: {e}"))))
         .transpose()?;
-    let spec = halfwire::scenario::load(&args.file)?;
+    let spec = args.overrides.load(&args.file)?;
     let b = Budget::compute(&spec, Options { stub_fraction: args.stub_fraction, float_limit });
     if args.max_nodes {
         print_stdout(&format!("{}\n", b.limits.max_nodes))?;

@@ -1,4 +1,4 @@
-//! `--seed` and `--duration`, shared by the commands that run a scenario.
+//! `--seed`, `--duration` and `--set`, shared by the commands that run a scenario.
 
 use std::path::Path;
 
@@ -16,12 +16,16 @@ pub struct ScenarioOverrides {
     /// Override the scenario's duration (simulated time with a unit, e.g. "50 ms").
     #[arg(long)]
     pub duration: Option<String>,
+    /// Set any key of the scenario, as if written in the file (repeatable):
+    /// `--set 'transceiver.release_after_stop="-0.5 bit"'`
+    #[arg(long = "set", value_name = "KEY=VALUE", value_parser = halfwire::scenario::parse_assignment)]
+    pub set: Vec<(String, halfwire::scenario::edit::Literal)>,
 }
 
 impl ScenarioOverrides {
     /// The overrides, for the library (which validates them with the scenario).
     pub fn get(&self) -> Overrides {
-        Overrides { seed: self.seed, duration: self.duration.clone() }
+        Overrides { seed: self.seed, duration: self.duration.clone(), set: self.set.clone() }
     }
 
     /// Read a scenario file and validate it with these overrides written into it.

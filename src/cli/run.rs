@@ -271,7 +271,7 @@ fn render_events(spec: &Spec, events: &[BusEvent]) -> String {
             BusEventKind::DriverEnable { .. } => "driver_enable",
             BusEventKind::DriverRelease => "driver_release",
             BusEventKind::DriverOff => "driver_off",
-            BusEventKind::FrameStart { frame, to } => {
+            BusEventKind::FrameStart { frame, to, .. } => {
                 m.insert("frame".into(), json!(frame));
                 m.insert("to".into(), json!(name(to)));
                 "frame_start"

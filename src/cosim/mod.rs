@@ -18,6 +18,9 @@ use crate::units::Picos;
 /// The protocol version both sides name in the handshake.
 pub const PROTOCOL: &str = "halfwire-cosim/1";
 
+/// The longest `release_after_stop_ps` either way (1 s, the transceiver-time bound).
+pub const MAX_RELEASE_AFTER_PS: u64 = crate::scenario::transceiver::MAX_TRANSCEIVER_TIME.0;
+
 /// The largest control frame a node may send, in data bits.
 pub const MAX_CONTROL_BITS: u64 = 1 << 20;
 
@@ -25,10 +28,24 @@ pub const MAX_CONTROL_BITS: u64 = 1 << 20;
 #[derive(Clone, Debug, PartialEq, Deserialize)]
 #[serde(tag = "type", rename_all = "snake_case", deny_unknown_fields)]
 pub enum ClientMessage {
-    Hello { protocol: String, node: String },
-    Transmit { at_ps: u64, frames: Vec<FrameRequest> },
-    Timer { at_ps: u64, tag: u64 },
-    WatchLine { on: bool },
+    Hello {
+        protocol: String,
+        node: String,
+    },
+    Transmit {
+        at_ps: u64,
+        frames: Vec<FrameRequest>,
+        /// Release the enable this long after the last bit's end (signed ps;
+        /// default: the node's `release_after_stop`). Negative cuts the last bit.
+        release_after_stop_ps: Option<i64>,
+    },
+    Timer {
+        at_ps: u64,
+        tag: u64,
+    },
+    WatchLine {
+        on: bool,
+    },
     Wait {},
 }
 
@@ -84,7 +101,14 @@ pub fn to_intent(spec: &Spec, node: NodeId, msg: ClientMessage) -> Result<Option
         ClientMessage::Wait {} => return Ok(None),
         ClientMessage::Timer { at_ps, tag } => Intent::Timer { at: Picos(at_ps), tag },
         ClientMessage::WatchLine { on } => Intent::WatchLine(on),
-        ClientMessage::Transmit { at_ps, frames } => {
+        ClientMessage::Transmit { at_ps, frames, release_after_stop_ps } => {
+            if let Some(r) = release_after_stop_ps {
+                if r.unsigned_abs() > MAX_RELEASE_AFTER_PS {
+                    return Err(format!(
+                        "release_after_stop_ps {r} is beyond ±{MAX_RELEASE_AFTER_PS} ps (1 s), the longest transceiver time supported"
+                    ));
+                }
+            }
             let mut out = Vec::with_capacity(frames.len());
             for f in frames {
                 check_hex(&f.payload_hex)?;
@@ -113,7 +137,7 @@ pub fn to_intent(spec: &Spec, node: NodeId, msg: ClientMessage) -> Result<Option
                 }
                 out.push(FrameIntent::Control { kind, bits, to, payload_hex: f.payload_hex });
             }
-            Intent::Transmit { at: Picos(at_ps), frames: out }
+            Intent::Transmit { at: Picos(at_ps), frames: out, release_after: release_after_stop_ps }
         }
     }))
 }

@@ -72,7 +72,12 @@ pub enum FrameIntent {
 #[derive(Clone, Debug, PartialEq)]
 pub enum Intent {
     /// Assert the enable at `at` and send these frames back to back.
-    Transmit { at: Picos, frames: Vec<FrameIntent> },
+    Transmit {
+        at: Picos,
+        frames: Vec<FrameIntent>,
+        /// Overrides the node's `release_after_stop` (signed ps).
+        release_after: Option<i64>,
+    },
     /// Arm a timer that fires at `at` with `tag`.
     Timer { at: Picos, tag: u64 },
     /// Start or stop hearing line busy/idle changes.
@@ -280,7 +285,7 @@ impl Simulation {
                 self.world.queue.push(at, super::Event::External { node: node as u32, tag });
             }
             Intent::WatchLine(on) => self.world.watch_line(node, on),
-            Intent::Transmit { at, frames } => {
+            Intent::Transmit { at, frames, release_after } => {
                 if at < now {
                     return Err(past("transmit", at));
                 }
@@ -335,7 +340,7 @@ impl Simulation {
                         c.payloads.insert((self.world.tx_occupancy(), s.0), h);
                     }
                 }
-                let tx = self.world.finish_tx();
+                let tx = self.world.finish_tx_releasing(release_after);
                 c.busy_until[node] = tx.release;
                 self.scheme.on_external_tx(&mut self.world, node, &tx, &kinds);
             }

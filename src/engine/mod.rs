@@ -7,6 +7,7 @@
 //! whatever occupancies have become final. Nothing here does I/O; the caller
 //! drives the run with [`Simulation::run_until`] and reads the [`Report`].
 
+pub mod chars;
 pub mod external;
 pub mod queue;
 pub mod rng;
@@ -384,7 +385,13 @@ impl Simulation {
 /// classify its line time, release its occupancy and free its record.
 fn resolve_delivery(w: &mut World, idx: u32, to: NodeId) -> (world::FrameRec, bool) {
     let f = w.frames[idx as usize];
-    let corrupted = f.aborted || w.bus.is_corrupted(&w.line, f.src, to, f.s, f.e);
+    // A receiver reacting at the stop bit's sample point has taken the frame
+    // by then: what the line does after it no longer matters to it.
+    let heard_until = f.e.saturating_sub(w.fw[to].react).max(f.s);
+    let mut corrupted = f.aborted || w.bus.is_corrupted(&w.line, f.src, to, f.s, heard_until);
+    if w.uart.is_some() || f.flags != 0 {
+        corrupted |= framing_faults(w, &f, to);
+    }
     w.trace.push(BusEvent {
         t: f.e,
         node: f.src,
@@ -395,11 +402,45 @@ fn resolve_delivery(w: &mut World, idx: u32, to: NodeId) -> (world::FrameRec, bo
     rec.corrupted_any |= corrupted;
     if rec.remaining == 0 {
         let any = rec.corrupted_any;
+        if f.flags & world::FrameRec::CUT != 0 && w.in_window(w.now) {
+            w.stats.uart.cut_frames += 1;
+        }
         add_frame_pieces(w, &f, any);
         w.bus.frame_resolved(f.occupancy);
         w.free_frames.push(idx);
     }
     (f, corrupted)
+}
+
+/// The framing rules a frame can break at receiver `to`, besides another
+/// driver's signal: an enable that cut its first or last bit, a gap between
+/// characters past `char_timeout`, a start too soon after the previous frame
+/// (`silence`), recessive bits that the bias does not settle within a bit.
+/// Each broken rule is counted (per delivery; cut frames once per frame).
+fn framing_faults(w: &mut World, f: &world::FrameRec, to: NodeId) -> bool {
+    use world::FrameRec as F;
+    let counted = w.in_window(w.now);
+    let mut bad = f.flags & F::CUT != 0;
+    let u = &mut w.stats.uart;
+    if f.flags & F::GAP_TIMEOUT != 0 {
+        bad = true;
+        u.char_timeouts += u64::from(counted);
+    }
+    let Some(run) = &w.uart else { return bad };
+    if f.flags & F::AUTO != 0 && run.unsettled[to] {
+        bad = true;
+        u.unsettled_frames += u64::from(counted);
+    }
+    if let Some(silence) = run.silence {
+        let start = f.s + w.line.delay_ps(f.src, to);
+        if let Some(prev) = w.bus.last_frame_end_at(&w.line, to, start, f.occupancy) {
+            if start - prev < silence {
+                bad = true;
+                u.silence_violations += u64::from(counted);
+            }
+        }
+    }
+    bad
 }
 
 /// Utilization pieces of a resolved frame.

@@ -54,9 +54,12 @@ impl FrameOut {
 pub struct TxTimes {
     /// Enable asserted.
     pub enable: Picos,
-    /// First bit on the wire (`enable + enable_time`).
+    /// First bit on the wire (`enable + enable_lead`).
     pub first_bit: Picos,
-    /// Enable released: end of the last bit.
+    /// End of the last bit on the wire: where the frame ends for every receiver.
+    pub last_bit: Picos,
+    /// Enable released: `last_bit + release_after_stop` (the end of the
+    /// last dominant bit for an auto-direction transceiver).
     pub release: Picos,
     /// Output high-impedance: `release + disable_time`.
     pub off: Picos,
@@ -80,6 +83,46 @@ pub(crate) struct FrameRec {
     pub corrupted_any: bool,
     /// Cut short by its sender (collision detected): never delivered intact.
     pub aborted: bool,
+    /// [`FrameRec::CUT`], [`FrameRec::GAP_TIMEOUT`], [`FrameRec::AUTO`].
+    pub flags: u8,
+}
+
+impl FrameRec {
+    /// Its first or last bit was cut by half a bit or more by the enable.
+    pub const CUT: u8 = 1;
+    /// A gap between two of its characters exceeds `frame.char_timeout`.
+    pub const GAP_TIMEOUT: u8 = 2;
+    /// Sent by an auto-direction transceiver (its recessive bits come from the bias).
+    pub const AUTO: u8 = 4;
+}
+
+/// A node's firmware and transceiver timing, resolved once (ps).
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct Firmware {
+    /// Enable asserted → output valid.
+    pub enable: u64,
+    /// Enable asserted → first bit's edge.
+    pub lead: u64,
+    /// Enable released after the last bit's end (signed).
+    pub release_after: i64,
+    /// Its receiver reacts this long before a frame's end.
+    pub react: u64,
+    pub auto: bool,
+}
+
+/// UART framing in a run: character gaps, silence rules, auto-direction.
+#[derive(Debug)]
+pub(crate) struct UartRun {
+    /// Per node: the stream that seeds each frame's character gaps.
+    pub gap_rng: Vec<Stream>,
+    /// Per frame gap longer than this discards it (`u64::MAX`: no rule).
+    pub char_timeout: u64,
+    pub silence: Option<u64>,
+    /// Per receiver: an auto-direction sender's recessive bits do not settle
+    /// to a defined level within a bit there.
+    pub unsettled: Vec<bool>,
+    /// Length of a character's stop bits.
+    pub stop_ps: u64,
 }
 
 /// A transmission being assembled.
@@ -90,6 +133,8 @@ struct TxBuild {
     cursor: u64,
     frames: u32,
     occupancy: u64,
+    /// The enable cuts frames' last bits: remember which frames to check.
+    track: bool,
 }
 
 /// Everything but the scheme: the state a scheme reads and acts through.
@@ -126,6 +171,12 @@ pub struct World {
     pub(crate) line_watchers: Vec<NodeId>,
     /// Nodes driven by an external process in this run (co-simulation with a gateway).
     pub(crate) externally_driven: Vec<bool>,
+    pub(crate) fw: Vec<Firmware>,
+    pub(crate) uart: Option<Box<UartRun>>,
+    /// Half a bit time: a cut this long or longer corrupts a frame.
+    half_bit: u64,
+    /// Frames of the open transmission, when its release may cut them.
+    tx_frames: Vec<u32>,
 }
 
 impl World {
@@ -144,6 +195,40 @@ impl World {
         }
         let line = LineModel::new(&spec);
         let bus = Bus::new(&spec, &line);
+        let fw = spec
+            .nodes
+            .iter()
+            .map(|node| {
+                let t = &node.transceiver;
+                Firmware {
+                    enable: t.enable_time.0,
+                    lead: t.enable_lead.unwrap_or(t.enable_time).0,
+                    release_after: t.release_after_stop,
+                    react: match t.react_at {
+                        crate::spec::ReactAt::FrameEnd => 0,
+                        crate::spec::ReactAt::StopSample => spec.frame.stop_sample_offset().0,
+                    },
+                    auto: t.auto_direction,
+                }
+            })
+            .collect();
+        let uart = spec.frame.encoding.uart().map(|u| {
+            let bit = spec.frame.bit_time();
+            Box::new(UartRun {
+                gap_rng: spec.nodes.iter().map(|node| super::rng::stream(spec.seed, &node.name, "chargap")).collect(),
+                char_timeout: spec.frame.char_timeout.map_or(u64::MAX, |t| t.0),
+                silence: spec.frame.silence.map(|t| t.0),
+                unsettled: (0..spec.nodes.len())
+                    .map(|i| match (line.idle_state(&spec, i), line.settled.settle[i]) {
+                        (crate::line::IdleState::Undefined, _) => true,
+                        (_, Some(t)) => t > bit,
+                        (_, None) => false,
+                    })
+                    .collect(),
+                stop_ps: spec.frame.time_of_halves(u64::from(u.stop_halves)).0,
+            })
+        });
+        let half_bit = spec.frame.time_of_halves(1).0;
         let n = spec.nodes.len();
         let access_rng = spec.nodes.iter().map(|node| super::rng::stream(spec.seed, &node.name, "access")).collect();
         let queue_limit =
@@ -184,6 +269,10 @@ impl World {
             next_enable: vec![0; n],
             line_watchers: Vec::new(),
             externally_driven: vec![false; n],
+            fw,
+            uart,
+            half_bit,
+            tx_frames: Vec::with_capacity(16),
             spec,
         }
     }
@@ -262,6 +351,18 @@ impl World {
         t + self.line.delay(from, to) + self.spec.nodes[to].transceiver.receiver_delay
     }
 
+    /// From `node`'s enable to its first bit's edge.
+    pub fn enable_lead(&self, node: NodeId) -> Picos {
+        Picos(self.fw[node].lead)
+    }
+
+    /// When `to` reacts to a frame from `from` whose last bit leaves the
+    /// driver at `last_bit`: its receiver shows the end, less its reaction
+    /// offset (a UART reacting at the stop bit's sample point).
+    pub fn reacts_at(&self, from: NodeId, to: NodeId, last_bit: Picos) -> Picos {
+        Picos(self.seen_at(from, to, last_bit).0 - self.fw[to].react)
+    }
+
     /// If the receiver of `node` shows another driver now, until when the
     /// activity it shows lasts (a later signal may extend it: sense again then).
     pub fn carrier_until(&self, node: NodeId) -> Option<Picos> {
@@ -279,10 +380,9 @@ impl World {
     /// enable is released.
     pub fn abort_tx(&mut self, node: NodeId, occupancy: u64, jam_bits: u64) -> TxTimes {
         let now = self.now.0;
-        let enable_time = self.spec.nodes[node].transceiver.enable_time.0;
+        let lead = self.fw[node].lead;
         let jam = self.spec.frame.duration(jam_bits).0;
-        let release =
-            now.max(self.bus.occupancies().find(|o| o.id == occupancy).map_or(now, |o| o.a + enable_time)) + jam;
+        let release = now.max(self.bus.occupancies().find(|o| o.id == occupancy).map_or(now, |o| o.a + lead)) + jam;
         let off = release + self.spec.nodes[node].transceiver.disable_time.0;
         for i in 0..self.frames.len() {
             let f = self.frames[i];
@@ -300,7 +400,8 @@ impl World {
         self.released(node, release, off);
         TxTimes {
             enable: Picos(self.bus.occupancies().find(|o| o.id == occupancy).map_or(now, |o| o.a)),
-            first_bit: Picos(self.bus.occupancies().find(|o| o.id == occupancy).map_or(now, |o| o.a + enable_time)),
+            first_bit: Picos(self.bus.occupancies().find(|o| o.id == occupancy).map_or(now, |o| o.a + lead)),
+            last_bit: Picos(release),
             release: Picos(release),
             off: Picos(off),
             occupancy,
@@ -345,9 +446,19 @@ impl World {
     fn open_tx(&mut self, node: NodeId, at: Picos) {
         assert!(self.tx.is_none(), "begin_tx while another transmission is open");
         let at = at.max(self.now).0;
-        let enable_time = self.spec.nodes[node].transceiver.enable_time.0;
-        self.tx =
-            Some(TxBuild { node, enable: at, cursor: at + enable_time, frames: 0, occupancy: self.bus.reserve_id() });
+        let fw = self.fw[node];
+        let track = fw.release_after < 0 || self.externally_driven[node];
+        if track {
+            self.tx_frames.clear();
+        }
+        self.tx = Some(TxBuild {
+            node,
+            enable: at,
+            cursor: at + fw.lead,
+            frames: 0,
+            occupancy: self.bus.reserve_id(),
+            track,
+        });
     }
 
     /// Append a frame to the open transmission, after the interframe gap if
@@ -357,9 +468,28 @@ impl World {
         if tx.frames > 0 {
             tx.cursor += self.spec.frame.interframe_gap.0;
         }
-        let line_bits = self.spec.frame.encoding.line_bits(f.data_bits);
+        let fmt = &self.spec.frame;
         let s = tx.cursor;
-        let e = s + self.spec.frame.duration(line_bits).0;
+        let mut e = s + fmt.base_time(f.data_bits).0;
+        let mut flags = 0;
+        let mut gap_seed = 0;
+        if let Some(u) = &mut self.uart {
+            if matches!(fmt.char_gap, crate::spec::CharGap::Random { .. }) {
+                gap_seed = rand::RngCore::next_u64(&mut u.gap_rng[tx.node]);
+            }
+            let (gaps, longest) = super::chars::sum_and_max(&fmt.char_gap, gap_seed, fmt.chars(f.data_bits));
+            e += gaps;
+            if longest > u.char_timeout {
+                flags |= FrameRec::GAP_TIMEOUT;
+            }
+            if self.fw[tx.node].auto {
+                flags |= FrameRec::AUTO;
+            }
+        }
+        if tx.frames == 0 && tx.enable + self.fw[tx.node].enable >= s + self.half_bit {
+            // The output turns valid half a bit or more into the first bit.
+            flags |= FrameRec::CUT;
+        }
         tx.cursor = e;
         tx.frames += 1;
         let remaining = match f.dest {
@@ -377,6 +507,7 @@ impl World {
             remaining,
             corrupted_any: false,
             aborted: false,
+            flags,
         };
         let idx = match self.free_frames.pop() {
             Some(i) => {
@@ -388,8 +519,12 @@ impl World {
                 (self.frames.len() - 1) as u32
             }
         };
+        if tx.track {
+            self.tx_frames.push(idx);
+        }
         let deliver = |to: NodeId, q: &mut EventQueue<Event>| {
-            let t = e + self.line.delay_ps(tx.node, to) + self.spec.nodes[to].transceiver.receiver_delay.0;
+            let t = e + self.line.delay_ps(tx.node, to) + self.spec.nodes[to].transceiver.receiver_delay.0
+                - self.fw[to].react;
             q.push(Picos(t), Event::Deliver { frame: idx, to: to as u32 });
         };
         match f.dest {
@@ -410,7 +545,7 @@ impl World {
             self.trace.push(BusEvent {
                 t: s,
                 node: tx.node,
-                kind: BusEventKind::FrameStart { frame: f.kind.name(), to },
+                kind: BusEventKind::FrameStart { frame: f.kind.name(), to, gap_seed },
             });
         }
         self.tx = Some(tx);
@@ -437,15 +572,49 @@ impl World {
         self.tx.expect("a transmission is open").occupancy
     }
 
-    /// Close the open transmission: the enable is released at the end of the
-    /// last bit, and the output turns off `disable_time` later.
+    /// Close the open transmission: the enable is released
+    /// `release_after_stop` after the end of the last bit (an auto-direction
+    /// driver at the end of the last dominant bit, before the stop bits), and
+    /// the output turns off `disable_time` later.
     pub fn finish_tx(&mut self) -> TxTimes {
+        self.finish_tx_releasing(None)
+    }
+
+    /// [`World::finish_tx`], with the release after the last bit given
+    /// for this transmission (co-simulated firmware), not the node's.
+    pub fn finish_tx_releasing(&mut self, release_after: Option<i64>) -> TxTimes {
         let tx = self.tx.take().expect("finish_tx without begin_tx");
+        let mut fw = self.fw[tx.node];
+        if let Some(r) = release_after {
+            fw.release_after = r;
+        }
         let disable = self.spec.nodes[tx.node].transceiver.disable_time.0;
-        let first_bit = tx.enable + self.spec.nodes[tx.node].transceiver.enable_time.0;
-        let release = tx.cursor;
+        let first_bit = tx.enable + fw.lead;
+        let last_bit = tx.cursor;
+        let release = match &self.uart {
+            Some(u) if fw.auto => last_bit.saturating_sub(u.stop_ps).max(tx.enable),
+            _ => last_bit.saturating_add_signed(fw.release_after).max(tx.enable),
+        };
+        if tx.track {
+            // The enable released half a bit or more before a frame's end cuts it.
+            for &i in &self.tx_frames {
+                let f = &mut self.frames[i as usize];
+                if f.e >= release + self.half_bit {
+                    f.flags |= FrameRec::CUT;
+                }
+            }
+        }
         let off = release + disable;
-        self.bus.insert(tx.occupancy, tx.node, tx.enable, release, off, tx.frames, false);
+        self.bus.insert(crate::bus::Occupancy {
+            id: tx.occupancy,
+            node: tx.node,
+            a: tx.enable,
+            last_bit,
+            release,
+            b: off,
+            pending: tx.frames,
+            dominant: false,
+        });
         self.released(tx.node, release, off);
         if !self.line_watchers.is_empty() {
             // The line turns busy at each watching receiver when this driver's
@@ -459,6 +628,7 @@ impl World {
         TxTimes {
             enable: Picos(tx.enable),
             first_bit: Picos(first_bit),
+            last_bit: Picos(last_bit),
             release: Picos(release),
             off: Picos(off),
             occupancy: tx.occupancy,
@@ -478,7 +648,16 @@ impl World {
         let release = release.0.max(a);
         let off = release + self.spec.nodes[node].transceiver.disable_time.0;
         let id = self.bus.reserve_id();
-        self.bus.insert(id, node, a, release, off, 0, true);
+        self.bus.insert(crate::bus::Occupancy {
+            id,
+            node,
+            a,
+            last_bit: release,
+            release,
+            b: off,
+            pending: 0,
+            dominant: true,
+        });
         self.released(node, release, off);
         id
     }

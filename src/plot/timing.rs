@@ -25,6 +25,8 @@ const CONTROL_FILL: &str = "#5aa79a";
 const CONTENTION: &str = "#d7191c";
 const ENABLE_EDGE: &str = "#1a9850";
 const RELEASE_EDGE: &str = "#e66101";
+/// The enable held on after the last bit by firmware (`release_after_stop`).
+const HOLD_FILL: &str = "#f3d9a4";
 
 /// Lane height for `n` nodes: roomy for a few, compact for many.
 fn lane_height(n: usize) -> f64 {
@@ -94,7 +96,8 @@ pub fn render(rec: &Recording, names: &[String], scenario: &str, bit_rate: f64) 
         let y0 = lanes_top + lh * i as f64;
         node_lane(&mut svg, rec, i, name, y0, lh, bit_rate, &px, span, pw);
     }
-    legend(&mut svg, legend_y);
+    let hold = rec.occupancies.iter().any(|o| o.frames.iter().map(|f| f.e).max().is_some_and(|e| o.release > e));
+    legend(&mut svg, legend_y, hold);
     let defs = concat!(
         r##"<pattern id="float" width="6" height="6" patternUnits="userSpaceOnUse" patternTransform="rotate(45)">"##,
         r##"<rect width="6" height="6" fill="#fff6d5"/><line x1="0" y1="0" x2="0" y2="6" stroke="#b08900" stroke-width="1.6"/></pattern>"##,
@@ -230,6 +233,11 @@ fn node_lane(
             bot - top,
             r##"fill="url(#tail)" stroke="#a9bfdc" stroke-width="0.6" stroke-dasharray="2,2" class="disable-tail""##,
         );
+        // Firmware hold: the enable kept on after the last bit (release_after_stop > 0).
+        if let Some(last) = o.frames.iter().map(|f| f.e).max().filter(|&e| o.release > e) {
+            let xl = px(last);
+            svg.rect(xl, top, (xr - xl).max(0.6), bot - top, &format!(r#"fill="{HOLD_FILL}" class="hold""#));
+        }
         for f in &o.frames {
             let (xs, xe) = (px(f.s), px(f.e));
             let fill = if matches!(f.kind, "data") { DATA_FILL } else { CONTROL_FILL };
@@ -294,7 +302,7 @@ fn node_lane(
     svg.raw("</g>");
 }
 
-fn legend(svg: &mut Svg, y: f64) {
+fn legend(svg: &mut Svg, y: f64, hold: bool) {
     let rect = |attrs: &str| format!(r#"<rect x="{{x}}" y="{{y}}" width="18" height="12" {attrs}/>"#);
     let rows: [Vec<(String, &str)>; 2] = [
         vec![
@@ -319,6 +327,10 @@ fn legend(svg: &mut Svg, y: f64) {
             (rect(r##"fill="none" stroke="#333""##), "gap: last driver off → next enable, with its length"),
         ],
     ];
+    let mut rows = rows;
+    if hold {
+        rows[0].insert(1, (rect(&format!(r#"fill="{HOLD_FILL}""#)), "firmware hold after the last bit"));
+    }
     for (k, row) in rows.iter().enumerate() {
         let ry = y + 22.0 * k as f64;
         let mut x = LEFT;

@@ -9,7 +9,11 @@
 //! - no duration exceeds the run (`simulated_s`, or the whole duration for
 //!   latencies, which may begin before the warmup ends);
 //! - data frames resolved = delivered + corrupted; latency samples = deliveries;
-//!   per-node latency counts add up to the total; percentiles are ordered.
+//!   per-node latency counts add up to the total; percentiles are ordered;
+//! - hand-over slack: the minimum bounds the quantiles, the pairs add up to
+//!   the total, and a hand-over contends exactly when its slack is negative
+//!   (two computations: the closed-form slack and the overlap geometry);
+//! - UART rule counts do not exceed the deliveries.
 
 use serde_json::Value;
 
@@ -97,6 +101,16 @@ pub fn violations(report: &Value) -> Vec<String> {
     }
     totals(report, "floating", "windows", "total_s", "longest_s", run_s, &mut bad);
 
+    handover(report, &mut bad);
+    // UART rules count deliveries, of data and control frames alike.
+    let deliveries = count("frames.attempts") + count("frames.control");
+    for k in ["char_timeouts", "silence_violations", "unsettled_frames"] {
+        let n = count(&format!("uart.{k}"));
+        if n > deliveries {
+            bad(format!("uart.{k} ({n}) exceeds the frames delivered ({deliveries})"));
+        }
+    }
+
     // The scheme's own figures.
     if let Some(Value::Object(scheme)) = lookup(report, "scheme") {
         for (k, v) in scheme {
@@ -120,6 +134,51 @@ pub fn violations(report: &Value) -> Vec<String> {
         }
     }
     out
+}
+
+/// Hand-over slack: the minimum bounds every quantile, the pairs add up to
+/// the total, and a hand-over contends exactly when its slack is negative.
+fn handover(report: &Value, bad: &mut impl FnMut(String)) {
+    let num = |p: &str| lookup(report, p).and_then(Value::as_f64);
+    let count = |p: &str| lookup(report, p).and_then(Value::as_u64).unwrap_or(0);
+    let (n, contended) = (count("handover.count"), count("handover.contended"));
+    if contended > n {
+        bad(format!("handover.contended ({contended}) exceeds handover.count ({n})"));
+    }
+    match (num("handover.slack_min_s"), num("handover.slack_p01_s")) {
+        (Some(min), Some(p01)) => {
+            if p01 < min {
+                bad(format!("handover.slack_p01_s ({p01}) is below handover.slack_min_s ({min})"));
+            }
+            if (min < 0.0) != (contended > 0) {
+                bad(format!("handover.slack_min_s is {min} s but {contended} hand-overs contend"));
+            }
+        }
+        (None, None) if n == 0 => {}
+        _ => bad(format!("handover: {n} hand-overs but slack_min_s/slack_p01_s do not match that")),
+    }
+    let Some(Value::Array(pairs)) = lookup(report, "handover.pairs") else {
+        bad("handover.pairs is missing".into());
+        return;
+    };
+    let mut sum = count("handover.pairs_untracked");
+    for p in pairs {
+        let get = |k: &str| p.get(k).and_then(Value::as_f64).unwrap_or(f64::NAN);
+        let (c, min, p50, pc) = (get("count"), get("slack_min_s"), get("slack_p50_s"), get("contended"));
+        sum += c as u64;
+        if p50.is_nan() || p50 < min {
+            bad(format!("handover pair {p}: slack_p50_s below slack_min_s"));
+        }
+        if (min < 0.0) != (pc > 0.0) || pc > c {
+            bad(format!("handover pair {p}: contended {pc} of {c} with smallest slack {min} s"));
+        }
+        if num("handover.slack_min_s").is_some_and(|all| min < all) {
+            bad(format!("handover pair {p}: slack below the overall minimum"));
+        }
+    }
+    if sum != n {
+        bad(format!("handover pairs (with the untracked) count {sum} hand-overs, not handover.count ({n})"));
+    }
 }
 
 fn lookup<'a>(v: &'a Value, path: &str) -> Option<&'a Value> {

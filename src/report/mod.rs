@@ -4,6 +4,7 @@
 //! plain counts and fractions. Only the `run` object depends on the machine;
 //! everything else is a pure function of the scenario and seed.
 
+pub mod firmware;
 pub mod invariants;
 pub mod json;
 pub mod tallies;
@@ -32,10 +33,13 @@ pub struct Report {
     pub throughput: Throughput,
     pub latency_s: Latency,
     pub contention: Contention,
+    pub handover: firmware::HandoverFigures,
     pub floating: Floating,
     pub utilization: Utilization,
     pub line: LineFigures,
     pub scheme: SchemeReport,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub uart: Option<firmware::UartFigures>,
     pub warnings: Vec<Warning>,
     /// Set when simulated time stopped advancing: the run ended there.
     #[serde(skip_serializing_if = "Option::is_none")]
@@ -205,7 +209,11 @@ impl Report {
         };
         let utilization = t.utilization();
         let line_fig = crate::line::figures::line_figures(spec, line);
-        let warnings = warnings(w, &contention, &floating, &frames);
+        let uart = firmware::UartFigures::of(w);
+        let mut warnings = warnings(w, &contention, &floating, &frames);
+        if let Some(u) = &uart {
+            uart_warnings(u, &mut warnings);
+        }
         Report {
             schema: SCHEMA,
             scenario: ScenarioId {
@@ -219,10 +227,12 @@ impl Report {
             throughput,
             latency_s: latency,
             contention,
+            handover: firmware::HandoverFigures::of(w),
             floating,
             utilization,
             line: line_fig,
             scheme,
+            uart,
             warnings,
             stalled_at_s: None,
             aborted_at_s: None,
@@ -236,6 +246,34 @@ impl Report {
         self.run.wall_s = wall_s;
         self.run.events_per_s = if wall_s > 0.0 { self.run.events as f64 / wall_s } else { 0.0 };
     }
+}
+
+fn uart_warnings(u: &firmware::UartFigures, out: &mut Vec<Warning>) {
+    let mut say = |code: &'static str, n: u64, what: &str| {
+        if n > 0 {
+            out.push(Warning { code, node: None, message: format!("{n} {what}") });
+        }
+    };
+    say(
+        "cut-frames",
+        u.cut_frames,
+        "frames lost their first or last bit to the driver enable (enable_lead, release_after_stop): framing errors at every receiver",
+    );
+    say(
+        "char-timeouts",
+        u.char_timeouts,
+        "deliveries discarded: a gap between characters was longer than frame.char_timeout",
+    );
+    say(
+        "silence-violations",
+        u.silence_violations,
+        "deliveries lost: the frame started less than frame.silence after the one before it, so the receiver merged them",
+    );
+    say(
+        "unsettled-frames",
+        u.unsettled_frames,
+        "deliveries from auto-direction drivers received wrong: the bias does not settle the recessive bits within a bit",
+    );
 }
 
 fn warnings(w: &World, c: &Contention, f: &Floating, frames: &Frames) -> Vec<Warning> {

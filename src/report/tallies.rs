@@ -46,6 +46,25 @@ pub struct Tallies {
     pub latency: LatencyTally,
     /// Per source node that has traffic.
     pub latency_nodes: BTreeMap<String, LatencyTally>,
+    #[serde(default)]
+    pub handovers: u64,
+    /// The smallest hand-over slack (ps, signed; none without a hand-over).
+    #[serde(default)]
+    pub handover_slack_min_ps: Option<i64>,
+    #[serde(default)]
+    pub handovers_contended: u64,
+    /// UART framing faults, when the report has a `uart` object.
+    #[serde(default)]
+    pub uart: Option<UartTally>,
+}
+
+/// The `uart` counters, for merging.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
+pub struct UartTally {
+    pub cut_frames: u64,
+    pub char_timeouts: u64,
+    pub silence_violations: u64,
+    pub unsettled_frames: u64,
 }
 
 impl Default for LatencyTally {
@@ -95,12 +114,28 @@ impl Tallies {
             util_wasted_ps: u.wasted,
             latency: st.latency_all.tally(),
             latency_nodes,
+            handovers: w.bus.handover.all.count,
+            handover_slack_min_ps: w.bus.handover.all.min,
+            handovers_contended: w.bus.handover.all.contended,
+            uart: super::firmware::UartFigures::of(w).map(|u| UartTally {
+                cut_frames: u.cut_frames,
+                char_timeouts: u.char_timeouts,
+                silence_violations: u.silence_violations,
+                unsettled_frames: u.unsettled_frames,
+            }),
         }
     }
 
     /// The names [`Tallies::metrics`] gives for a run of `spec`.
     pub fn metric_names(spec: &crate::spec::Spec) -> Vec<String> {
-        let mut t = Tallies::default();
+        let mut t = Tallies { handover_slack_min_ps: Some(0), ..Tallies::default() };
+        let timed = spec.nodes.iter().any(|n| {
+            let t = &n.transceiver;
+            t.enable_lead.is_some() || t.release_after_stop != 0 || t.react_at != crate::spec::ReactAt::FrameEnd
+        });
+        if spec.frame.encoding.uart().is_some() || timed {
+            t.uart = Some(UartTally::default());
+        }
         for n in spec.nodes.iter().filter(|n| !n.traffic.is_empty()) {
             t.latency_nodes.insert(n.name.clone(), LatencyTally::default());
         }
@@ -140,6 +175,19 @@ impl Tallies {
                 None => t.clone(),
             };
             self.latency_nodes.insert(name.clone(), sum);
+        }
+        self.handovers += o.handovers;
+        self.handovers_contended += o.handovers_contended;
+        self.handover_slack_min_ps = match (self.handover_slack_min_ps, o.handover_slack_min_ps) {
+            (Some(a), Some(b)) => Some(a.min(b)),
+            (a, b) => a.or(b),
+        };
+        if let Some(b) = o.uart {
+            let a = self.uart.get_or_insert_with(UartTally::default);
+            a.cut_frames += b.cut_frames;
+            a.char_timeouts += b.char_timeouts;
+            a.silence_violations += b.silence_violations;
+            a.unsettled_frames += b.unsettled_frames;
         }
         Ok(())
     }
@@ -221,6 +269,12 @@ impl Tallies {
                 "longest_s": ps(u128::from(self.floating_longest_ps)),
             },
             "utilization": self.utilization(),
+            "handover": {
+                "count": self.handovers,
+                "contended": self.handovers_contended,
+                "slack_min_s": self.handover_slack_min_ps.map(|x| x as f64 * 1e-12),
+            },
+            "uart": self.uart,
         });
         let mut m = crate::check::flatten(&figures);
         put_latency(&mut m, "latency_s.all", &self.latency)?;

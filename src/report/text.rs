@@ -159,6 +159,48 @@ pub fn render_titled(r: &Report, title: &str, color: bool) -> String {
             format_si(e.position_m, "m")
         );
     }
+    let h = &r.handover;
+    match (h.slack_min_s, h.slack_p01_s) {
+        (Some(min), Some(p01)) => {
+            let line = format!(
+                "  slack: {} hand-overs, smallest {}, 1st percentile {}{}",
+                h.count,
+                format_seconds(min),
+                format_seconds(p01),
+                if h.contended > 0 { format!(", {} contended", h.contended) } else { String::new() }
+            );
+            let _ = writeln!(o, "{}", if min < 0.0 { st.bad.apply_to(line) } else { st.good.apply_to(line) });
+            for p in h.pairs.iter().take(3).filter(|_| h.pairs.len() > 1) {
+                let _ = writeln!(
+                    o,
+                    "    {} → {}: {} hand-overs, smallest {}, median {}",
+                    p.from,
+                    p.to,
+                    p.count,
+                    format_seconds(p.slack_min_s),
+                    format_seconds(p.slack_p50_s)
+                );
+            }
+            if h.pairs.len() > 3 {
+                let _ = writeln!(o, "    … {} pairs in all (--format json lists them)", h.pairs.len());
+            }
+        }
+        _ => {
+            let _ = writeln!(o, "  slack: no hand-over from one driver to another");
+        }
+    }
+    if let Some(u) = &r.uart {
+        let head = match (&u.character, u.char_s) {
+            (Some(c), Some(t)) => format!("  UART {c}, {} per character:", format_seconds(t)),
+            _ => "  enable timing:".to_owned(),
+        };
+        let line = format!(
+            "{head} {} cut frames, {} character timeouts, {} silence violations, {} unsettled",
+            u.cut_frames, u.char_timeouts, u.silence_violations, u.unsettled_frames
+        );
+        let bad = u.cut_frames + u.char_timeouts + u.silence_violations + u.unsettled_frames > 0;
+        let _ = writeln!(o, "{}", if bad { st.bad.apply_to(line) } else { st.good.apply_to(line) });
+    }
     let fl = &r.floating;
     if fl.hazard_receivers.is_empty() {
         let _ = writeln!(o, "  floating line: no receiver reads an idle line as undefined");

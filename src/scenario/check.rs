@@ -16,10 +16,20 @@ pub(crate) type R<T> = Result<T, ScenarioError>;
 /// such times stay far inside the u64 picosecond range.
 pub const MAX_TIME: Picos = Picos(1_000_000_000_000_000_000);
 
+/// The line's clock, once the frame is known: for times written in bit or
+/// character times (`"10 bit"`, `"3.5 char"`).
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct Clock {
+    pub bit_rate: f64,
+    /// A UART character's length in half bits (`None` without a UART encoding).
+    pub char_halves: Option<u64>,
+}
+
 /// The value checker: knows the file and its text, so errors can point into it.
 pub(crate) struct V<'a> {
     pub file: &'a str,
     pub src: &'a str,
+    pub clock: std::cell::Cell<Option<Clock>>,
 }
 
 impl<'a> V<'a> {
@@ -51,7 +61,10 @@ impl<'a> V<'a> {
     }
 
     pub fn time(&self, v: &S, key: &str) -> R<Picos> {
-        let t = units::parse_time(v.get_ref()).map_err(|e| self.err(v.span(), key, e.message))?;
+        let t = match self.clocked(v, key)? {
+            Some(t) => t,
+            None => units::parse_time(v.get_ref()).map_err(|e| self.err(v.span(), key, e.message))?,
+        };
         if t > MAX_TIME {
             return Err(self.err(
                 v.span(),
@@ -63,6 +76,66 @@ impl<'a> V<'a> {
             ));
         }
         Ok(t)
+    }
+
+    /// A time that may be negative (`"-0.5 bit"`), in signed picoseconds.
+    pub fn signed_time(&self, v: &S, key: &str) -> R<i64> {
+        let text = v.get_ref().trim();
+        let (negative, rest) = match text.strip_prefix('-') {
+            Some(r) => (true, r.trim_start()),
+            None => (false, text),
+        };
+        let t = self.time(&Spanned::new(v.span(), rest.to_owned()), key)?;
+        let ps = i64::try_from(t.0).expect("times are bounded far below 2^63 ps");
+        Ok(if negative { -ps } else { ps })
+    }
+
+    /// A time written in bit or character times, converted with the line's
+    /// clock; `None` when the unit is another (an SI time, or a mistake).
+    fn clocked(&self, v: &S, key: &str) -> R<Option<Picos>> {
+        let text = v.get_ref().trim();
+        let split = text.find(|c: char| c.is_alphabetic()).unwrap_or(text.len());
+        let (number, unit) = (text[..split].trim(), text[split..].trim());
+        let halves = |c: Clock| -> Option<Option<u64>> {
+            match unit {
+                "bit" | "bits" => Some(Some(2)),
+                "char" | "chars" => Some(c.char_halves),
+                _ => None,
+            }
+        };
+        if !matches!(unit, "bit" | "bits" | "char" | "chars") {
+            return Ok(None);
+        }
+        let Some(clock) = self.clock.get() else {
+            return Err(self.err(
+                v.span(),
+                key,
+                format!("\"{text}\": a time in bit or character times needs the bit rate, which is not known here; write it in seconds"),
+            ));
+        };
+        let Some(per) = halves(clock).expect("the unit was matched above") else {
+            return Err(self
+                .err(v.span(), key, format!("\"{text}\": a time in characters needs a UART encoding"))
+                .with_hint(
+                    "set frame.encoding = \"uart-8n1\" (or 8e1, 8n2, …), or write the time in bits or seconds",
+                ));
+        };
+        let x: f64 = number.parse().ok().filter(|x: &f64| x.is_finite() && *x >= 0.0).ok_or_else(|| {
+            self.err(
+                v.span(),
+                key,
+                format!("\"{text}\": write a number of {unit} of zero or more, e.g. \"3.5 {unit}\""),
+            )
+        })?;
+        let ps = (x * per as f64 * 1e12 / (2.0 * clock.bit_rate)).round();
+        if ps.is_nan() || ps > MAX_TIME.0 as f64 {
+            return Err(self.err(
+                v.span(),
+                key,
+                format!("\"{text}\" is longer than the longest supported time, 10^6 s (about 11.6 days)"),
+            ));
+        }
+        Ok(Some(Picos(ps as u64)))
     }
 
     /// A quantity that must lie in `lo..=hi` (SI base units), with the range in the message.

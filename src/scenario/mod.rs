@@ -6,7 +6,7 @@ pub mod edit;
 pub mod error;
 pub mod keypath;
 pub mod raw;
-mod transceiver;
+pub mod transceiver;
 pub mod validate;
 
 pub use error::ScenarioError;
@@ -68,17 +68,39 @@ pub fn read_bounded(r: impl std::io::Read, file: &str) -> Result<String, Scenari
 /// Values given on the command line in place of the scenario's own. They
 /// are written into the scenario text before validation, so an override is
 /// checked exactly as the same value in the file would be.
-#[derive(Clone, Debug, Default, PartialEq, Eq)]
+#[derive(Clone, Debug, Default, PartialEq)]
 pub struct Overrides {
     pub seed: Option<u64>,
     /// A time with its unit, as given (`"50 ms"`).
     pub duration: Option<String>,
+    /// Any key of the scenario, set to a value (`--set key=value`), in order.
+    pub set: Vec<(String, edit::Literal)>,
 }
 
 impl Overrides {
     pub fn is_empty(&self) -> bool {
-        self.seed.is_none() && self.duration.is_none()
+        self.seed.is_none() && self.duration.is_none() && self.set.is_empty()
     }
+}
+
+/// `key=value` from the command line: the value as TOML (`true`, `3`,
+/// `"3.5 char"`), or else as text (`3.5 char`).
+pub fn parse_assignment(arg: &str) -> Result<(String, edit::Literal), String> {
+    let (key, value) = arg
+        .split_once('=')
+        .ok_or_else(|| format!("--set {arg:?}: write key=value, e.g. --set 'access.turnaround=\"4 char\"'"))?;
+    let (key, value) = (key.trim(), value.trim());
+    if key.is_empty() {
+        return Err(format!("--set {arg:?}: no key before '='"));
+    }
+    let literal = match value.parse::<toml_edit::Value>() {
+        Ok(toml_edit::Value::Boolean(b)) => edit::Literal::Bool(*b.value()),
+        Ok(toml_edit::Value::Integer(i)) => edit::Literal::Int(*i.value()),
+        Ok(toml_edit::Value::Float(x)) => edit::Literal::Float(*x.value()),
+        Ok(toml_edit::Value::String(s)) => edit::Literal::Text(s.value().clone()),
+        _ => edit::Literal::Text(value.to_owned()),
+    };
+    Ok((key.to_owned(), literal))
 }
 
 /// Parse and validate scenario text with command-line overrides applied.
@@ -105,6 +127,9 @@ pub fn parse_with(text: &str, file: &str, o: &Overrides) -> Result<Spec, Scenari
     if let Some(d) = &o.duration {
         set(&mut doc, "duration", edit::Literal::Text(d.clone()), "--duration")?;
     }
+    for (key, value) in &o.set {
+        set(&mut doc, key, value.clone(), &format!("--set {key}"))?;
+    }
     parse_str(&doc.to_string(), file).map_err(|mut e| {
         let from = match e.key.as_str() {
             "duration" | "warmup" if o.duration.is_some() => Some("the duration given by --duration"),
@@ -113,6 +138,8 @@ pub fn parse_with(text: &str, file: &str, o: &Overrides) -> Result<Spec, Scenari
         };
         if let Some(what) = from {
             e.message = format!("{} (with {what})", e.message);
+        } else if let Some((k, _)) = o.set.iter().find(|(k, _)| e.key == *k || e.key.starts_with(&format!("{k}."))) {
+            e.message = format!("{} (with the value given by --set {k})", e.message);
         }
         e
     })

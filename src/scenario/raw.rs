@@ -88,6 +88,9 @@ pub struct RawTransceiver {
     pub common_mode: Option<Spanned<Vec<S>>>,
     pub offset: Option<Spanned<RawTime>>,
     pub edge_fraction: Option<Spanned<f64>>,
+    pub enable_lead: Option<S>,
+    pub release_after_stop: Option<S>,
+    pub react_at: Option<S>,
     pub enable_time: Option<Spanned<RawTime>>,
     pub disable_time: Option<Spanned<RawTime>>,
     pub receiver_delay: Option<Spanned<RawTime>>,
@@ -103,6 +106,9 @@ pub struct RawFrame {
     pub overhead_bits: Option<Spanned<u64>>,
     pub encoding: Option<S>,
     pub interframe_gap: Option<S>,
+    pub char_gap: Option<Spanned<RawLatency>>,
+    pub char_timeout: Option<S>,
+    pub silence: Option<S>,
 }
 
 /// `[access]`: the keys of every scheme; validation rejects the ones that do

@@ -9,7 +9,7 @@ use super::check::{R, V};
 use super::raw::{RawTime, RawTransceiver, S};
 use crate::line::family::{self, Family};
 use crate::line::ReceiverClass;
-use crate::spec::{Driver, TimeRange, Timing, Transceiver, UNIT_LOAD_OHM};
+use crate::spec::{Driver, ReactAt, TimeRange, Timing, Transceiver, UNIT_LOAD_OHM};
 use crate::units::{Dimension, Picos};
 
 /// The longest enable, disable or receiver time (1 s): transceivers take
@@ -18,7 +18,7 @@ use crate::units::{Dimension, Picos};
 pub const MAX_TRANSCEIVER_TIME: Picos = Picos(1_000_000_000_000);
 
 const RECEIVERS: &[&str] = &["type1", "type2", "lvds", "tia485"];
-const DRIVERS: &[&str] = &["current", "voltage"];
+const DRIVERS: &[&str] = &["current", "voltage", "auto-direction"];
 
 /// Where a key's value came from.
 struct Levels<'a> {
@@ -88,7 +88,7 @@ impl<'a> Levels<'a> {
     }
 }
 
-pub fn resolve(
+pub(crate) fn resolve(
     timing: Timing,
     v: &V,
     defaults: &RawTransceiver,
@@ -190,7 +190,47 @@ pub fn resolve(
         }
         None => l.family.as_ref().map_or(family::DEFAULT_EDGE_FRACTION, |f| f.edge_fraction),
     };
+    let auto_direction = l.get(|t| &t.driver, "driver").is_some_and(|(s, _)| s.get_ref().trim() == "auto-direction");
+    let enable_lead = match l.get(|t| &t.enable_lead, "enable_lead") {
+        Some((s, k)) => Some(bounded(v, &s, &k, v.time(&s, &k)?)?),
+        None => None,
+    };
+    let release_after_stop = match l.get(|t| &t.release_after_stop, "release_after_stop") {
+        Some((s, k)) => {
+            let t = v.signed_time(&s, &k)?;
+            bounded(v, &s, &k, Picos(t.unsigned_abs()))?;
+            t
+        }
+        None => 0,
+    };
+    if auto_direction {
+        for (set, name) in [(enable_lead.is_some(), "enable_lead"), (release_after_stop != 0, "release_after_stop")] {
+            if set {
+                let (s, k) = match name {
+                    "enable_lead" => l.get(|t| &t.enable_lead, name),
+                    _ => l.get(|t| &t.release_after_stop, name),
+                }
+                .expect("the key was read above");
+                return Err(v.err(
+                    s.span(),
+                    &k,
+                    format!("node \"{node}\" has an auto-direction transceiver: its driver follows the data, so there is no enable for firmware to time ({name})"),
+                ));
+            }
+        }
+    }
+    let react_at = match l.get(|t| &t.react_at, "react_at") {
+        Some((s, k)) => match v.choice(&s, &k, &["frame-end", "stop-sample"])? {
+            "stop-sample" => ReactAt::StopSample,
+            _ => ReactAt::FrameEnd,
+        },
+        None => ReactAt::FrameEnd,
+    };
     Ok(Transceiver {
+        enable_lead,
+        release_after_stop,
+        react_at,
+        auto_direction,
         driver,
         driver_typical,
         driver_max,
@@ -211,6 +251,21 @@ pub fn resolve(
         common_mode_v,
         family: l.family.as_ref().map(|f| f.name.to_owned()),
     })
+}
+
+/// A firmware time within the transceiver-time bound (1 s).
+fn bounded(v: &V, s: &S, key: &str, t: Picos) -> R<Picos> {
+    if t > MAX_TRANSCEIVER_TIME {
+        return Err(v.err(
+            s.span(),
+            key,
+            format!(
+                "\"{}\" is longer than the longest transceiver time supported, {MAX_TRANSCEIVER_TIME}",
+                s.get_ref().trim()
+            ),
+        ));
+    }
+    Ok(t)
 }
 
 fn pair(v: &V, list: &Spanned<Vec<S>>, key: &str, msg: &str) -> R<(f64, f64)> {
@@ -242,11 +297,17 @@ fn driver(l: &Levels) -> R<(Driver, Driver, Driver)> {
         None => None,
     };
     let one = |d: Driver| (d, d, d);
-    let kind = match l.get(|t| &t.driver, "driver") {
-        Some((s, k)) => v.choice(&s, &k, DRIVERS)?,
-        None if current.is_some() => "current",
-        None if voc.is_some() || min.is_some() => "voltage",
-        None => match l.family.as_ref().map(|f| f.driver_min) {
+    // An auto-direction part drives dominant bits like any other: its
+    // levels come from the other keys (or the family).
+    let named = match l.get(|t| &t.driver, "driver") {
+        Some((s, k)) => Some(v.choice(&s, &k, DRIVERS)?),
+        None => None,
+    };
+    let kind = match named {
+        Some(k) if k != "auto-direction" => k,
+        _ if current.is_some() => "current",
+        _ if voc.is_some() || min.is_some() => "voltage",
+        _ => match l.family.as_ref().map(|f| f.driver_min) {
             Some(Driver::Current { .. }) => "current",
             Some(Driver::Voltage { .. }) => "voltage",
             None => {

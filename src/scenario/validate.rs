@@ -33,13 +33,13 @@ pub const MAX_DELAY_S_PER_M: f64 = 1e-6;
 /// Speed of light in vacuum (m/s), exact by the SI definition.
 const C_M_PER_S: f64 = 299_792_458.0;
 
-const ENCODINGS: &[&str] = &["nrz", "8b10b", "uart-8n1", "manchester"];
+const ENCODINGS: &[&str] = &["nrz", "8b10b", "manchester", "uart-8n1"];
 const PATTERNS: &[&str] = &["poisson", "periodic"];
 const TERMINATIONS: &[&str] = &["both-ends", "far-end", "none"];
 
 /// Validate a parsed scenario. `file` names it in errors; `src` is its text.
 pub fn validate(raw: &RawScenario, file: &str, src: &str) -> R<Spec> {
-    let v = V { file, src };
+    let v = V { file, src, clock: std::cell::Cell::new(None) };
     let name = raw.name.as_ref().map(|n| n.get_ref().clone()).unwrap_or_else(|| {
         std::path::Path::new(file)
             .file_stem()
@@ -47,6 +47,8 @@ pub fn validate(raw: &RawScenario, file: &str, src: &str) -> R<Spec> {
             .unwrap_or_else(|| "scenario".into())
     });
     let seed = raw.seed.as_ref().map(|s| *s.get_ref()).unwrap_or(1);
+    // The frame first: it sets the clock for times written in bits or characters.
+    let frame = validate_frame(&v, raw.frame.get_ref())?;
     let duration = v.time(&raw.duration, "duration")?;
     if duration == Picos::ZERO {
         return Err(v.err(raw.duration.span(), "duration", "duration must be greater than zero"));
@@ -65,7 +67,6 @@ pub fn validate(raw: &RawScenario, file: &str, src: &str) -> R<Spec> {
         },
     };
     let line = validate_line(&v, raw.line.get_ref(), raw.line.span())?;
-    let frame = validate_frame(&v, raw.frame.get_ref())?;
     let nodes = validate_nodes(&v, raw, &line, timing)?;
     check_frame_times(&v, raw, &frame, &nodes)?;
     check_unique_ids(&v, raw, &nodes)?;
@@ -75,7 +76,76 @@ pub fn validate(raw: &RawScenario, file: &str, src: &str) -> R<Spec> {
     let spec = Spec { expect, name, seed, duration, warmup, timing, line, frame, nodes, access };
     check_recessive(&v, raw, &spec)?;
     check_external(&v, raw, &spec)?;
+    check_firmware_timing(&v, raw, &spec)?;
     Ok(spec)
+}
+
+/// Every transceiver table of the file with the key path it sits at.
+fn transceiver_tables(raw: &RawScenario) -> Vec<(&RawTransceiver, String)> {
+    let mut out: Vec<(&RawTransceiver, String)> = Vec::new();
+    if let Some(t) = &raw.transceiver {
+        out.push((t, "transceiver".into()));
+    }
+    if let Some(t) = raw.nodes.as_ref().and_then(|r| r.get_ref().transceiver.as_ref()) {
+        out.push((t, "nodes.transceiver".into()));
+    }
+    for (i, n) in raw.node.iter().flatten().enumerate() {
+        if let Some(t) = &n.get_ref().transceiver {
+            out.push((t, format!("node[{i}].transceiver")));
+        }
+    }
+    out
+}
+
+/// Firmware enable timing and auto-direction parts: what the schemes and
+/// encodings that model them can take, and frame gaps the silence rule allows.
+fn check_firmware_timing(v: &V, raw: &RawScenario, spec: &Spec) -> R<()> {
+    let f = raw.frame.get_ref();
+    if let (Some(si), Some(raw_si)) = (spec.frame.silence, &f.silence) {
+        if spec.frame.interframe_gap < si {
+            return Err(v
+                .err(
+                    f.interframe_gap.as_ref().map_or(raw_si.span(), |g| g.span()),
+                    if f.interframe_gap.is_some() { "frame.interframe_gap" } else { "frame.silence" },
+                    format!(
+                        "frame.interframe_gap ({}) is shorter than frame.silence ({si}): back-to-back frames of one driver would merge at every receiver",
+                        spec.frame.interframe_gap
+                    ),
+                )
+                .with_hint("set frame.interframe_gap to at least the silence, e.g. interframe_gap = \"3.5 char\""));
+        }
+    }
+    let scheme_ok = matches!(spec.access, AccessSpec::Polling(_) | AccessSpec::Token(_));
+    for (t, path) in transceiver_tables(raw) {
+        let keys = [
+            ("enable_lead", t.enable_lead.as_ref().map(|x| x.span())),
+            ("release_after_stop", t.release_after_stop.as_ref().map(|x| x.span())),
+            ("react_at", t.react_at.as_ref().map(|x| x.span())),
+            ("driver", t.driver.as_ref().filter(|d| d.get_ref().trim() == "auto-direction").map(|x| x.span())),
+        ];
+        for (key, span) in keys {
+            let Some(span) = span else { continue };
+            let what = if key == "driver" { "an auto-direction driver".to_owned() } else { key.to_owned() };
+            if !scheme_ok {
+                return Err(v
+                    .err(
+                        span,
+                        &format!("{path}.{key}"),
+                        format!(
+                            "{what} is modelled under polling and token passing (where firmware times each hand-over), not {}",
+                            spec.access.name()
+                        ),
+                    )
+                    .with_hint("remove the key, or model the bus with scheme = \"polling\" or \"token\""));
+            }
+            if key == "driver" && spec.frame.encoding.uart().is_none() {
+                return Err(v
+                    .err(span, &format!("{path}.{key}"), "an auto-direction driver follows UART characters (start bit dominant, idle recessive): it needs a UART encoding")
+                    .with_hint("set frame.encoding = \"uart-8n1\" (or 8e1, 8n2, …)"));
+            }
+        }
+    }
+    Ok(())
 }
 
 /// External nodes stand in for polling slaves: the master, and the nodes of
@@ -372,22 +442,20 @@ fn check_arrival_count(v: &V, raw: &RawScenario, nodes: &[NodeSpec], duration: P
     Ok(())
 }
 
-/// Does a frame of `line_bits` line bits last at most the longest supported time?
-pub(crate) fn fits_time(frame: &FrameFormat, line_bits: u64) -> bool {
-    line_bits as f64 / frame.bit_rate <= MAX_TIME.as_secs_f64()
+/// Does a frame of `data_bits` last at most the longest supported time (with its longest character gaps)?
+pub(crate) fn fits_time(frame: &FrameFormat, data_bits: u64) -> bool {
+    frame.wire_max_s(data_bits) <= MAX_TIME.as_secs_f64()
 }
 
 /// The longest data frame must fit the supported time range.
 fn check_frame_times(v: &V, raw: &RawScenario, frame: &FrameFormat, nodes: &[NodeSpec]) -> R<()> {
     let longest = nodes.iter().map(NodeSpec::longest_payload_bits).max().unwrap_or(0);
-    let line_bits = frame.data_line_bits(longest);
-    if !fits_time(frame, line_bits) {
+    let bits = frame.overhead_bits + longest;
+    if !fits_time(frame, bits) {
         return Err(v.err(
             raw.frame.get_ref().bit_rate.span(),
             "frame.bit_rate",
-            format!(
-                "at this bit rate the longest data frame ({line_bits} line bits) would last longer than {MAX_TIME}"
-            ),
+            format!("at this bit rate the longest data frame ({bits} data bits) would last longer than 10^6 s"),
         ));
     }
     Ok(())
@@ -403,19 +471,94 @@ fn validate_frame(v: &V, f: &RawFrame) -> R<FrameFormat> {
     }
     let encoding = match &f.encoding {
         None => Encoding::Nrz,
-        Some(e) => match v.choice(e, "frame.encoding", ENCODINGS)? {
-            "nrz" => Encoding::Nrz,
-            "8b10b" => Encoding::B8b10b,
-            "uart-8n1" => Encoding::Uart8n1,
-            _ => Encoding::Manchester,
+        Some(e) => encoding(v, e)?,
+    };
+    v.clock.set(Some(super::check::Clock { bit_rate, char_halves: encoding.uart().map(|u| u.char_halves()) }));
+    let uart_only = |field: Option<std::ops::Range<usize>>, key: &str| -> R<()> {
+        match field {
+            Some(span) if encoding.uart().is_none() => Err(v
+                .err(span, &format!("frame.{key}"), format!("{key} applies to UART framing only"))
+                .with_hint("set frame.encoding = \"uart-8n1\" (or 8e1, 8n2, …)")),
+            _ => Ok(()),
+        }
+    };
+    uart_only(f.char_gap.as_ref().map(|x| x.span()), "char_gap")?;
+    uart_only(f.char_timeout.as_ref().map(|x| x.span()), "char_timeout")?;
+    uart_only(f.silence.as_ref().map(|x| x.span()), "silence")?;
+    let char_gap = match &f.char_gap {
+        None => CharGap::None,
+        Some(g) => match super::check::latency(v, g, "frame.char_gap")? {
+            Latency::Fixed(t) if t == Picos::ZERO => CharGap::None,
+            Latency::Fixed(t) => CharGap::Fixed(t),
+            // Each draw is capped (a gap that long would end the run anyway).
+            l => {
+                let cap = match l {
+                    Latency::Uniform { max, .. } => max,
+                    Latency::Normal { mean, sd } => mean.saturating_add(Picos(sd.0.saturating_mul(10))),
+                    Latency::Exponential { mean } => Picos(mean.0.saturating_mul(50)),
+                    Latency::Fixed(t) => t,
+                };
+                CharGap::Random { latency: l, cap: cap.min(MAX_TIME) }
+            }
         },
     };
+    let char_timeout = f.char_timeout.as_ref().map(|t| v.time(t, "frame.char_timeout")).transpose()?;
+    let silence = f.silence.as_ref().map(|t| v.time(t, "frame.silence")).transpose()?;
+    if let (Some(ct), Some(si), Some(raw)) = (char_timeout, silence, &f.char_timeout) {
+        if ct > si {
+            return Err(v.err(
+                raw.span(),
+                "frame.char_timeout",
+                format!("char_timeout ({ct}) is longer than silence ({si}): a gap that ends a frame must be longer than one inside it"),
+            ));
+        }
+    }
     Ok(FrameFormat {
         bit_rate,
         overhead_bits: f.overhead_bits.as_ref().map(|o| *o.get_ref()).unwrap_or(0),
         encoding,
         interframe_gap: v.opt_time(&f.interframe_gap, "frame.interframe_gap", Picos::ZERO)?,
+        char_gap,
+        char_timeout,
+        silence,
     })
+}
+
+/// `frame.encoding`: a word, or `uart-<data><parity><stop>` (`uart-8e1`, `uart-7o2`, `uart-8n1.5`).
+fn encoding(v: &V, e: &S) -> R<Encoding> {
+    let text = e.get_ref().trim();
+    let Some(spec) = text.strip_prefix("uart-") else {
+        return Ok(match v.choice(e, "frame.encoding", ENCODINGS)? {
+            "nrz" => Encoding::Nrz,
+            "8b10b" => Encoding::B8b10b,
+            _ => Encoding::Manchester,
+        });
+    };
+    let bad = |msg: String| {
+        v.err(e.span(), "frame.encoding", msg)
+            .with_hint("write uart-<data bits 5–9><parity n, e, o, m or s><stop bits 1, 1.5 or 2>, e.g. uart-8e1")
+    };
+    let digits: String = spec.chars().take_while(char::is_ascii_digit).collect();
+    let data: u8 = digits.parse().map_err(|_| bad(format!("\"{text}\": no data bit count")))?;
+    if !(5..=9).contains(&data) {
+        return Err(bad(format!("\"{text}\": a UART character has 5 to 9 data bits, not {data}")));
+    }
+    let rest = &spec[digits.len()..];
+    let parity = match rest.chars().next() {
+        Some('n') => Parity::None,
+        Some('e') => Parity::Even,
+        Some('o') => Parity::Odd,
+        Some('m') => Parity::Mark,
+        Some('s') => Parity::Space,
+        _ => return Err(bad(format!("\"{text}\": the parity is n (none), e, o, m or s"))),
+    };
+    let stop_halves = match &rest[1..] {
+        "1" => 2,
+        "1.5" => 3,
+        "2" => 4,
+        other => return Err(bad(format!("\"{text}\": {other:?} stop bits; a UART has 1, 1.5 or 2"))),
+    };
+    Ok(Encoding::Uart(Uart { data, parity, stop_halves }))
 }
 
 /// A node before its traffic destinations are resolved.

@@ -56,7 +56,7 @@ impl Aloha {
         w.count_access_attempt();
         let frame = FrameOut::data(f.msg, w.spec().frame.overhead_bits);
         let tx = w.transmit(node, at, &[frame]);
-        w.set_timer(node, tx.release + self.spec.ack_timeout, OUTCOME);
+        w.set_timer(node, tx.last_bit + self.spec.ack_timeout, OUTCOME);
     }
 
     fn next_message(&mut self, w: &mut World, node: NodeId) {

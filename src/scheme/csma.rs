@@ -168,7 +168,7 @@ impl Csma {
             self.timer(w, node, tx.release, DONE);
             self.arm_detection(w, node, tx.occupancy, tx.enable, tx.release);
         } else {
-            self.timer(w, node, tx.release + self.spec.ack_timeout, OUTCOME);
+            self.timer(w, node, tx.last_bit + self.spec.ack_timeout, OUTCOME);
         }
     }
 

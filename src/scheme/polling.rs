@@ -103,7 +103,7 @@ impl Polling {
         let poll = FrameOut::control(FrameKind::Poll, Dest::Node(slave), self.spec.request_bits);
         let tx = w.transmit(master, now, &[poll]);
         self.current_poll = tx.occupancy;
-        self.deadline = tx.release + self.spec.reply_timeout;
+        self.deadline = tx.last_bit + self.spec.reply_timeout;
         debug!(t_ps = now.0, master = %w.spec().nodes[master].name, slave = %w.spec().nodes[slave].name, "poll");
         // If the slave cannot even see the poll before the deadline, the timeout
         // is certain to fire first: arm it now. Otherwise it is armed, when
@@ -117,7 +117,7 @@ impl Polling {
             w.set_timer(master, self.deadline, EXTERNAL_TIMEOUT + self.poll_seq);
             return;
         }
-        self.timeout_armed = w.seen_at(master, slave, tx.release) > self.deadline;
+        self.timeout_armed = w.reacts_at(master, slave, tx.last_bit) > self.deadline;
         if self.timeout_armed {
             w.set_timer(master, self.deadline, TIMEOUT);
         }
@@ -176,7 +176,7 @@ impl Polling {
             self.no_reply(w, poll);
         } else {
             let master_wait = self.spec.turnaround[master] + sample_latency(&self.spec.response_latency, w.rng(master));
-            let next = w.seen_at(slave, master, tx.release) + master_wait;
+            let next = w.reacts_at(slave, master, tx.last_bit) + master_wait;
             w.set_timer(master, next, NEXT_POLL);
         }
     }
@@ -261,7 +261,7 @@ impl AccessScheme for Polling {
         }
         self.awaiting_external = false;
         let master_wait = self.spec.turnaround[master] + sample_latency(&self.spec.response_latency, w.rng(master));
-        let next = w.seen_at(slave, master, tx.release) + master_wait;
+        let next = w.reacts_at(slave, master, tx.last_bit) + master_wait;
         w.set_timer(master, next, NEXT_POLL);
     }
 

@@ -101,13 +101,14 @@ impl Tdma {
         let now = w.earliest_enable(node);
         let frame = w.spec().frame.clone();
         let overhead = frame.overhead_bits;
-        let mut cursor = now + w.spec().nodes[node].transceiver.enable_time;
+        let mut cursor = now + w.enable_lead(node);
         let mut sent = 0;
         while w.queue_len(node) > 0 {
             let msg = w.pop_message(node).expect("queue checked");
             let f = FrameOut::data(msg, overhead);
             let gap = if sent > 0 { frame.interframe_gap } else { Picos::ZERO };
-            let f_end = cursor + gap + frame.duration(frame.encoding.line_bits(f.data_bits));
+            // A frame goes out only if its longest duration fits the slot.
+            let f_end = cursor + gap + frame.wire_max(f.data_bits);
             if f_end > end {
                 w.push_front(node, msg);
                 break;
@@ -165,12 +166,12 @@ impl AccessScheme for Tdma {
             BEACON => {
                 let beacon = FrameOut::control(FrameKind::Beacon, Dest::All, self.spec.beacon_bits);
                 let tx = w.transmit(node, w.now(), &[beacon]);
-                self.beacon_release = tx.release;
+                self.beacon_release = tx.last_bit;
                 if w.in_window(w.now()) {
                     self.beacons += 1;
                 }
                 // The timekeeper knows its own beacon's end exactly.
-                self.resync(w, node, tx.release);
+                self.resync(w, node, tx.last_bit);
                 self.schedule_beacon(w, n + 1);
             }
             SLOT => self.run_slot(w, node, n as usize),

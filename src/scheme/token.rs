@@ -94,7 +94,7 @@ impl Token {
             n => n as usize,
         };
         let overhead = w.spec().frame.overhead_bits;
-        let first_bit = enable + w.spec().nodes[node].transceiver.enable_time;
+        let first_bit = enable + w.enable_lead(node);
         let mut end = first_bit;
         let mut sent = 0usize;
         w.begin_tx(node, enable);
@@ -102,7 +102,7 @@ impl Token {
             let msg = w.pop_message(node).expect("queue checked");
             let frame = FrameOut::data(msg, overhead);
             let gap = if sent > 0 { w.spec().frame.interframe_gap } else { Picos::ZERO };
-            let frame_end = end + gap + w.spec().frame.duration(w.spec().frame.encoding.line_bits(frame.data_bits));
+            let frame_end = end + gap + w.spec().frame.wire_max(frame.data_bits);
             if let Some(hold) = self.spec.token_hold {
                 if sent > 0 && frame_end - enable > hold {
                     w.push_front(node, msg);
@@ -123,7 +123,7 @@ impl Token {
         if self.next_fault < self.spec.lose_token_at.len() && self.spec.lose_token_at[self.next_fault] <= enable {
             self.next_fault += 1;
             self.lost = Some(tx.occupancy);
-            self.lost_at = Some(tx.release);
+            self.lost_at = Some(tx.last_bit);
             if w.in_window(enable) {
                 self.lost_tokens += 1;
             }

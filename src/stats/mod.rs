@@ -2,6 +2,7 @@
 
 pub mod latency;
 pub mod replication;
+pub mod slack;
 pub mod utilization;
 
 pub use latency::{LatencyStats, LatencySummary};
@@ -26,10 +27,25 @@ pub struct FrameCounters {
     pub control_corrupted: u64,
 }
 
+/// UART framing faults over the measured window.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub struct UartCounters {
+    /// Frames whose first or last bit the enable cut by half a bit or more.
+    pub cut_frames: u64,
+    /// Deliveries discarded for a gap between characters past `char_timeout`.
+    pub char_timeouts: u64,
+    /// Deliveries lost for starting less than `silence` after the previous frame.
+    pub silence_violations: u64,
+    /// Deliveries from an auto-direction driver whose recessive bits did not
+    /// settle within a bit at the receiver.
+    pub unsettled_frames: u64,
+}
+
 /// Everything the engine accumulates.
 #[derive(Debug)]
 pub struct Stats {
     pub frames: FrameCounters,
+    pub uart: UartCounters,
     /// Payload bits of delivered data frames.
     pub payload_bits: u128,
     /// On-wire time of delivered data frames (ps).
@@ -48,6 +64,7 @@ impl Stats {
     pub fn new(nodes: usize) -> Self {
         Stats {
             frames: FrameCounters::default(),
+            uart: UartCounters::default(),
             payload_bits: 0,
             carried_ps: 0,
             data_wire_ps: 0,

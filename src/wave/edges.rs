@@ -5,7 +5,7 @@
 use super::{ContentionSpan, FrameSpan, Level, Occupancy, Signal, Value, WaveSink};
 use crate::bus::trace::{BusEvent, BusEventKind};
 use crate::line::{IdleState, LineModel};
-use crate::spec::{Encoding, Spec};
+use crate::spec::{Encoding, FrameFormat, Parity, Spec, Uart};
 
 #[derive(Clone, Copy, Debug)]
 enum Kind {
@@ -38,7 +38,9 @@ pub struct WaveModel<S: WaveSink> {
     max_shift: u64,
     idle: Vec<Level>,
     bit_rate: f64,
-    encoding: Encoding,
+    frame: FrameFormat,
+    /// Per node: an auto-direction transceiver.
+    auto: Vec<bool>,
     open: Vec<Vec<FrameSpan>>,
     enable_at: Vec<(u64, bool)>,
     release_at: Vec<u64>,
@@ -89,7 +91,8 @@ impl<S: WaveSink> WaveModel<S> {
             shift,
             idle,
             bit_rate: spec.frame.bit_rate,
-            encoding: spec.frame.encoding,
+            frame: spec.frame.clone(),
+            auto: spec.nodes.iter().map(|n| n.transceiver.auto_direction).collect(),
             open: vec![Vec::new(); nodes],
             enable_at: vec![(0, false); nodes],
             release_at: vec![0; nodes],
@@ -116,8 +119,8 @@ impl<S: WaveSink> WaveModel<S> {
         for ev in events {
             let n = ev.node;
             match ev.kind {
-                BusEventKind::FrameStart { frame, to } => {
-                    self.open[n].push(FrameSpan { s: ev.t, e: u64::MAX, kind: frame, to, corrupted: false })
+                BusEventKind::FrameStart { frame, to, gap_seed } => {
+                    self.open[n].push(FrameSpan { s: ev.t, e: u64::MAX, kind: frame, to, corrupted: false, gap_seed })
                 }
                 BusEventKind::FrameEnd { corrupted, .. } => {
                     // A broadcast ends once per receiver: the same frame, the same end.
@@ -147,7 +150,8 @@ impl<S: WaveSink> WaveModel<S> {
                         }
                     }
                     frames.sort_by_key(|f| f.s);
-                    let o = Occupancy { node: n, a, release: self.release_at[n], b, dominant, frames };
+                    let o =
+                        Occupancy { node: n, a, release: self.release_at[n], b, dominant, auto: self.auto[n], frames };
                     self.add_occupancy(&o);
                 }
                 BusEventKind::Contention { other, position_m, overlap_ps } => {
@@ -190,19 +194,31 @@ impl<S: WaveSink> WaveModel<S> {
                 continue;
             }
             self.push(o.a + sh, 2, Kind::Cover(r, n, true, o.dominant));
-            for &(t, l) in timeline.iter().filter(|(_, l)| *l != Level::Off) {
-                self.push(t + sh, 1, Kind::RxLevel(r, n, l));
+            for &(t, l) in &timeline {
+                match l {
+                    // An auto-direction driver's recessive bits: the idle line.
+                    Level::Off if o.auto && t < o.b => self.push(t + sh, 1, Kind::RxLevel(r, n, self.idle[r])),
+                    Level::Off => {}
+                    _ => self.push(t + sh, 1, Kind::RxLevel(r, n, l)),
+                }
             }
             self.push(o.b + sh, 0, Kind::Cover(r, n, false, o.dominant));
         }
     }
 
-    /// The level this occupancy's driver puts on the line, as (time, level) changes.
+    /// The level this occupancy's driver puts on the line, as (time, level)
+    /// changes; nothing after its output turns off.
     fn timeline(&self, o: &Occupancy) -> Vec<(u64, Level)> {
-        let idle = if o.dominant { Level::Low } else { Level::High };
+        // Between frames: the dominant level, the idle (high) level, or off
+        // for an auto-direction driver.
+        let idle = match (o.dominant, o.auto) {
+            (true, _) => Level::Low,
+            (_, true) => Level::Off,
+            _ => Level::High,
+        };
         let mut out = vec![(o.a, idle)];
         let put = |t: u64, l: Level, out: &mut Vec<(u64, Level)>| {
-            if out.last().is_some_and(|&(_, last)| last == l) {
+            if t >= o.b || out.last().is_some_and(|&(_, last)| last == l) {
                 return;
             }
             if out.last().is_some_and(|&(lt, _)| lt == t) {
@@ -210,15 +226,41 @@ impl<S: WaveSink> WaveModel<S> {
             }
             out.push((t, l));
         };
+        // An auto-direction driver lets the bias make its recessive (high) bits.
+        let drive = |l: Level| if o.auto && l == Level::High { Level::Off } else { l };
         for f in &o.frames {
-            let symbols = ((f.e.saturating_sub(f.s)) as f64 * self.bit_rate / 1e12).round() as u64;
-            for k in 0..symbols {
-                let t = f.s + (k as f64 * 1e12 / self.bit_rate).round() as u64;
-                put(t, symbol_level(self.encoding, f.s, o.node, k), &mut out);
+            match self.frame.encoding.uart() {
+                Some(u) => {
+                    let per = u.char_halves();
+                    let mut gaps = crate::engine::chars::Gaps::new(&self.frame.char_gap, f.gap_seed, u64::MAX);
+                    let mut gap_sum = 0;
+                    for k in 0.. {
+                        let start = f.s + self.frame.time_of_halves(k * per).0 + gap_sum;
+                        if start >= f.e {
+                            break;
+                        }
+                        for j in 0..(per / 2) {
+                            let t = start + self.frame.time_of_halves(2 * j).0;
+                            put(t, drive(uart_level(u, f.s, o.node, k, j)), &mut out);
+                        }
+                        put(start + self.frame.time_of_halves(per).0, idle, &mut out);
+                        gap_sum += gaps.next().unwrap_or(0);
+                    }
+                }
+                None => {
+                    let symbols = ((f.e.saturating_sub(f.s)) as f64 * self.bit_rate / 1e12).round() as u64;
+                    for k in 0..symbols {
+                        let t = f.s + (k as f64 * 1e12 / self.bit_rate).round() as u64;
+                        put(t, symbol_level(self.frame.encoding, f.s, o.node, k), &mut out);
+                    }
+                }
             }
             put(f.e, idle, &mut out);
         }
-        put(o.b, Level::Off, &mut out);
+        if out.last().is_some_and(|&(t, _)| t == o.b) {
+            out.pop();
+        }
+        out.push((o.b, Level::Off));
         out
     }
 
@@ -344,12 +386,31 @@ fn symbol_level(encoding: Encoding, s: u64, node: usize, k: u64) -> Level {
     match encoding {
         // IEEE 802.3 convention: a 1 is low then high, a 0 high then low.
         Encoding::Manchester => level(bit(k / 2) == (k % 2 == 1)),
-        Encoding::Uart8n1 => match k % 10 {
-            0 => Level::Low,
-            9 => Level::High,
-            _ => level(bit(k)),
+        // UART frames are laid out character by character (see `uart_level`).
+        Encoding::Nrz | Encoding::B8b10b | Encoding::Uart(_) => level(bit(k)),
+    }
+}
+
+/// Bit `j` of UART character `k` of the frame that starts at `s` on `node`:
+/// start bit low, data bits least significant first, parity, stop bits high.
+fn uart_level(u: Uart, s: u64, node: usize, k: u64, j: u64) -> Level {
+    let data = u64::from(u.data);
+    let byte = pattern(s, node, k) & ((1 << data) - 1);
+    let high = match j {
+        0 => false,
+        j if j <= data => byte >> (j - 1) & 1 == 1,
+        j if j == data + 1 && u.parity != Parity::None => match u.parity {
+            Parity::Even => byte.count_ones() % 2 == 1,
+            Parity::Odd => byte.count_ones().is_multiple_of(2),
+            Parity::Mark => true,
+            _ => false,
         },
-        Encoding::Nrz | Encoding::B8b10b => level(bit(k)),
+        _ => true,
+    };
+    if high {
+        Level::High
+    } else {
+        Level::Low
     }
 }
 
@@ -373,7 +434,7 @@ mod tests {
         let ev = |t, kind| BusEvent { t, node: 0, kind };
         let mut m = WaveModel::new(&spec, &line, (0, 2_000_000), Recording::new(n, (0, 2_000_000)));
         m.feed(&[
-            ev(s, K::FrameStart { frame: "poll", to: 1 }),
+            ev(s, K::FrameStart { frame: "poll", to: 1, gap_seed: 0 }),
             ev(e, K::FrameEnd { frame: "poll", to: 1, corrupted: false }),
             ev(a, K::DriverEnable { dominant: false }),
             ev(release, K::DriverRelease),
@@ -408,7 +469,7 @@ mod tests {
         let window = (1_108_000, 1_110_000);
         let mut m = WaveModel::new(&spec, &line, window, Recording::new(n, window));
         m.feed(&[
-            ev(1_007_000, K::FrameStart { frame: "poll", to: 1 }),
+            ev(1_007_000, K::FrameStart { frame: "poll", to: 1, gap_seed: 0 }),
             ev(1_107_000, K::FrameEnd { frame: "poll", to: 1, corrupted: false }),
             ev(1_000_000, K::DriverEnable { dominant: false }),
             ev(1_107_000, K::DriverRelease),

@@ -15,9 +15,11 @@
 //!
 //! Frame contents are not part of the bus model, so the symbols inside a frame
 //! carry a deterministic pseudo-random pattern (Manchester keeps a transition
-//! in every bit cell, UART framing keeps its start and stop bits). The timing
-//! of every edge is exact: symbol k of a frame starting at s begins at
-//! s + round(k / symbol rate).
+//! in every bit cell, UART framing keeps its start, parity and stop bits and
+//! the idle gaps between characters). The timing of every edge is exact:
+//! symbol k of a frame (or of a UART character) starting at s begins at
+//! s + round(k / symbol rate). An auto-direction driver's output is off
+//! during its recessive bits: receivers see the idle line there.
 //!
 //! Changes are produced in time order and handed to a [`WaveSink`] as soon
 //! as they are final, so memory is bounded by what the window holds.
@@ -91,6 +93,8 @@ pub struct FrameSpan {
     pub kind: &'static str,
     pub to: usize,
     pub corrupted: bool,
+    /// Seeds its random character gaps (see `engine::chars`).
+    pub gap_seed: u64,
 }
 
 /// One driver occupancy, at its driver.
@@ -104,6 +108,8 @@ pub struct Occupancy {
     /// Output off.
     pub b: u64,
     pub dominant: bool,
+    /// An auto-direction driver: on for dominant bits only.
+    pub auto: bool,
     pub frames: Vec<FrameSpan>,
 }
 

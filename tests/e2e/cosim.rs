@@ -150,6 +150,33 @@ fn a_client_that_enables_too_early_causes_the_same_contention_as_run() {
     assert_eq!(without_run(report), want);
 }
 
+#[test]
+fn a_client_that_releases_the_enable_early_cuts_its_frames_as_run_does() {
+    // The demo runs at 1 Mbit/s (8N1): releasing 600 ns before the last stop
+    // bit ends cuts more than half a bit; 400 ns is less than half a bit.
+    let dir = tempfile::tempdir().unwrap();
+    let run_file = dir.path().join("early-run.toml");
+    let text = std::fs::read_to_string(DEMO).unwrap();
+    for (release_ps, lost) in [("-600000", true), ("-400000", false)] {
+        let ns = release_ps.parse::<i64>().unwrap() / 1000;
+        std::fs::write(
+            &run_file,
+            text.replace(
+                "payload = \"12 B\" }\n\n[[node]]\nname = \"gate03\"",
+                &format!("payload = \"12 B\" }}\n[node.transceiver]\nrelease_after_stop = \"{ns} ns\"\n\n[[node]]\nname = \"gate03\""),
+            ),
+        )
+        .unwrap();
+        let s = start(DEMO, &[]);
+        assert!(run_example(s.port, "gate02", &["--release-after-stop-ps", release_ps]).success());
+        let (code, report, err) = end(s);
+        assert_eq!(code, Some(0), "{err}");
+        let want = reference(run_file.to_str().unwrap());
+        assert_eq!(report["uart"]["cut_frames"].as_u64().unwrap() > 0, lost, "{}", report["uart"]);
+        assert_eq!(without_run(report), want, "release {release_ps} ps");
+    }
+}
+
 /// A raw test client: connect, hello, welcome.
 struct Raw {
     r: BufReader<TcpStream>,

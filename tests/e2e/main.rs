@@ -22,3 +22,4 @@ mod sweep;
 mod tdma;
 mod token;
 mod trust;
+mod uart;

@@ -165,7 +165,7 @@ fn remove(doc: &mut DocumentMut, path: &[Step]) {
 
 const UNITS: &[&str] = &[
     "ps", "ns", "us", "ms", "s", "ks", "m", "mm", "in", "ohm", "kΩ", "V", "mV", "mA", "A", "pF", "uF", "Mbit/s",
-    "bit/s", "/s", "Hz", "B", "bit", "KiB", "ns/m", "", "furlong",
+    "bit/s", "/s", "Hz", "B", "bit", "KiB", "ns/m", "", "furlong", "char", "chars", "bits",
 ];
 const NUMBERS: &[&str] = &[
     "0",
@@ -206,7 +206,15 @@ const WORDS: &[&str] = &[
     "nrz",
     "8b10b",
     "uart-8n1",
+    "uart-8e1",
+    "uart-9o1.5",
+    "uart-5s2",
+    "uart-4n1",
+    "uart-8x1",
     "manchester",
+    "auto-direction",
+    "stop-sample",
+    "frame-end",
     "both-ends",
     "far-end",
     "none",
@@ -241,6 +249,18 @@ const KEYS: &[(&str, &str)] = &[
     ("transceiver.disable_time", "[\"0 s\", \"1 s\"]"),
     ("transceiver.receiver_delay", "\"1 s\""),
     ("nodes.count", "4096"),
+    ("frame.encoding", "\"uart-8e1\""),
+    ("frame.char_gap", "{ mean = \"1 char\" }"),
+    ("frame.char_gap", "\"1000000 s\""),
+    ("frame.char_timeout", "\"1.5 char\""),
+    ("frame.silence", "\"3.5 char\""),
+    ("frame.interframe_gap", "\"3.5 char\""),
+    ("transceiver.release_after_stop", "\"-0.5 bit\""),
+    ("transceiver.release_after_stop", "\"-1 s\""),
+    ("transceiver.enable_lead", "\"0 s\""),
+    ("transceiver.react_at", "\"stop-sample\""),
+    ("transceiver.driver", "\"auto-direction\""),
+    ("access.turnaround", "\"1 char\""),
 ];
 
 /// Apply one random mutation to `text`.

@@ -55,6 +55,21 @@ proptest! {
             prop_assert_eq!(f["corrupted"].as_u64().unwrap(), 0);
             prop_assert_eq!(u["wasted"].as_f64().unwrap(), 0.0);
         }
+        // Hand-over slack: negative exactly on the hand-overs that contend
+        // (the closed-form slack against the overlap geometry, pair by pair),
+        // and every contention here is a hand-over's.
+        let h = &j["handover"];
+        for p in h["pairs"].as_array().unwrap() {
+            let (min, contended) = (p["slack_min_s"].as_f64().unwrap(), p["contended"].as_u64().unwrap());
+            prop_assert_eq!(min < 0.0, contended > 0, "pair {}", p);
+        }
+        prop_assert_eq!(h["contended"].as_u64().unwrap() > 0, events > 0, "{} / {}", h, j["contention"]);
+        // Without contention the tightest hand-over is the shorter turnaround
+        // plus the receiver delay (5 ns) less the disable time (9 ns), exactly.
+        if !unsafe_handover && h["count"].as_u64().unwrap() > 0 {
+            let want = (turn_ns.min(mturn_ns) as i64 - 4) * 1000;
+            prop_assert_eq!((h["slack_min_s"].as_f64().unwrap() * 1e12).round() as i64, want);
+        }
         // No latency is shorter than a data frame's time on the wire (5.6 µs).
         let all = &j["latency_s"]["all"];
         if all["count"].as_u64().unwrap() > 0 {

@@ -216,7 +216,7 @@ impl<'a> Access<'a> {
         if self.nodes[n].traffic.is_empty() {
             return Picos::ZERO;
         }
-        self.frame.duration(self.frame.data_line_bits(self.nodes[n].longest_payload_bits()))
+        self.frame.data_time(self.nodes[n].longest_payload_bits())
     }
 
     /// One transmission of back-to-back data frames must fit the longest
@@ -280,7 +280,7 @@ impl<'a> Access<'a> {
         if bits > crate::scenario::validate::MAX_FRAME_BITS {
             return Err(self.v.err(span, &k, format!("{what} of more than 2^40 bits is not supported")));
         }
-        if !crate::scenario::validate::fits_time(self.frame, self.frame.control_line_bits(bits)) {
+        if !crate::scenario::validate::fits_time(self.frame, bits) {
             return Err(self.v.err(
                 span,
                 &k,

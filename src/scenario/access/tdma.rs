@@ -121,7 +121,7 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
     // The whole cycle (beacon slot and data slots) must fit the supported time.
     let beacon = u128::from(guard.0)
         + u128::from(c.nodes[timekeeper].transceiver.enable_range.max.0)
-        + u128::from(c.frame.duration(c.frame.control_line_bits(beacon_bits)).0);
+        + u128::from(c.frame.control_time(beacon_bits).0);
     let cycle = slots.iter().fold(beacon, |acc, s| acc + u128::from(s.1 .0));
     if cycle > u128::from(crate::scenario::check::MAX_TIME.0) {
         let span = a.slots.as_ref().map(|l| l.span()).or(a.slot_length.as_ref().map(|l| l.span()));
