@@ -91,8 +91,9 @@ pub struct Bus {
     scratch: Vec<u64>,
     /// Every hand-over of the line from one driver to another.
     pub handover: HandoverStats,
-    /// The latest processed non-dominant occupancy: the one a hand-over starts from.
-    prev: Option<Occupancy>,
+    /// The latest processed non-dominant occupancy (id, node, output off):
+    /// the one a hand-over starts from.
+    prev: Option<(u64, NodeId, u64)>,
     /// Keep processed occupancies this much longer (the silence rule looks back at them).
     keep: u64,
 }
@@ -123,7 +124,7 @@ impl Bus {
             floating: FloatingSweep::new(hazard, (spec.warmup, spec.duration)),
             contention: ContentionTotals::default(),
             scratch: Vec::with_capacity(spec.nodes.len()),
-            handover: HandoverStats::default(),
+            handover: HandoverStats::new(spec.nodes.len()),
             prev: None,
             keep: spec.frame.silence.map_or(0, |t| t.0),
         }
@@ -241,6 +242,9 @@ impl Bus {
 
     fn process_one(&mut self, line: &LineModel, idx: usize, trace: &mut Trace) {
         let k = self.log[idx];
+        // The hand-over from the previous driver, if it was another one.
+        let from = self.prev.filter(|&(_, node, _)| !k.dominant && node != k.node);
+        let mut contended = false;
         // Contention against every earlier entry that can still overlap.
         for j in self.log.range(..idx) {
             if j.b + self.max_delay <= k.a || j.node == k.node || (j.dominant && k.dominant) {
@@ -249,6 +253,7 @@ impl Bus {
             let sj = Span { from: j.a, to: j.b, position_m: self.positions[j.node] };
             let sk = Span { from: k.a, to: k.b, position_m: self.positions[k.node] };
             if let Some(o) = worst_overlap(sj, sk, line.delay_ps(j.node, k.node)) {
+                contended |= from.is_some_and(|(id, _, _)| id == j.id);
                 if o.start_ps >= self.window.0 && o.start_ps < self.window.1 {
                     // The part of the overlap inside the measured window.
                     let overlap = o.overlap_ps.min(self.window.1 - o.start_ps);
@@ -297,19 +302,17 @@ impl Bus {
             Some(self.scratch.as_slice())
         };
         self.floating.feed_occupancy(k.node, k.a, k.b, |i| line.delay_row(i), next);
-        if !k.dominant {
-            if let Some(j) = self.prev.filter(|j| j.node != k.node) {
-                if k.a >= self.window.0 && k.a < self.window.1 {
-                    let d = line.delay_ps(j.node, k.node);
-                    let slack = i128::from(k.a) - i128::from(j.b) - i128::from(d);
-                    let sj = Span { from: j.a, to: j.b, position_m: self.positions[j.node] };
-                    let sk = Span { from: k.a, to: k.b, position_m: self.positions[k.node] };
-                    let contended = worst_overlap(sj, sk, d).is_some();
-                    // Times are below 2^60 ps, so a difference fits i64.
-                    self.handover.record(j.node, k.node, slack as i64, contended);
-                }
+        if let Some((_, node, b)) = from {
+            if k.a >= self.window.0 && k.a < self.window.1 {
+                let slack = i128::from(k.a) - i128::from(b) - i128::from(line.delay_ps(node, k.node));
+                // Times are below 2^60 ps, so a difference fits i64. An
+                // overlap with the previous driver was found above, if there
+                // is one: an entry dropped from the log can no longer overlap.
+                self.handover.record(node, k.node, slack as i64, contended);
             }
-            self.prev = Some(k);
+        }
+        if !k.dominant {
+            self.prev = Some((k.id, k.node, k.b));
         }
         self.util.add(if k.dominant { Piece::Dominant } else { Piece::Occupancy }, k.a, k.b);
         trace.push(BusEvent { t: k.a, node: k.node, kind: BusEventKind::DriverEnable { dominant: k.dominant } });

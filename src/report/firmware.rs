@@ -14,7 +14,7 @@ pub struct HandoverFigures {
     /// Exact; absent when there was no hand-over.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub slack_min_s: Option<f64>,
-    /// The 1 % quantile (HDR histogram, 3 significant digits, rounded towards less room).
+    /// The 1 % quantile (HDR histogram, 2 significant digits, rounded towards less room).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub slack_p01_s: Option<f64>,
     /// Hand-overs whose two occupancies overlap somewhere on the line.
@@ -64,13 +64,14 @@ impl HandoverFigures {
         pairs.sort_by(|a, b| {
             a.slack_min_s.total_cmp(&b.slack_min_s).then_with(|| (&a.from, &a.to).cmp(&(&b.from, &b.to)))
         });
+        let all = h.all();
         HandoverFigures {
-            count: h.all.count,
-            slack_min_s: h.all.min.map(s),
-            slack_p01_s: h.all.quantile(0.01).map(s),
-            contended: h.all.contended,
+            count: all.count,
+            slack_min_s: all.min.map(s),
+            slack_p01_s: all.quantile(0.01).map(s),
+            contended: all.contended,
             pairs,
-            pairs_untracked: h.untracked,
+            pairs_untracked: h.rest.count,
         }
     }
 }

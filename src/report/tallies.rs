@@ -114,9 +114,9 @@ impl Tallies {
             util_wasted_ps: u.wasted,
             latency: st.latency_all.tally(),
             latency_nodes,
-            handovers: w.bus.handover.all.count,
-            handover_slack_min_ps: w.bus.handover.all.min,
-            handovers_contended: w.bus.handover.all.contended,
+            handovers: w.bus.handover.all().count,
+            handover_slack_min_ps: w.bus.handover.all().min,
+            handovers_contended: w.bus.handover.all().contended,
             uart: super::firmware::UartFigures::of(w).map(|u| UartTally {
                 cut_frames: u.cut_frames,
                 char_timeouts: u.char_timeouts,

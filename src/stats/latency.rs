@@ -4,7 +4,7 @@
 //! precision.
 
 use base64::Engine as _;
-use hdrhistogram::serialization::{Deserializer, Serializer, V2DeflateSerializer};
+use hdrhistogram::serialization::{Deserializer, Serializer, V2Serializer};
 use hdrhistogram::Histogram;
 
 #[derive(Clone, Debug)]
@@ -86,7 +86,8 @@ impl LatencyStats {
 
 /// A latency accumulator in a mergeable, serializable form: the exact
 /// count, sum and maximum, and the histogram in HdrHistogram's V2 format,
-/// deflated and base64-encoded (readable by any HdrHistogram library).
+/// base64-encoded (readable by any HdrHistogram library; tallies written
+/// with the deflated V2 form read back as well).
 #[derive(Clone, Debug, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
 pub struct LatencyTally {
     pub count: u64,
@@ -127,7 +128,7 @@ impl LatencyStats {
         let mut canonical = Histogram::<u64>::new_with_bounds(1, top, 3).expect("valid bounds");
         canonical.add(&self.hist).expect("the bounds cover every recorded value");
         let mut bytes = Vec::new();
-        V2DeflateSerializer::new().serialize(&canonical, &mut bytes).expect("serializing into memory cannot fail");
+        V2Serializer::new().serialize(&canonical, &mut bytes).expect("serializing into memory cannot fail");
         LatencyTally {
             count: self.count,
             sum_ps: self.sum_ps,

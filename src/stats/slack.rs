@@ -13,13 +13,14 @@
 //! It is negative exactly when the two occupancies overlap somewhere on the
 //! line (the bus checks that against its own overlap geometry, per hand-over).
 //!
-//! The smallest slack is exact; quantiles come from an HDR histogram of the
-//! magnitudes (3 significant digits), rounded towards the smaller slack so a
-//! quantile never shows more room than there is.
-
-use std::collections::HashMap;
+//! The smallest slack is exact; quantiles come from HDR histograms of the
+//! magnitudes (2 significant digits: within 1 %), rounded towards the
+//! smaller slack so a quantile never shows more room than there is. Each
+//! hand-over is recorded once, in its pair's histogram; the overall
+//! quantile merges the pairs' when the report is built.
 
 use hdrhistogram::Histogram;
+use rustc_hash::FxHashMap;
 
 /// Pairs tracked one by one; hand-overs between further pairs count only
 /// in the totals (a bound on memory for schemes where any node follows any).
@@ -32,31 +33,82 @@ pub struct SlackStats {
     pub min: Option<i64>,
     /// Hand-overs whose occupancies overlap somewhere (by the overlap geometry).
     pub contended: u64,
-    negative: Option<Histogram<u64>>,
-    positive: Option<Histogram<u64>>,
+    negative: Option<Histogram<u32>>,
+    positive: Option<Histogram<u32>>,
     negatives: u64,
+    /// The latest value and how often it came in a row, not yet in a
+    /// histogram (fixed timing repeats each pair's slack exactly).
+    run: Option<(i64, u32)>,
 }
 
-fn histogram() -> Histogram<u64> {
-    Histogram::new(3).expect("3 significant digits is a valid precision")
+fn histogram() -> Histogram<u32> {
+    Histogram::new(2).expect("2 significant digits is a valid precision")
+}
+
+/// Add `b` into the histogram slot `a`.
+fn merge(a: &mut Option<Histogram<u32>>, b: &Option<Histogram<u32>>) {
+    if let Some(b) = b {
+        a.get_or_insert_with(histogram).add(b).expect("auto-resizing");
+    }
 }
 
 impl SlackStats {
+    #[inline]
     pub fn record(&mut self, slack: i64, contended: bool) {
         self.count += 1;
-        self.min = Some(self.min.map_or(slack, |m| m.min(slack)));
         self.contended += u64::from(contended);
-        if slack < 0 {
-            self.negatives += 1;
-            self.negative.get_or_insert_with(histogram).record(slack.unsigned_abs()).expect("auto-resizing");
-        } else {
-            self.positive.get_or_insert_with(histogram).record(slack as u64).expect("auto-resizing");
+        if let Some((v, n)) = &mut self.run {
+            if *v == slack && *n < u32::MAX {
+                // The same value again: the minimum cannot change.
+                *n += 1;
+                return;
+            }
         }
+        self.start_run(slack);
+    }
+
+    #[cold]
+    fn start_run(&mut self, slack: i64) {
+        self.min = Some(self.min.map_or(slack, |m| m.min(slack)));
+        self.flush();
+        self.run = Some((slack, 1));
+    }
+
+    /// Put the pending run of equal values into the histograms.
+    fn flush(&mut self) {
+        let Some((slack, n)) = self.run.take() else { return };
+        if slack < 0 {
+            self.negatives += u64::from(n);
+            self.negative.get_or_insert_with(histogram).record_n(slack.unsigned_abs(), n).expect("auto-resizing");
+        } else {
+            self.positive.get_or_insert_with(histogram).record_n(slack as u64, n).expect("auto-resizing");
+        }
+    }
+
+    /// Add another set of slacks to these.
+    pub fn add(&mut self, o: &SlackStats) {
+        let mut o = o.clone();
+        o.flush();
+        self.flush();
+        self.count += o.count;
+        self.min = match (self.min, o.min) {
+            (Some(a), Some(b)) => Some(a.min(b)),
+            (a, b) => a.or(b),
+        };
+        self.contended += o.contended;
+        self.negatives += o.negatives;
+        merge(&mut self.negative, &o.negative);
+        merge(&mut self.positive, &o.positive);
     }
 
     /// The slack at quantile `q` (the value of rank ⌈q·n⌉, at least 1, in
     /// ascending order), never above the true value by the histogram's rounding.
     pub fn quantile(&self, q: f64) -> Option<i64> {
+        if self.run.is_some() {
+            let mut settled = self.clone();
+            settled.flush();
+            return settled.quantile(q);
+        }
         let min = self.min?;
         let rank = ((q * self.count as f64).ceil() as u64).clamp(1, self.count);
         let v = if rank <= self.negatives {
@@ -73,10 +125,10 @@ impl SlackStats {
 }
 
 /// The recorded value of rank `r` (1-based, ascending).
-fn at_rank(h: &Histogram<u64>, r: u64) -> u64 {
+fn at_rank(h: &Histogram<u32>, r: u64) -> u64 {
     let mut seen = 0;
     for v in h.iter_recorded() {
-        seen += v.count_at_value();
+        seen += u64::from(v.count_at_value());
         if seen >= r {
             return v.value_iterated_to();
         }
@@ -84,33 +136,68 @@ fn at_rank(h: &Histogram<u64>, r: u64) -> u64 {
     h.max()
 }
 
-/// Every hand-over in the measured window, overall and per (from, to) pair.
-#[derive(Clone, Debug, Default)]
+/// Where a pair's statistics are: a dense table for buses of up to 256
+/// nodes (one lookup, no hashing), a hash map beyond.
+#[derive(Clone, Debug)]
+enum Index {
+    Dense { nodes: usize, slot: Vec<u32> },
+    Sparse(FxHashMap<(u32, u32), usize>),
+}
+
+/// Every hand-over in the measured window, per (from, to) pair.
+#[derive(Clone, Debug)]
 pub struct HandoverStats {
-    pub all: SlackStats,
-    index: HashMap<(u32, u32), usize>,
+    index: Index,
     pub pairs: Vec<((u32, u32), SlackStats)>,
-    /// Hand-overs of pairs beyond [`MAX_PAIRS`].
-    pub untracked: u64,
+    /// Hand-overs of pairs beyond [`MAX_PAIRS`], together.
+    pub rest: SlackStats,
 }
 
 impl HandoverStats {
+    pub fn new(nodes: usize) -> Self {
+        let index = if nodes <= 256 {
+            Index::Dense { nodes, slot: vec![u32::MAX; nodes * nodes] }
+        } else {
+            Index::Sparse(FxHashMap::default())
+        };
+        HandoverStats { index, pairs: Vec::new(), rest: SlackStats::default() }
+    }
+
+    #[inline]
     pub fn record(&mut self, from: usize, to: usize, slack: i64, contended: bool) {
-        self.all.record(slack, contended);
         let key = (from as u32, to as u32);
-        let i = match self.index.get(&key) {
-            Some(&i) => i,
+        let found = match &mut self.index {
+            Index::Dense { nodes, slot } => {
+                let s = slot[from * *nodes + to];
+                (s != u32::MAX).then_some(s as usize)
+            }
+            Index::Sparse(map) => map.get(&key).copied(),
+        };
+        let i = match found {
+            Some(i) => i,
             None if self.pairs.len() < MAX_PAIRS => {
                 self.pairs.push((key, SlackStats::default()));
-                self.index.insert(key, self.pairs.len() - 1);
-                self.pairs.len() - 1
+                let i = self.pairs.len() - 1;
+                match &mut self.index {
+                    Index::Dense { nodes, slot } => slot[from * *nodes + to] = i as u32,
+                    Index::Sparse(map) => {
+                        map.insert(key, i);
+                    }
+                }
+                i
             }
-            None => {
-                self.untracked += 1;
-                return;
-            }
+            None => return self.rest.record(slack, contended),
         };
         self.pairs[i].1.record(slack, contended);
+    }
+
+    /// Every hand-over together.
+    pub fn all(&self) -> SlackStats {
+        let mut all = self.rest.clone();
+        for (_, p) in &self.pairs {
+            all.add(p);
+        }
+        all
     }
 }
 
@@ -121,7 +208,7 @@ mod tests {
     #[test]
     fn quantiles_by_rank_across_the_sign() {
         let mut s = SlackStats::default();
-        for x in [-30, -10, 0, 5, 7, 1000] {
+        for x in [-30, -10, 0, 5, 7, 100] {
             s.record(x, x < 0);
         }
         assert_eq!(s.min, Some(-30));
@@ -131,7 +218,7 @@ mod tests {
         assert_eq!(s.quantile(0.3), Some(-10));
         assert_eq!(s.quantile(0.5), Some(0));
         assert_eq!(s.quantile(0.6), Some(5));
-        assert_eq!(s.quantile(1.0), Some(1000));
+        assert_eq!(s.quantile(1.0), Some(100));
         assert_eq!(SlackStats::default().quantile(0.5), None);
     }
 
@@ -141,18 +228,18 @@ mod tests {
         s.record(123_456_789, false);
         s.record(-123_456_789, true);
         let hi = s.quantile(1.0).unwrap();
-        assert!((123_456_789 - 123_456_789 / 1000..=123_456_789).contains(&hi), "{hi}");
+        assert!((123_456_789 - 123_456_789 / 100..=123_456_789).contains(&hi), "{hi}");
         assert_eq!(s.quantile(0.5), Some(-123_456_789), "the exact minimum bounds the rounding");
     }
 
     #[test]
     fn pairs_beyond_the_cap_count_in_the_totals_only() {
-        let mut h = HandoverStats::default();
+        let mut h = HandoverStats::new(MAX_PAIRS + 4);
         for k in 0..MAX_PAIRS + 3 {
             h.record(k, k + 1, 10, false);
         }
         assert_eq!(h.pairs.len(), MAX_PAIRS);
-        assert_eq!(h.untracked, 3);
-        assert_eq!(h.all.count, MAX_PAIRS as u64 + 3);
+        assert_eq!(h.rest.count, 3);
+        assert_eq!(h.all().count, MAX_PAIRS as u64 + 3);
     }
 }
