@@ -87,6 +87,7 @@ impl Tallies {
             .filter(|(_, n)| !n.traffic.is_empty())
             .map(|(i, n)| (n.name.clone(), st.latency_node[i].tally()))
             .collect();
+        let handover = w.bus.handover.all();
         Tallies {
             measured_ps: w.spec.measured().0,
             payload_bits: st.payload_bits,
@@ -114,9 +115,9 @@ impl Tallies {
             util_wasted_ps: u.wasted,
             latency: st.latency_all.tally(),
             latency_nodes,
-            handovers: w.bus.handover.all().count,
-            handover_slack_min_ps: w.bus.handover.all().min,
-            handovers_contended: w.bus.handover.all().contended,
+            handovers: handover.count,
+            handover_slack_min_ps: handover.min,
+            handovers_contended: handover.contended,
             uart: super::firmware::UartFigures::of(w).map(|u| UartTally {
                 cut_frames: u.cut_frames,
                 char_timeouts: u.char_timeouts,
