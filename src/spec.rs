@@ -222,6 +222,26 @@ pub struct Transceiver {
     pub family: Option<String>,
 }
 
+impl Transceiver {
+    /// Enable asserted → first bit's edge, with the run's enable time.
+    pub fn lead(&self) -> Picos {
+        self.enable_lead.unwrap_or(self.enable_time)
+    }
+
+    /// How long before a frame's end this node reacts to it.
+    pub fn react_offset(&self, frame: &FrameFormat) -> Picos {
+        match self.react_at {
+            ReactAt::FrameEnd => Picos::ZERO,
+            ReactAt::StopSample => frame.stop_sample_offset(),
+        }
+    }
+
+    /// Does firmware time this node's enable or reaction (a `uart` report object)?
+    pub fn firmware_timed(&self) -> bool {
+        self.enable_lead.is_some() || self.release_after_stop != 0 || self.react_at != ReactAt::FrameEnd
+    }
+}
+
 /// When a receiving node reacts to a frame.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum ReactAt {
@@ -532,6 +552,11 @@ impl FrameFormat {
         let halves = self.encoding.line_halves(data_bits) as f64;
         let gaps = self.chars(data_bits).saturating_sub(1) as f64;
         halves / (2.0 * self.bit_rate) + gaps * self.char_gap.max().as_secs_f64()
+    }
+
+    /// A UART character's stop bits on the wire (zero for other encodings).
+    pub fn stop_time(&self) -> Picos {
+        self.encoding.uart().map_or(Picos::ZERO, |u| self.time_of_halves(u64::from(u.stop_halves)))
     }
 
     /// Where a UART's receive-complete fires: the middle of the (first) stop

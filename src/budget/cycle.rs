@@ -58,11 +58,8 @@ pub fn cycle(spec: &Spec, line: &LineModel) -> Option<Cycle> {
     let f = &spec.frame;
     let t = |n: NodeId| &spec.nodes[n].transceiver;
     // Enable to first bit, and how much earlier than the frame's end a node reacts.
-    let lead = |n: NodeId| t(n).enable_lead.unwrap_or(t(n).enable_time);
-    let react = |n: NodeId| match t(n).react_at {
-        crate::spec::ReactAt::FrameEnd => 0,
-        crate::spec::ReactAt::StopSample => w(f.stop_sample_offset()),
-    };
+    let lead = |n: NodeId| t(n).lead();
+    let react = |n: NodeId| w(t(n).react_offset(f));
     let payload = |n: NodeId| spec.nodes[n].longest_payload_bits();
     let (kind, zero, saturated, bits, k) = match &spec.access {
         AccessSpec::Polling(p) => {

@@ -30,7 +30,7 @@
 use serde::Serialize;
 
 use crate::line::LineModel;
-use crate::spec::{AccessSpec, AlohaSpec, CsmaSpec, Drift, Latency, NodeId, ReactAt, Spec, WorstTimes};
+use crate::spec::{AccessSpec, AlohaSpec, CsmaSpec, Drift, Latency, NodeId, Spec, WorstTimes};
 use crate::units::Picos;
 
 /// One hand-over and its minimum.
@@ -85,15 +85,8 @@ fn turnaround(spec: &Spec, p: NodeId, r: NodeId, configured: Picos) -> Handover 
     // responder's receiver reacts as fast, as their ranges allow.
     let (tp, tr) = (&spec.nodes[p].transceiver, &spec.nodes[r].transceiver);
     let tail = i128::from(tp.disable_range.max.0)
-        + if tp.auto_direction {
-            -i128::from(spec.frame.encoding.uart().map_or(0, |u| spec.frame.time_of_halves(u64::from(u.stop_halves)).0))
-        } else {
-            i128::from(tp.release_after_stop)
-        };
-    let react = match tr.react_at {
-        ReactAt::FrameEnd => 0,
-        ReactAt::StopSample => i128::from(spec.frame.stop_sample_offset().0),
-    };
+        + if tp.auto_direction { -i128::from(spec.frame.stop_time().0) } else { i128::from(tp.release_after_stop) };
+    let react = i128::from(tr.react_offset(&spec.frame).0);
     let rx_min = i128::from(tr.receiver_range.min.0);
     let raw = tail + react - rx_min;
     let min = Picos(raw.max(0) as u64);

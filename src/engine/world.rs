@@ -202,17 +202,14 @@ impl World {
                 let t = &node.transceiver;
                 Firmware {
                     enable: t.enable_time.0,
-                    lead: t.enable_lead.unwrap_or(t.enable_time).0,
+                    lead: t.lead().0,
                     release_after: t.release_after_stop,
-                    react: match t.react_at {
-                        crate::spec::ReactAt::FrameEnd => 0,
-                        crate::spec::ReactAt::StopSample => spec.frame.stop_sample_offset().0,
-                    },
+                    react: t.react_offset(&spec.frame).0,
                     auto: t.auto_direction,
                 }
             })
             .collect();
-        let uart = spec.frame.encoding.uart().map(|u| {
+        let uart = spec.frame.encoding.uart().map(|_| {
             let bit = spec.frame.bit_time();
             Box::new(UartRun {
                 gap_rng: spec.nodes.iter().map(|node| super::rng::stream(spec.seed, &node.name, "chargap")).collect(),
@@ -225,7 +222,7 @@ impl World {
                         (_, None) => false,
                     })
                     .collect(),
-                stop_ps: spec.frame.time_of_halves(u64::from(u.stop_halves)).0,
+                stop_ps: spec.frame.stop_time().0,
             })
         });
         let half_bit = spec.frame.time_of_halves(1).0;

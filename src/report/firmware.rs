@@ -3,7 +3,6 @@
 use serde::Serialize;
 
 use crate::engine::World;
-use crate::spec::ReactAt;
 use crate::stats::slack::SlackStats;
 
 /// Every hand-over of the line from one driver to the next (see
@@ -76,6 +75,11 @@ impl HandoverFigures {
     }
 }
 
+/// Does a report of `spec` have a `uart` object?
+pub fn present(spec: &crate::spec::Spec) -> bool {
+    spec.frame.encoding.uart().is_some() || spec.nodes.iter().any(|n| n.transceiver.firmware_timed())
+}
+
 /// UART framing and enable timing: present when the frame is UART-coded or
 /// any node sets its enable timing or reaction point.
 #[derive(Clone, Debug, Serialize)]
@@ -100,11 +104,7 @@ impl UartFigures {
     pub(crate) fn of(w: &World) -> Option<Self> {
         let spec = &w.spec;
         let uart = spec.frame.encoding.uart();
-        let timed = spec.nodes.iter().any(|n| {
-            let t = &n.transceiver;
-            t.enable_lead.is_some() || t.release_after_stop != 0 || t.react_at != ReactAt::FrameEnd
-        });
-        if uart.is_none() && !timed {
+        if !present(spec) {
             return None;
         }
         let c = w.stats.uart;

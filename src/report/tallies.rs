@@ -130,11 +130,7 @@ impl Tallies {
     /// The names [`Tallies::metrics`] gives for a run of `spec`.
     pub fn metric_names(spec: &crate::spec::Spec) -> Vec<String> {
         let mut t = Tallies { handover_slack_min_ps: Some(0), ..Tallies::default() };
-        let timed = spec.nodes.iter().any(|n| {
-            let t = &n.transceiver;
-            t.enable_lead.is_some() || t.release_after_stop != 0 || t.react_at != crate::spec::ReactAt::FrameEnd
-        });
-        if spec.frame.encoding.uart().is_some() || timed {
+        if super::firmware::present(spec) {
             t.uart = Some(UartTally::default());
         }
         for n in spec.nodes.iter().filter(|n| !n.traffic.is_empty()) {

@@ -204,19 +204,14 @@ pub(crate) fn resolve(
         None => 0,
     };
     if auto_direction {
-        for (set, name) in [(enable_lead.is_some(), "enable_lead"), (release_after_stop != 0, "release_after_stop")] {
-            if set {
-                let (s, k) = match name {
-                    "enable_lead" => l.get(|t| &t.enable_lead, name),
-                    _ => l.get(|t| &t.release_after_stop, name),
-                }
-                .expect("the key was read above");
-                return Err(v.err(
-                    s.span(),
-                    &k,
-                    format!("node \"{node}\" has an auto-direction transceiver: its driver follows the data, so there is no enable for firmware to time ({name})"),
-                ));
-            }
+        let firmware =
+            l.get(|t| &t.enable_lead, "enable_lead").or_else(|| l.get(|t| &t.release_after_stop, "release_after_stop"));
+        if let Some((s, k)) = firmware {
+            return Err(v.err(
+                s.span(),
+                &k,
+                format!("node \"{node}\" has an auto-direction transceiver: its driver follows the data, so there is no enable for firmware to time"),
+            ));
         }
     }
     let react_at = match l.get(|t| &t.react_at, "react_at") {

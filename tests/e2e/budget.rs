@@ -7,14 +7,7 @@ use common::halfwire;
 use serde_json::Value;
 
 fn budget(toml: &str, extra: &[&str]) -> Value {
-    let dir = tempfile::tempdir().unwrap();
-    let path = dir.path().join("b.toml");
-    std::fs::write(&path, toml).unwrap();
-    let mut args = vec!["budget", path.to_str().unwrap(), "--format", "json"];
-    args.extend_from_slice(extra);
-    let out = halfwire(&args);
-    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
-    serde_json::from_slice(&out.stdout).unwrap()
+    common::budget_toml(toml, extra)
 }
 
 fn refused(toml: &str) -> String {

@@ -155,6 +155,19 @@ pub fn run_toml(toml: &str) -> Value {
     serde_json::from_slice(&out.stdout).expect("one JSON report on stdout")
 }
 
+/// Write `toml` to a temporary scenario file, run `halfwire budget FILE
+/// --format json` (with `extra` arguments) and parse the budget.
+pub fn budget_toml(toml: &str, extra: &[&str]) -> Value {
+    let dir = tempfile::tempdir().expect("temporary folder");
+    let path = dir.path().join("budget.toml");
+    std::fs::write(&path, toml).expect("scenario written");
+    let mut args = vec!["budget", path.to_str().unwrap(), "--format", "json"];
+    args.extend(extra);
+    let out = halfwire(&args);
+    assert!(out.status.success(), "halfwire budget failed: {}", String::from_utf8_lossy(&out.stderr));
+    serde_json::from_slice(&out.stdout).expect("one JSON budget on stdout")
+}
+
 /// Run `f` for every item on two threads (this machine has two cores), in order.
 pub fn par_map<T: Sync, R: Send>(items: &[T], f: impl Fn(&T) -> R + Sync) -> Vec<R> {
     let mid = items.len().div_ceil(2);

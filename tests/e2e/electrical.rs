@@ -8,12 +8,7 @@ use common::{halfwire, run_toml};
 use serde_json::Value;
 
 fn budget(toml: &str) -> Value {
-    let dir = tempfile::tempdir().unwrap();
-    let path = dir.path().join("b.toml");
-    std::fs::write(&path, toml).unwrap();
-    let out = halfwire(&["budget", path.to_str().unwrap(), "--format", "json"]);
-    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
-    serde_json::from_slice(&out.stdout).unwrap()
+    common::budget_toml(toml, &[])
 }
 
 fn refused(toml: &str, needles: &[&str]) {

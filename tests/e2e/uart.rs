@@ -115,16 +115,7 @@ fn frames(events: &[Value]) -> Vec<(String, i128, i128)> {
     out
 }
 
-fn budget_json(toml: &str, extra: &[&str]) -> Value {
-    let dir = tempfile::tempdir().unwrap();
-    let path = dir.path().join("b.toml");
-    std::fs::write(&path, toml).unwrap();
-    let mut args = vec!["budget", path.to_str().unwrap(), "--format", "json"];
-    args.extend(extra);
-    let out = halfwire(&args);
-    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
-    serde_json::from_slice(&out.stdout).unwrap()
-}
+use common::budget_toml as budget_json;
 
 fn handover<'a>(b: &'a Value, from: &str, to: &str) -> &'a Value {
     b["handovers"].as_array().unwrap().iter().find(|h| h["from"] == from && h["to"] == to).unwrap()
