@@ -141,6 +141,11 @@ pub struct LineSpec {
     pub conductor_ohm_per_m: f64,
     /// Cable loss at a stated frequency, scaled with √f (skin effect).
     pub attenuation: Option<Attenuation>,
+    /// A bit error probability given directly, the same at every receiver
+    /// (instead of one derived from noise, see [`NodeSpec::noise_v`]).
+    pub bit_error_rate: Option<f64>,
+    /// `line.noise` (V rms), the default of every node's [`NodeSpec::noise_v`].
+    pub noise_v: Option<f64>,
 }
 
 /// Cable attenuation: `db_per_m` at `at_hz`, scaling with the square root of frequency.
@@ -317,6 +322,10 @@ pub struct NodeSpec {
     /// Its protocol logic runs in an external process (`halfwire cosim`);
     /// the access scheme's built-in behaviour does not run for it.
     pub external: bool,
+    /// RMS differential noise at its receiver (V): the node's own, else the
+    /// line's. With the receiver's worst-case margin m it gives the bit
+    /// error probability Q(m / σ) (`line::noise`).
+    pub noise_v: Option<f64>,
 }
 
 /// One traffic source at a node.
@@ -611,6 +620,23 @@ impl AccessSpec {
             AccessSpec::Arbitration(_) => "arbitration",
         }
     }
+
+    /// Node faults injected in the run, in time order.
+    pub fn node_faults(&self) -> &[NodeFault] {
+        match self {
+            AccessSpec::Polling(p) => &p.node_faults,
+            _ => &[],
+        }
+    }
+}
+
+/// A node fails (`down`) or comes back at an instant. A down node neither
+/// drives the line nor answers; messages keep arriving at its queue.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct NodeFault {
+    pub at: Picos,
+    pub node: NodeId,
+    pub down: bool,
 }
 
 /// Token passing on a logical ring.
@@ -652,6 +678,14 @@ pub struct PollingSpec {
     pub response_latency: Latency,
     /// How long after the end of its request the master waits for a reply to begin.
     pub reply_timeout: Picos,
+    /// Polls of the same slave again after a corrupted or missing reply.
+    pub retries: u32,
+    /// A slave whose exchanges fail this many times in a row is skipped
+    /// (`None`: never skipped).
+    pub dead_after: Option<u32>,
+    /// A skipped slave is polled again every this many cycles.
+    pub probe_every: u32,
+    pub node_faults: Vec<NodeFault>,
 }
 
 /// ALOHA, pure or slotted, with ideal feedback.

@@ -20,6 +20,7 @@ use crate::report::Report;
 use crate::scheme::{self, AccessScheme};
 use crate::spec::{NodeId, Spec};
 use crate::stats::utilization::Piece;
+use crate::stats::Cause;
 use crate::traffic::{self, Message, Source};
 use crate::units::Picos;
 
@@ -83,6 +84,11 @@ pub(crate) enum Event {
     LineEdge {
         node: u32,
         busy: bool,
+    },
+    /// A node goes down or comes back (`access.faults`).
+    NodeFault {
+        node: u32,
+        down: bool,
     },
 }
 
@@ -155,6 +161,11 @@ impl Simulation {
                 self.world.queue.push(t, Event::Arrival { source: i as u32 });
             }
         }
+        for f in self.world.spec.access.node_faults().to_vec() {
+            if f.at < duration {
+                self.world.queue.push(f.at, Event::NodeFault { node: f.node as u32, down: f.down });
+            }
+        }
         self.scheme.start(&mut self.world);
         if let Some(c) = &mut self.cosim {
             c.start(&self.world.spec);
@@ -209,6 +220,7 @@ impl Simulation {
                 Event::Deliver { frame, to } => self.on_deliver(frame, to as usize),
                 Event::External { node, tag } => self.notify(node as usize, external::Notice::Timer { tag }),
                 Event::LineEdge { node, busy } => self.on_line_edge(node as usize, busy),
+                Event::NodeFault { node, down } => self.world.set_down(node as usize, down),
             }
             let w = &mut self.world;
             w.bus.process(&w.line, t.0, false, &mut w.trace);
@@ -319,8 +331,36 @@ impl Simulation {
 
     fn on_deliver(&mut self, idx: u32, to: NodeId) {
         let w = &mut self.world;
-        let (f, corrupted) = resolve_delivery(w, idx, to);
+        let (f, cause) = resolve_delivery(w, idx, to);
+        let corrupted = cause.corrupted();
         let now = w.now;
+        if w.down[to] {
+            // Nobody listens at a down node: its frames are lost there.
+            if w.in_window(now) {
+                if f.kind == FrameKind::Data {
+                    w.stats.frames.attempts += 1;
+                    w.stats.data_frames_sent += 1;
+                    w.stats.data_wire_ps += u128::from(f.e - f.s);
+                    w.stats.frames.unheard += 1;
+                    if f.message.is_some() {
+                        w.stats.frames.given_up += 1;
+                    }
+                } else {
+                    w.stats.frames.control_frames += 1;
+                }
+            }
+            let rx = Reception {
+                kind: f.kind,
+                from: f.src,
+                at: to,
+                corrupted,
+                message: f.message,
+                sent_end: Picos(f.e),
+                occupancy: f.occupancy,
+            };
+            self.scheme.on_unheard(&mut self.world, &rx);
+            return;
+        }
         if w.in_window(now) {
             if f.kind == FrameKind::Data {
                 // The frame's time on the wire inside the measured window.
@@ -331,6 +371,7 @@ impl Simulation {
                 st.data_wire_ps += u128::from(f.e - f.s);
                 if corrupted {
                     st.frames.corrupted += 1;
+                    st.frames.corrupted_by.count(cause);
                 } else if let Some(m) = f.message {
                     st.frames.delivered += 1;
                     st.payload_bits += u128::from(m.payload_bits);
@@ -383,15 +424,30 @@ impl Simulation {
 /// The physics of one delivery, shared by the run and by closing it: is the
 /// frame corrupted at `to`; trace it; and once its last delivery is done,
 /// classify its line time, release its occupancy and free its record.
-fn resolve_delivery(w: &mut World, idx: u32, to: NodeId) -> (world::FrameRec, bool) {
+fn resolve_delivery(w: &mut World, idx: u32, to: NodeId) -> (world::FrameRec, Cause) {
     let f = w.frames[idx as usize];
     // A receiver reacting at the stop bit's sample point has taken the frame
     // by then: what the line does after it no longer matters to it.
     let heard_until = f.e.saturating_sub(w.fw[to].react).max(f.s);
-    let mut corrupted = f.aborted || w.bus.is_corrupted(&w.line, f.src, to, f.s, heard_until);
+    let mut cause = if f.aborted || w.bus.is_corrupted(&w.line, f.src, to, f.s, heard_until) {
+        Cause::Contention
+    } else {
+        Cause::Intact
+    };
     if w.uart.is_some() || f.flags != 0 {
-        corrupted |= framing_faults(w, &f, to);
+        let framing = framing_faults(w, &f, to);
+        if cause == Cause::Intact {
+            cause = framing;
+        }
     }
+    if cause == Cause::Intact {
+        if let Some(noise) = &mut w.noise {
+            if noise.corrupts(to, w.spec.frame.encoding.line_halves(f.data_bits).div_ceil(2)) {
+                cause = Cause::Noise;
+            }
+        }
+    }
+    let corrupted = cause.corrupted();
     w.trace.push(BusEvent {
         t: f.e,
         node: f.src,
@@ -409,15 +465,17 @@ fn resolve_delivery(w: &mut World, idx: u32, to: NodeId) -> (world::FrameRec, bo
         w.bus.frame_resolved(f.occupancy);
         w.free_frames.push(idx);
     }
-    (f, corrupted)
+    (f, cause)
 }
 
 /// The framing rules a frame can break at receiver `to`, besides another
 /// driver's signal: an enable that cut its first or last bit, a gap between
 /// characters past `char_timeout`, a start too soon after the previous frame
-/// (`silence`), recessive bits that the bias does not settle within a bit.
-/// Each broken rule is counted (per delivery; cut frames once per frame).
-fn framing_faults(w: &mut World, f: &world::FrameRec, to: NodeId) -> bool {
+/// (`silence`), recessive bits that the bias does not settle within a bit
+/// (the floating line). Each broken rule is counted (per delivery; cut
+/// frames once per frame); the cause returned is the floating line if it
+/// applies, else framing.
+fn framing_faults(w: &mut World, f: &world::FrameRec, to: NodeId) -> Cause {
     use world::FrameRec as F;
     let counted = w.in_window(w.now);
     let mut bad = f.flags & F::CUT != 0;
@@ -426,21 +484,29 @@ fn framing_faults(w: &mut World, f: &world::FrameRec, to: NodeId) -> bool {
         bad = true;
         u.char_timeouts += u64::from(counted);
     }
-    let Some(run) = &w.uart else { return bad };
-    if f.flags & F::AUTO != 0 && run.unsettled[to] {
-        bad = true;
-        u.unsettled_frames += u64::from(counted);
-    }
-    if let Some(silence) = run.silence {
-        let start = f.s + w.line.delay_ps(f.src, to);
-        if let Some(prev) = w.bus.last_frame_end_at(&w.line, to, start, f.occupancy) {
-            if start - prev < silence {
-                bad = true;
-                u.silence_violations += u64::from(counted);
+    let mut floating = false;
+    if let Some(run) = &w.uart {
+        if f.flags & F::AUTO != 0 && run.unsettled[to] {
+            floating = true;
+            u.unsettled_frames += u64::from(counted);
+        }
+        if let Some(silence) = run.silence {
+            let start = f.s + w.line.delay_ps(f.src, to);
+            if let Some(prev) = w.bus.last_frame_end_at(&w.line, to, start, f.occupancy) {
+                if start - prev < silence {
+                    bad = true;
+                    u.silence_violations += u64::from(counted);
+                }
             }
         }
     }
-    bad
+    if floating {
+        Cause::Floating
+    } else if bad {
+        Cause::Framing
+    } else {
+        Cause::Intact
+    }
 }
 
 /// Utilization pieces of a resolved frame.

@@ -125,6 +125,39 @@ pub(crate) struct UartRun {
     pub stop_ps: u64,
 }
 
+/// Bit errors in a run: each receiver's bit error rate and its own stream.
+#[derive(Debug)]
+pub(crate) struct NoiseRun {
+    /// Per receiver: ln(1 − BER) (0 where there is no noise).
+    ln_keep: Vec<f64>,
+    rng: Vec<Stream>,
+}
+
+impl NoiseRun {
+    /// Does noise corrupt a frame of `bits` line bits at receiver `to`? One
+    /// draw from the receiver's stream, intact with probability (1 − BER)^bits.
+    pub fn corrupts(&mut self, to: NodeId, bits: u64) -> bool {
+        let ln_keep = self.ln_keep[to];
+        if ln_keep == 0.0 {
+            return false;
+        }
+        let u: f64 = rand::Rng::random(&mut self.rng[to]);
+        u >= (bits as f64 * ln_keep).exp()
+    }
+}
+
+/// One period during which a node was down, and what the scheme made of it.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Outage {
+    pub node: NodeId,
+    pub down_at: Picos,
+    /// When the scheme first treated the node as silent (polling: skipped it).
+    pub found_silent_at: Option<Picos>,
+    pub up_at: Option<Picos>,
+    /// When the node, back up, first answered.
+    pub answered_at: Option<Picos>,
+}
+
 /// A transmission being assembled.
 #[derive(Clone, Copy, Debug)]
 struct TxBuild {
@@ -173,6 +206,12 @@ pub struct World {
     pub(crate) externally_driven: Vec<bool>,
     pub(crate) fw: Vec<Firmware>,
     pub(crate) uart: Option<Box<UartRun>>,
+    /// Per node: down (a fault) now.
+    pub(crate) down: Vec<bool>,
+    /// Every down period so far, in the order they began.
+    pub(crate) outages: Vec<Outage>,
+    /// Bit errors, when the scenario models noise.
+    pub(crate) noise: Option<Box<NoiseRun>>,
     /// Half a bit time: a cut this long or longer corrupts a frame.
     half_bit: u64,
     /// Frames of the open transmission, when its release may cut them.
@@ -225,6 +264,12 @@ impl World {
                 stop_ps: spec.frame.stop_time().0,
             })
         });
+        let noise = crate::line::noise::modelled(&spec).then(|| {
+            Box::new(NoiseRun {
+                ln_keep: crate::line::noise::bit_error_rates(&spec, &line).iter().map(|p| (-p).ln_1p()).collect(),
+                rng: spec.nodes.iter().map(|node| super::rng::stream(spec.seed, &node.name, "noise")).collect(),
+            })
+        });
         let half_bit = spec.frame.time_of_halves(1).0;
         let n = spec.nodes.len();
         let access_rng = spec.nodes.iter().map(|node| super::rng::stream(spec.seed, &node.name, "access")).collect();
@@ -268,6 +313,9 @@ impl World {
             externally_driven: vec![false; n],
             fw,
             uart,
+            noise,
+            down: vec![false; n],
+            outages: Vec::new(),
             half_bit,
             tx_frames: Vec::with_capacity(16),
             spec,
@@ -322,6 +370,51 @@ impl World {
     /// Put a message back at the head of its queue (for retransmission).
     pub fn push_front(&mut self, node: NodeId, msg: Message) {
         self.queues[node].push_front(msg);
+    }
+
+    /// Is `node` down (a fault) now?
+    pub fn is_down(&self, node: NodeId) -> bool {
+        self.down[node]
+    }
+
+    /// A node goes down or comes back up now.
+    pub(crate) fn set_down(&mut self, node: NodeId, down: bool) {
+        self.down[node] = down;
+        if down {
+            self.outages.push(Outage { node, down_at: self.now, found_silent_at: None, up_at: None, answered_at: None });
+        } else if let Some(o) = self.outages.iter_mut().rev().find(|o| o.node == node) {
+            o.up_at = Some(self.now);
+        }
+    }
+
+    /// The node's latest down period, if it has had one.
+    fn latest_outage(&mut self, node: NodeId) -> Option<&mut Outage> {
+        self.outages.iter_mut().rev().find(|o| o.node == node)
+    }
+
+    /// Has `node` come back up from a down period and not answered since?
+    pub fn is_node_back(&self, node: NodeId) -> bool {
+        self.outages.iter().rev().find(|o| o.node == node).is_some_and(|o| o.up_at.is_some() && o.answered_at.is_none())
+    }
+
+    /// The scheme treats `node` as silent from now on (it noticed a failure).
+    pub fn node_found_silent(&mut self, node: NodeId) {
+        let now = self.now;
+        if let Some(o) = self.latest_outage(node) {
+            if o.up_at.is_none() && o.found_silent_at.is_none() {
+                o.found_silent_at = Some(now);
+            }
+        }
+    }
+
+    /// `node` answered the scheme now (the first answer after coming back counts).
+    pub fn node_answered(&mut self, node: NodeId) {
+        let now = self.now;
+        if let Some(o) = self.latest_outage(node) {
+            if o.up_at.is_some() && o.answered_at.is_none() {
+                o.answered_at = Some(now);
+            }
+        }
     }
 
     /// Count a message the scheme gives up on (its last allowed attempt failed).

@@ -10,6 +10,7 @@ pub mod dc;
 pub mod family;
 pub mod figures;
 pub mod loaded;
+pub mod noise;
 pub mod receiver;
 pub mod sections;
 pub mod settled;

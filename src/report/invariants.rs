@@ -60,10 +60,19 @@ pub fn violations(report: &Value) -> Vec<String> {
     }
 
     // Frames.
-    let (attempts, delivered, corrupted) =
-        (count("frames.attempts"), count("frames.delivered"), count("frames.corrupted"));
-    if attempts != delivered + corrupted {
-        bad(format!("frames.attempts ({attempts}) ≠ delivered ({delivered}) + corrupted ({corrupted})"));
+    let (attempts, delivered, corrupted, unheard) =
+        (count("frames.attempts"), count("frames.delivered"), count("frames.corrupted"), count("frames.unheard"));
+    if attempts != delivered + corrupted + unheard {
+        bad(format!(
+            "frames.attempts ({attempts}) ≠ delivered ({delivered}) + corrupted ({corrupted}) + unheard ({unheard})"
+        ));
+    }
+    let by: u64 = ["contention", "floating", "framing", "noise"]
+        .iter()
+        .map(|k| count(&format!("frames.corrupted_by.{k}")))
+        .sum();
+    if by != corrupted {
+        bad(format!("frames.corrupted_by adds up to {by}, not frames.corrupted ({corrupted})"));
     }
     if count("frames.control_corrupted") > count("frames.control") {
         bad("frames.control_corrupted exceeds frames.control".into());

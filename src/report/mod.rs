@@ -19,6 +19,7 @@ pub use crate::line::figures::LineFigures;
 use crate::line::IdleState;
 use crate::scheme::SchemeReport;
 use crate::stats::LatencySummary;
+use crate::units::Picos;
 
 /// Version tag of the JSON report.
 pub const SCHEMA: &str = "halfwire-report/1";
@@ -40,6 +41,9 @@ pub struct Report {
     pub scheme: SchemeReport,
     #[serde(skip_serializing_if = "Option::is_none")]
     pub uart: Option<firmware::UartFigures>,
+    /// Down periods of nodes (`access.faults`), in the order they began.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub outages: Vec<OutageFigures>,
     pub warnings: Vec<Warning>,
     /// Set when simulated time stopped advancing: the run ended there.
     #[serde(skip_serializing_if = "Option::is_none")]
@@ -74,8 +78,26 @@ pub struct Frames {
     pub arrived: u64,
     pub control: u64,
     pub control_corrupted: u64,
-    /// Messages still queued when the run ended.
+    /// Messages still queued, or held by the scheme for a retry, when the run ended.
     pub queued_at_end: u64,
+    /// Data frames lost at a receiver that was down.
+    pub unheard: u64,
+    /// Corrupted data-frame deliveries by cause; they add up to `corrupted`.
+    pub corrupted_by: crate::stats::CorruptedBy,
+}
+
+/// One down period of a node.
+#[derive(Clone, Debug, Serialize)]
+pub struct OutageFigures {
+    pub node: String,
+    pub down_at_s: f64,
+    /// From going down to the scheme treating it as silent (polling: the
+    /// timeout that made it skip the node); null if it never did.
+    pub found_silent_after_s: Option<f64>,
+    /// Null if the node stayed down to the end.
+    pub up_at_s: Option<f64>,
+    /// From coming back to its first answer; null if it never answered.
+    pub answered_after_s: Option<f64>,
 }
 
 #[derive(Clone, Copy, Debug, Serialize)]
@@ -233,6 +255,17 @@ impl Report {
             line: line_fig,
             scheme,
             uart,
+            outages: w
+                .outages
+                .iter()
+                .map(|o| OutageFigures {
+                    node: spec.nodes[o.node].name.clone(),
+                    down_at_s: o.down_at.as_secs_f64(),
+                    found_silent_after_s: o.found_silent_at.map(|t| (t - o.down_at).as_secs_f64()),
+                    up_at_s: o.up_at.map(Picos::as_secs_f64),
+                    answered_after_s: o.answered_at.zip(o.up_at).map(|(a, u)| (a - u).as_secs_f64()),
+                })
+                .collect(),
             warnings,
             stalled_at_s: None,
             aborted_at_s: None,

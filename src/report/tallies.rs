@@ -30,6 +30,10 @@ pub struct Tallies {
     pub arrived: u64,
     pub control: u64,
     pub control_corrupted: u64,
+    #[serde(default)]
+    pub corrupted_by: crate::stats::CorruptedBy,
+    #[serde(default)]
+    pub unheard: u64,
     pub queued_at_end: u64,
     pub access_attempts: u64,
     pub contention_events: u64,
@@ -100,7 +104,10 @@ impl Tallies {
             arrived: st.frames.arrived,
             control: st.frames.control_frames,
             control_corrupted: st.frames.control_corrupted,
-            queued_at_end: w.queues.iter().map(|q| q.len() as u64).sum(),
+            corrupted_by: st.frames.corrupted_by,
+            queued_at_end: w.queues.iter().map(|q| q.len() as u64).sum::<u64>()
+                + w.holding.iter().map(|&h| h as u64).sum::<u64>(),
+            unheard: st.frames.unheard,
             access_attempts: st.frames.access_attempts,
             contention_events: c.events,
             overlap_total_ps: c.overlap_total_ps,
@@ -152,6 +159,8 @@ impl Tallies {
         self.arrived += o.arrived;
         self.control += o.control;
         self.control_corrupted += o.control_corrupted;
+        self.corrupted_by.add(&o.corrupted_by);
+        self.unheard += o.unheard;
         self.queued_at_end += o.queued_at_end;
         self.access_attempts += o.access_attempts;
         self.contention_events += o.contention_events;
@@ -225,6 +234,8 @@ impl Tallies {
             control: self.control,
             control_corrupted: self.control_corrupted,
             queued_at_end: self.queued_at_end,
+            unheard: self.unheard,
+            corrupted_by: self.corrupted_by,
         }
     }
 

@@ -110,6 +110,34 @@ pub fn render_titled(r: &Report, title: &str, color: bool) -> String {
         "  data frames: {} sent, {} delivered, {} corrupted; messages: {} dropped at full queues, {} given up, {} queued at end",
         f.attempts, f.delivered, f.corrupted, f.dropped, f.given_up, f.queued_at_end
     );
+    if f.unheard > 0 {
+        let _ = writeln!(o, "  {} data frames lost at receivers that were down", f.unheard);
+    }
+    for g in &r.outages {
+        let after = |x: Option<f64>, what: &str| match x {
+            Some(t) => format!("{what} after {}", format_si(t, "s")),
+            None => format!("never {what}"),
+        };
+        let _ = writeln!(
+            o,
+            "  outage {}: down at {}, {}; {}",
+            g.node,
+            format_si(g.down_at_s, "s"),
+            after(g.found_silent_after_s, "found silent"),
+            match g.up_at_s {
+                Some(u) => format!("up at {}, {}", format_si(u, "s"), after(g.answered_after_s, "answered")),
+                None => "still down at the end".into(),
+            }
+        );
+    }
+    if f.corrupted > 0 {
+        let b = &f.corrupted_by;
+        let _ = writeln!(
+            o,
+            "  corrupted by: contention {}, floating line {}, framing rules {}, noise {}",
+            b.contention, b.floating, b.framing, b.noise
+        );
+    }
     let u = &r.utilization;
     let _ = writeln!(
         o,

@@ -50,6 +50,10 @@ pub struct RawLine {
     pub bias: Option<Spanned<RawBias>>,
     pub conductor_resistance: Option<S>,
     pub attenuation: Option<Spanned<RawAttenuation>>,
+    /// RMS differential noise at every receiver (a voltage).
+    pub noise: Option<S>,
+    /// Probability that one line bit is received wrong, at every receiver.
+    pub bit_error_rate: Option<Spanned<f64>>,
 }
 
 /// `attenuation = { db = 2.2, per = "100 m", at = "1 MHz" }`: cable loss at a frequency.
@@ -131,6 +135,9 @@ pub struct RawAccess {
     pub token_timeout: Option<S>,
     pub recovery_node: Option<S>,
     pub faults: Option<Spanned<Vec<Spanned<RawFault>>>>,
+    pub retries: Option<Spanned<u32>>,
+    pub dead_after: Option<Spanned<u32>>,
+    pub probe_every: Option<Spanned<u32>>,
     pub slotted: Option<Spanned<bool>>,
     pub slot_time: Option<S>,
     pub ack_timeout: Option<S>,
@@ -183,6 +190,9 @@ impl RawAccess {
             ("token_timeout", sp(&self.token_timeout)),
             ("recovery_node", sp(&self.recovery_node)),
             ("faults", sp(&self.faults)),
+            ("retries", sp(&self.retries)),
+            ("dead_after", sp(&self.dead_after)),
+            ("probe_every", sp(&self.probe_every)),
             ("slotted", sp(&self.slotted)),
             ("slot_time", sp(&self.slot_time)),
             ("ack_timeout", sp(&self.ack_timeout)),
@@ -214,6 +224,8 @@ impl RawAccess {
 pub struct RawFault {
     pub at: S,
     pub kind: S,
+    /// The node a `node-down` or `node-up` fault concerns.
+    pub node: Option<S>,
 }
 
 #[derive(Debug, Deserialize)]
@@ -224,6 +236,8 @@ pub struct RawNode {
     pub traffic: Option<Spanned<OneOrMany<RawTraffic>>>,
     pub turnaround: Option<S>,
     pub transceiver: Option<RawTransceiver>,
+    /// RMS differential noise at this node's receiver (overrides `line.noise`).
+    pub noise: Option<S>,
     /// Driven by an external process under `halfwire cosim`.
     pub external: Option<Spanned<bool>>,
 }
@@ -238,6 +252,8 @@ pub struct RawNodeRow {
     pub traffic: Option<Spanned<OneOrMany<RawTraffic>>>,
     pub turnaround: Option<S>,
     pub transceiver: Option<RawTransceiver>,
+    /// RMS differential noise at these nodes' receivers (overrides `line.noise`).
+    pub noise: Option<S>,
 }
 
 #[derive(Debug, Deserialize)]

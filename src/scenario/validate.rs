@@ -332,7 +332,52 @@ fn validate_line(v: &V, l: &RawLine, at: Range<usize>) -> R<LineSpec> {
         None => None,
         Some(a) => Some(attenuation(v, a)?),
     };
-    Ok(LineSpec { bias, length_m, impedance_ohm, delay_s_per_m, termination, conductor_ohm_per_m, attenuation })
+    if let (Some(n), Some(b)) = (&l.noise, &l.bit_error_rate) {
+        return Err(v
+            .err(b.span(), "line.bit_error_rate", "give line.noise or line.bit_error_rate, not both")
+            .with_hint(format!(
+                "line.noise = \"{}\" derives each receiver's bit error rate from its margin; bit_error_rate sets one for all",
+                n.get_ref()
+            )));
+    }
+    let bit_error_rate = match &l.bit_error_rate {
+        None => None,
+        Some(b) => {
+            let p = *b.get_ref();
+            if !(p.is_finite() && (0.0..=0.5).contains(&p)) {
+                return Err(v
+                    .err(b.span(), "line.bit_error_rate", format!("a bit error rate of {p} is outside 0 to 0.5"))
+                    .with_hint("it is the probability that one line bit is received wrong, e.g. 1e-6"));
+            }
+            Some(p)
+        }
+    };
+    Ok(LineSpec {
+        bias,
+        length_m,
+        impedance_ohm,
+        delay_s_per_m,
+        termination,
+        conductor_ohm_per_m,
+        attenuation,
+        bit_error_rate,
+        noise_v: l.noise.as_ref().map(|n| noise(v, n, "line.noise")).transpose()?,
+    })
+}
+
+/// A node's own noise, which a line-wide bit error rate leaves no room for.
+fn node_noise(v: &V, n: &S, key: &str, line: &LineSpec) -> R<f64> {
+    if line.bit_error_rate.is_some() {
+        return Err(v
+            .err(n.span(), key, "line.bit_error_rate sets every receiver's bit error rate: a node's noise has no effect")
+            .with_hint("remove line.bit_error_rate to derive bit errors from noise and margins"));
+    }
+    noise(v, n, key)
+}
+
+/// An rms noise voltage: more than 0 V, at most 10 V.
+fn noise(v: &V, n: &S, key: &str) -> R<f64> {
+    v.within(n, Dimension::Voltage, key, 1e-9, 10.0, "V")
 }
 
 /// `line.attenuation`: every part required, each in range.
@@ -571,6 +616,7 @@ struct Pending<'r> {
     traffic: Option<&'r Spanned<OneOrMany<RawTraffic>>>,
     turnaround: Option<Picos>,
     external: bool,
+    noise_v: Option<f64>,
 }
 
 fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec, timing: Timing) -> R<Vec<NodeSpec>> {
@@ -604,6 +650,7 @@ fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec, timing: Timing) -> 
         let transceiver =
             super::transceiver::resolve(timing, v, defaults, n.transceiver.as_ref(), &key, &name, n.name.span())?;
         let turnaround = n.turnaround.as_ref().map(|t| v.time(t, &format!("{key}.turnaround"))).transpose()?;
+        let noise_v = n.noise.as_ref().map(|x| node_noise(v, x, &format!("{key}.noise"), line)).transpose()?;
         pending.push(Pending {
             name,
             name_span: n.name.span(),
@@ -613,6 +660,7 @@ fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec, timing: Timing) -> 
             traffic: n.traffic.as_ref(),
             turnaround,
             external: n.external.as_ref().is_some_and(|e| *e.get_ref()),
+            noise_v,
         });
     }
     if let Some(row) = &raw.nodes {
@@ -628,6 +676,7 @@ fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec, timing: Timing) -> 
         let spacing = v.non_negative(&r.spacing, Dimension::Length, "nodes.spacing")?;
         let width = count.to_string().len().max(2);
         let turnaround = r.turnaround.as_ref().map(|t| v.time(t, "nodes.turnaround")).transpose()?;
+        let noise_v = r.noise.as_ref().map(|x| node_noise(v, x, "nodes.noise", line)).transpose()?;
         for k in 0..count {
             if r.prefix.get_ref().chars().any(char::is_control) {
                 return Err(v.err(r.prefix.span(), "nodes.prefix", "a node name must not contain control characters"));
@@ -664,6 +713,7 @@ fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec, timing: Timing) -> 
                 traffic: r.traffic.as_ref(),
                 turnaround,
                 external: false,
+                noise_v,
             });
         }
     }
@@ -725,6 +775,7 @@ fn validate_nodes(v: &V, raw: &RawScenario, line: &LineSpec, timing: Timing) -> 
             turnaround: p.turnaround,
             queue_limit,
             external: p.external,
+            noise_v: p.noise_v.or(line.noise_v),
         });
     }
     Ok(out)

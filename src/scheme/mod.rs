@@ -43,6 +43,10 @@ pub trait AccessScheme: std::fmt::Debug {
     /// The receiver output of `rx.at` has shown the last bit of a frame.
     fn on_receive(&mut self, world: &mut World, rx: &Reception);
 
+    /// A frame reached `rx.at` while that node was down: nobody took it.
+    /// Schemes that wait on the node's answer react here.
+    fn on_unheard(&mut self, _world: &mut World, _rx: &Reception) {}
+
     /// An external node (co-simulation) has just scheduled transmission `tx`
     /// carrying frames of `kinds`. Schemes that coordinate with the node (a
     /// polling master waiting for a reply) react here.

@@ -16,6 +16,19 @@
 //! of that reply's activity at its receiver is what it waits for, whether or
 //! not the frames arrive intact.
 //!
+//! **Retries** (`retries = r`): when the reply to a poll is corrupted at the
+//! master, or does not begin by the timeout, the master polls the same
+//! slave again, up to r times. The slave keeps the messages of its latest
+//! reply to the master until the master has them intact (the next poll
+//! acknowledges them), sends the missing ones again on a retry, and gives
+//! them up when the last retry fails. Messages it sends to other nodes go
+//! once. A reply that begins after the timeout is not waited for: its
+//! messages are delivered if they arrive intact, and given up if not.
+//!
+//! **Skipping silent slaves** (`dead_after = k`, `probe_every = p`): a
+//! slave whose exchanges end without an answer k times in a row is skipped,
+//! and polled again only in every p-th cycle; its first answer ends that.
+//!
 //! Zero-load cycle, with e = enable time, r = receiver delay, T = turnaround,
 //! d(M,i) the wire delay master–slave i, Lp and Le the line bits of a poll and
 //! of an empty reply and tb the bit time:
@@ -29,6 +42,7 @@ use tracing::debug;
 use super::{sample_latency, AccessScheme, DurationStat, SchemeReport, SchemeValue};
 use crate::engine::{Dest, FrameKind, FrameOut, Reception, TxTimes, World};
 use crate::spec::{NodeId, PollingSpec};
+use crate::traffic::Message;
 use crate::units::Picos;
 
 const NEXT_POLL: u64 = 1;
@@ -61,6 +75,22 @@ pub struct Polling {
     timeouts: u64,
     empty_replies: u64,
     data_replies: u64,
+    /// Retries of the current slave's exchange so far.
+    attempt: u32,
+    /// Bus id of the reply to the current poll (`u64::MAX`: none yet).
+    reply_occ: u64,
+    /// A frame of that reply reached the master corrupted.
+    reply_bad: bool,
+    /// Per slave: messages of its latest reply to the master not yet acknowledged.
+    held: Vec<Vec<Message>>,
+    retries: u64,
+    /// Per slave: exchanges in a row that ended without an answer.
+    silent_in_row: Vec<u32>,
+    /// Per slave: the cycle in which it was found silent, while it is skipped.
+    skipped_since: Vec<Option<u64>>,
+    /// Cycles begun (the poll order wrapped around).
+    cycle_no: u64,
+    skipped_polls: u64,
 }
 
 impl Polling {
@@ -82,6 +112,15 @@ impl Polling {
             timeouts: 0,
             empty_replies: 0,
             data_replies: 0,
+            attempt: 0,
+            reply_occ: u64::MAX,
+            reply_bad: false,
+            held: vec![Vec::new(); nodes],
+            retries: 0,
+            silent_in_row: vec![0; nodes],
+            skipped_since: vec![None; nodes],
+            cycle_no: 0,
+            skipped_polls: 0,
         }
     }
 
@@ -103,6 +142,8 @@ impl Polling {
         let poll = FrameOut::control(FrameKind::Poll, Dest::Node(slave), self.spec.request_bits);
         let tx = w.transmit(master, now, &[poll]);
         self.current_poll = tx.occupancy;
+        self.reply_occ = u64::MAX;
+        self.reply_bad = false;
         self.deadline = tx.last_bit + self.spec.reply_timeout;
         debug!(t_ps = now.0, master = %w.spec().nodes[master].name, slave = %w.spec().nodes[slave].name, "poll");
         // If the slave cannot even see the poll before the deadline, the timeout
@@ -123,8 +164,64 @@ impl Polling {
         }
     }
 
+    /// The exchange with the current slave has had its answer (`answered`)
+    /// or timed out: poll it again (a retry) or move on to the next slave.
+    fn conclude(&mut self, w: &mut World, answered: bool) {
+        let slave = self.spec.order[self.idx];
+        let failed = !answered || self.reply_bad || !self.held[slave].is_empty();
+        if failed && self.attempt < self.spec.retries {
+            self.attempt += 1;
+            if w.in_window(w.now()) {
+                self.retries += 1;
+            }
+            self.poll(w);
+            return;
+        }
+        if self.reply_occ != u64::MAX && !answered {
+            // A reply begun after the timeout: its messages meet their fate on
+            // arrival (see on_receive), not here.
+            self.held[slave].clear();
+        }
+        for _ in 0..self.held[slave].len() {
+            w.count_given_up();
+        }
+        self.held[slave].clear();
+        w.set_holding(slave, 0);
+        self.attempt = 0;
+        if answered {
+            self.silent_in_row[slave] = 0;
+            if self.skipped_since[slave].take().is_some() || w.is_node_back(slave) {
+                w.node_answered(slave);
+            }
+        } else {
+            self.silent_in_row[slave] = self.silent_in_row[slave].saturating_add(1);
+            if self.spec.dead_after.is_some_and(|k| self.silent_in_row[slave] >= k)
+                && self.skipped_since[slave].is_none()
+            {
+                self.skipped_since[slave] = Some(self.cycle_no);
+                w.node_found_silent(slave);
+            }
+        }
+        self.advance(w);
+    }
+
+    /// Poll the next slave in order that is not being skipped this cycle.
     fn advance(&mut self, w: &mut World) {
-        self.idx = (self.idx + 1) % self.spec.order.len();
+        loop {
+            self.idx = (self.idx + 1) % self.spec.order.len();
+            if self.idx == 0 {
+                self.cycle_no += 1;
+            }
+            let slave = self.spec.order[self.idx];
+            match self.skipped_since[slave] {
+                Some(since) if (self.cycle_no - since) % u64::from(self.spec.probe_every) != 0 => {
+                    if w.in_window(w.now()) {
+                        self.skipped_polls += 1;
+                    }
+                }
+                _ => break,
+            }
+        }
         self.poll(w);
     }
 
@@ -145,21 +242,31 @@ impl Polling {
             0 => usize::MAX,
             n => n as usize,
         };
-        let take = w.queue_len(slave).min(limit);
         let counted = w.in_window(now);
         w.begin_tx(slave, now + wait);
+        let overhead = w.spec().frame.overhead_bits;
+        let resend = !self.held[slave].is_empty();
+        let take = if resend { self.held[slave].len() } else { w.queue_len(slave).min(limit) };
         if take == 0 {
             w.add_frame(FrameOut::control(FrameKind::EmptyReply, Dest::Node(master), self.spec.empty_reply_bits));
             if counted {
                 self.empty_replies += 1;
             }
         } else {
-            let overhead = w.spec().frame.overhead_bits;
-            for _ in 0..take {
-                let msg = w.pop_message(slave).expect("queue length checked");
+            for k in 0..take {
+                let msg = if resend {
+                    self.held[slave][k]
+                } else {
+                    let msg = w.pop_message(slave).expect("queue length checked");
+                    if msg.dest == master {
+                        self.held[slave].push(msg);
+                    }
+                    msg
+                };
                 w.count_access_attempt();
                 w.add_frame(FrameOut::data(msg, overhead));
             }
+            w.set_holding(slave, self.held[slave].len());
             if counted {
                 self.data_replies += 1;
             }
@@ -167,9 +274,13 @@ impl Polling {
         let tx = w.finish_tx();
         self.busy_until[slave] = tx.release;
         debug!(t_ps = now.0, slave = %w.spec().nodes[slave].name, frames = take, enable_ps = tx.enable.0, "reply");
-        if poll != self.current_poll || self.timeout_armed {
-            // The master has moved on, or times out regardless: this reply is late.
+        if poll != self.current_poll {
+            // The master has moved on: this reply is late.
             return;
+        }
+        self.reply_occ = tx.occupancy;
+        if self.timeout_armed {
+            return; // the timeout fires before the reply begins
         }
         let starts_at_master = w.seen_at(slave, master, tx.first_bit);
         if starts_at_master > self.deadline {
@@ -205,25 +316,44 @@ impl AccessScheme for Polling {
                 self.timeouts += 1;
             }
             debug!(t_ps = w.now().0, "reply timeout (external slave)");
-            self.advance(w);
+            self.conclude(w, false);
             return;
         }
         match tag {
-            NEXT_POLL => self.advance(w),
+            NEXT_POLL => self.conclude(w, true),
             TIMEOUT => {
                 if w.in_window(w.now()) {
                     self.timeouts += 1;
                 }
                 debug!(t_ps = w.now().0, "reply timeout");
-                self.advance(w);
+                self.conclude(w, false);
             }
             _ => unreachable!("polling sets only its own timers"),
         }
     }
 
     fn on_receive(&mut self, w: &mut World, rx: &Reception) {
+        let master = self.spec.master;
+        if rx.kind == FrameKind::Data || rx.kind == FrameKind::EmptyReply {
+            if rx.at == master && rx.occupancy == self.reply_occ {
+                // Part of the reply the master waits on.
+                if rx.corrupted {
+                    self.reply_bad = true;
+                } else if let Some(m) = rx.message {
+                    let held = &mut self.held[rx.from];
+                    if let Some(i) = held.iter().position(|h| *h == m) {
+                        held.remove(i);
+                    }
+                    w.set_holding(rx.from, held.len());
+                }
+            } else if rx.corrupted && rx.message.is_some() {
+                // Sent once (to another node, or in a reply the master no longer waits on).
+                w.count_given_up();
+            }
+            return;
+        }
         // Only slaves answer polls (an external node could address one to the master).
-        if rx.kind != FrameKind::Poll || rx.at == self.spec.master {
+        if rx.kind != FrameKind::Poll || rx.at == master {
             return;
         }
         if rx.corrupted {
@@ -240,6 +370,13 @@ impl AccessScheme for Polling {
             return;
         }
         self.reply(w, rx.at, rx.occupancy);
+    }
+
+    fn on_unheard(&mut self, w: &mut World, rx: &Reception) {
+        if rx.kind == FrameKind::Poll {
+            debug!(t_ps = w.now().0, slave = %w.spec().nodes[rx.at].name, "poll to a down slave");
+            self.no_reply(w, rx.occupancy);
+        }
     }
 
     fn on_external_tx(&mut self, w: &mut World, slave: NodeId, tx: &TxTimes, kinds: &[FrameKind]) {
@@ -277,6 +414,8 @@ impl AccessScheme for Polling {
                 ("empty_replies", SchemeValue::Count(self.empty_replies)),
                 ("timeouts", SchemeValue::Count(self.timeouts)),
                 ("polls_ignored", SchemeValue::Count(self.ignored)),
+                ("retries", SchemeValue::Count(self.retries)),
+                ("skipped_polls", SchemeValue::Count(self.skipped_polls)),
             ],
         }
     }

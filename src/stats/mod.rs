@@ -10,7 +10,7 @@ pub use latency::{LatencyStats, LatencySummary};
 /// Frame and message counters over the measured window.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
 pub struct FrameCounters {
-    /// Data frames resolved (delivered or corrupted).
+    /// Data frames resolved (delivered, corrupted or unheard at a down receiver).
     pub attempts: u64,
     pub delivered: u64,
     pub corrupted: u64,
@@ -25,6 +25,66 @@ pub struct FrameCounters {
     /// Control frames (polls, empty replies, tokens, ...) delivered intact or not.
     pub control_frames: u64,
     pub control_corrupted: u64,
+    /// Data frames whose receiver was down (lost there; their messages are given up).
+    pub unheard: u64,
+    /// Why data frames were corrupted (one cause per corrupted delivery).
+    pub corrupted_by: CorruptedBy,
+}
+
+/// Corrupted data-frame deliveries by cause. When several causes meet in
+/// one delivery, the first in this order is counted: another driver's signal
+/// (or a transmission cut short by collision detection), the floating line,
+/// a broken framing rule, noise.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+pub struct CorruptedBy {
+    pub contention: u64,
+    /// Recessive bits of an auto-direction driver that the line's bias does
+    /// not settle to a defined level at the receiver.
+    pub floating: u64,
+    /// UART framing rules: an enable cutting a bit, a character gap past
+    /// `char_timeout`, a start inside the `silence` after the previous frame.
+    pub framing: u64,
+    /// Bit errors drawn from the receiver's bit error rate.
+    pub noise: u64,
+}
+
+impl CorruptedBy {
+    pub fn total(&self) -> u64 {
+        self.contention + self.floating + self.framing + self.noise
+    }
+
+    pub fn count(&mut self, cause: Cause) {
+        match cause {
+            Cause::Intact => {}
+            Cause::Contention => self.contention += 1,
+            Cause::Floating => self.floating += 1,
+            Cause::Framing => self.framing += 1,
+            Cause::Noise => self.noise += 1,
+        }
+    }
+
+    pub fn add(&mut self, o: &CorruptedBy) {
+        self.contention += o.contention;
+        self.floating += o.floating;
+        self.framing += o.framing;
+        self.noise += o.noise;
+    }
+}
+
+/// What became of one delivery of a frame at one receiver.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Cause {
+    Intact,
+    Contention,
+    Floating,
+    Framing,
+    Noise,
+}
+
+impl Cause {
+    pub fn corrupted(self) -> bool {
+        self != Cause::Intact
+    }
 }
 
 /// UART framing faults over the measured window.

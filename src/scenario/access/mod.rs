@@ -72,7 +72,75 @@ pub fn validate(
     }
 }
 
+/// `access.faults`, sorted by time (equal times keep the file's order).
+#[derive(Debug, Default)]
+pub(crate) struct Faults {
+    pub lose_token_at: Vec<Picos>,
+    pub nodes: Vec<crate::spec::NodeFault>,
+}
+
+/// Most faults a scenario may list.
+pub const MAX_FAULTS: usize = 10_000;
+
 impl<'a> Access<'a> {
+    /// `access.faults`, each of a kind in `kinds`. A `node-up` needs the
+    /// node down at that instant and a `node-down` needs it up.
+    pub fn faults(&self, kinds: &[&str]) -> R<Faults> {
+        let v = self.v;
+        let mut out = Faults::default();
+        let Some(list) = &self.a.faults else { return Ok(out) };
+        if list.get_ref().len() > MAX_FAULTS {
+            return Err(v.err(list.span(), "access.faults", format!("at most {MAX_FAULTS} faults are supported")));
+        }
+        let mut nodes = Vec::new();
+        for (i, raw) in list.get_ref().iter().enumerate() {
+            let key = format!("access.faults[{i}]");
+            let f = raw.get_ref();
+            let kind = v.choice(&f.kind, &format!("{key}.kind"), kinds)?;
+            let at = v.time(&f.at, &format!("{key}.at"))?;
+            if kind == "lose-token" {
+                if let Some(n) = &f.node {
+                    return Err(v.err(n.span(), &format!("{key}.node"), "a lost token concerns no node: remove `node`"));
+                }
+                out.lose_token_at.push(at);
+                continue;
+            }
+            let name = f.node.as_ref().ok_or_else(|| {
+                v.err(raw.span(), &format!("{key}.node"), format!("a {kind} fault needs the node, e.g. node = \"{}\"", self.names[0]))
+            })?;
+            let node = self.find(name, &format!("{key}.node"))?;
+            nodes.push((at, i, node, kind == "node-down", raw.span()));
+        }
+        out.lose_token_at.sort();
+        nodes.sort_by_key(|&(at, i, ..)| (at, i));
+        let mut down = vec![false; self.nodes.len()];
+        for (at, i, node, is_down, span) in nodes {
+            if down[node] == is_down {
+                let key = format!("access.faults[{i}]");
+                let name = &self.names[node];
+                return Err(if is_down {
+                    v.err(span, &key, format!("\"{name}\" is already down at {at}: a node-down needs it up"))
+                } else {
+                    v.err(span, &key, format!("\"{name}\" is not down at {at}: a node-up needs an earlier node-down"))
+                        .with_hint("list the node-down first, at an earlier time")
+                });
+            }
+            down[node] = is_down;
+            out.nodes.push(crate::spec::NodeFault { at, node, down: is_down });
+        }
+        Ok(out)
+    }
+
+    /// An optional count of at most `max`.
+    pub fn count(&self, field: &Option<toml::Spanned<u32>>, key: &str, min: u32, max: u32) -> R<Option<u32>> {
+        let Some(f) = field else { return Ok(None) };
+        let n = *f.get_ref();
+        if !(min..=max).contains(&n) {
+            return Err(self.v.err(f.span(), &format!("access.{key}"), format!("{key} = {n} is outside {min} to {max}")));
+        }
+        Ok(Some(n))
+    }
+
     /// Resolve a node name.
     pub fn find(&self, s: &S, key: &str) -> R<NodeId> {
         self.names.iter().position(|n| n == s.get_ref()).ok_or_else(|| unknown_node(self.v, s, key, &self.names))

@@ -3,7 +3,23 @@
 use super::{Access, R};
 use crate::spec::{AccessSpec, PollingSpec};
 
-pub const KEYS: &[&str] = &["master", "max_per_poll", "request_bits", "empty_reply_bits", "reply_timeout"];
+pub const KEYS: &[&str] = &[
+    "master",
+    "max_per_poll",
+    "request_bits",
+    "empty_reply_bits",
+    "reply_timeout",
+    "retries",
+    "dead_after",
+    "probe_every",
+    "faults",
+];
+
+const FAULTS: &[&str] = &["node-down", "node-up"];
+
+/// Most retries of one exchange, skipped-slave thresholds and probe periods.
+pub const MAX_RETRIES: u32 = 1000;
+pub const MAX_CYCLES: u32 = 1_000_000;
 
 pub fn validate(c: &Access) -> R<AccessSpec> {
     let (v, a) = (c.v, c.a);
@@ -21,7 +37,24 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
     let timeout_raw = c.required(&a.reply_timeout, "reply_timeout", "reply_timeout = \"2 us\"")?;
     let max_per_poll = a.max_per_poll.as_ref().map(|m| *m.get_ref()).unwrap_or(1);
     c.check_burst(max_per_poll, None, "max_per_poll")?;
+    let faults = c.faults(FAULTS)?;
+    if let Some(f) = faults.nodes.iter().find(|f| f.node == master) {
+        return Err(v
+            .err(a.faults.as_ref().expect("faults were listed").span(), "access.faults", format!("a fault at {} takes down the master \"{}\": polling has no backup master here", f.at, c.names[master]))
+            .with_hint("fail slaves only"));
+    }
+    let dead_after = c.count(&a.dead_after, "dead_after", 1, MAX_CYCLES)?;
+    let probe_every = c.count(&a.probe_every, "probe_every", 1, MAX_CYCLES)?;
+    if let (None, Some(p)) = (dead_after, &a.probe_every) {
+        return Err(v
+            .err(p.span(), "access.probe_every", "probe_every applies to skipped slaves, and without dead_after no slave is skipped")
+            .with_hint("set dead_after, e.g. dead_after = 3"));
+    }
     Ok(AccessSpec::Polling(PollingSpec {
+        retries: c.count(&a.retries, "retries", 0, MAX_RETRIES)?.unwrap_or(0),
+        dead_after,
+        probe_every: probe_every.unwrap_or(1),
+        node_faults: faults.nodes,
         master,
         order,
         max_per_poll,

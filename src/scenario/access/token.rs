@@ -34,20 +34,11 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
         Some(n) => c.find(n, "access.recovery_node")?,
         None => order[0],
     };
-    let mut lose_token_at = Vec::new();
-    if let Some(list) = &a.faults {
-        for (i, f) in list.get_ref().iter().enumerate() {
-            let key = format!("access.faults[{i}]");
-            let f = f.get_ref();
-            v.choice(&f.kind, &format!("{key}.kind"), FAULTS)?;
-            lose_token_at.push(v.time(&f.at, &format!("{key}.at"))?);
-        }
-        if !lose_token_at.is_empty() && token_timeout.is_none() {
-            return Err(v
-                .err(list.span(), "access.faults", "a lost token is never recovered without access.token_timeout")
-                .with_hint("set token_timeout, e.g. token_timeout = \"20 us\""));
-        }
-        lose_token_at.sort();
+    let lose_token_at = c.faults(FAULTS)?.lose_token_at;
+    if let (Some(list), false, None) = (&a.faults, lose_token_at.is_empty(), token_timeout) {
+        return Err(v
+            .err(list.span(), "access.faults", "a lost token is never recovered without access.token_timeout")
+            .with_hint("set token_timeout, e.g. token_timeout = \"20 us\""));
     }
     Ok(AccessSpec::Token(TokenSpec {
         order,
