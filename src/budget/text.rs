@@ -144,6 +144,7 @@ fn nodes(o: &mut String, b: &Budget) {
             format_si(n.margin_v, "V"),
             format_si(n.idle_v, "V"),
             format!("{:?}", n.idle_state).to_lowercase(),
+            n.bit_error_rate.map_or(String::new(), |p| format!("{p:.3e}")),
         ]
     };
     // Nodes whose figures agree to three significant digits share a row (its first node's figures).
@@ -158,9 +159,10 @@ fn nodes(o: &mut String, b: &Budget) {
             r(n.margin_v),
             r(n.idle_v),
             format!("{:?}", n.idle_state),
+            n.bit_error_rate.map_or(String::new(), |p| format!("{p:.3e}")),
         ]
     };
-    let mut rows: Vec<(Vec<&str>, [String; 8], Vec<String>)> = Vec::new();
+    let mut rows: Vec<(Vec<&str>, [String; 9], Vec<String>)> = Vec::new();
     for (name, n) in list {
         let k = key(n);
         match rows.iter_mut().find(|r| r.1 == k) {
@@ -168,29 +170,33 @@ fn nodes(o: &mut String, b: &Budget) {
             None => rows.push((vec![name], k, cells(n))),
         }
     }
+    let noisy = b.nodes.values().any(|n| n.bit_error_rate.is_some());
     let rows: Vec<Vec<String>> = rows
         .into_iter()
-        .map(|(who, _, c)| {
+        .map(|(who, _, mut c)| {
+            if !noisy {
+                c.pop();
+            }
             let mut r = vec![names(&who)];
             r.extend(c);
             r
         })
         .collect();
-    table(
-        o,
-        &[
-            "node",
-            "step (min)",
-            "step (typ)",
-            "settled",
-            "drive load",
-            "weakest at a receiver",
-            "margin",
-            "idle",
-            "reads",
-        ],
-        &rows,
-    );
+    let mut head = vec![
+        "node",
+        "step (min)",
+        "step (typ)",
+        "settled",
+        "drive load",
+        "weakest at a receiver",
+        "margin",
+        "idle",
+        "reads",
+    ];
+    if noisy {
+        head.push("bit error rate");
+    }
+    table(o, &head, &rows);
 }
 
 /// Hand-overs, worst first; identical ones (same kind, minimum and setting) share a row.

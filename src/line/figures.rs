@@ -62,6 +62,13 @@ pub struct NodeFigures {
     /// settle past this receiver's threshold (it floats meanwhile); `None`
     /// (null) without a bias network or where the bias leaves it undefined.
     pub settle_s: Option<f64>,
+    /// The rms noise at its receiver (`line.noise` or the node's `noise`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub noise_v: Option<f64>,
+    /// Probability that its receiver takes one line bit wrong: Q(margin / noise),
+    /// or `line.bit_error_rate`. Absent when the scenario models no noise.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub bit_error_rate: Option<f64>,
 }
 
 /// A driver's worst amplitude at its own position: the smaller of its step and settled values.
@@ -124,5 +131,10 @@ pub fn node_figures(spec: &Spec, line: &LineModel, node: usize) -> NodeFigures {
         idle_v: line.settled.idle_v[node],
         idle_state: line.idle_state(spec, node),
         settle_s: line.settled.settle[node].map(|t| t.as_secs_f64()),
+        noise_v: spec.nodes[node].noise_v.filter(|_| spec.line.bit_error_rate.is_none()),
+        bit_error_rate: super::noise::modelled(spec).then(|| match spec.line.bit_error_rate {
+            Some(p) => p,
+            None => spec.nodes[node].noise_v.map_or(0.0, |s| super::noise::q(margin_of(spec, line, node) / s)),
+        }),
     }
 }

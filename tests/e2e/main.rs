@@ -11,6 +11,7 @@ mod cli_run;
 mod cosim;
 mod csma;
 mod electrical;
+mod faults;
 mod line_figures;
 mod mutation;
 mod pictures;

@@ -1,0 +1,226 @@
+//! Bit errors, retries and dead nodes under polling.
+//!
+//! References: a frame of n bits survives bit errors of probability p with
+//! probability (1 − p)ⁿ (independent bit errors: the binomial zero term);
+//! the normal upper tail Q(x) from statrs (a reference library from the
+//! package registry); the truncated geometric mean 1 + q + … + q^r of the
+//! polls one exchange takes when each fails with probability q and at most
+//! r retries follow. Times come from the documented polling timing model
+//! (README, "Timing model"), with every node at one position (no wire delay).
+
+use crate::common::{budget_toml, halfwire, run_toml};
+use serde_json::Value;
+
+/// A polling bus of `slaves` slaves, every node at 0 m: enable and disable
+/// 100 ns, receiver delay 50 ns, 1 Mbit/s NRZ, 16-bit polls and empty
+/// replies, 32 overhead bits, turnarounds 5 µs, reply timeout 20 µs.
+fn bus(slaves: usize, duration: &str, line_extra: &str, access_extra: &str, traffic: &str) -> String {
+    format!(
+        r#"
+name = "fault test"
+seed = 11
+duration = "{duration}"
+
+[line]
+length = "10 m"
+impedance = "120 ohm"
+velocity_factor = 0.7
+{line_extra}
+
+[transceiver]
+family = "tia485"
+enable_time = "100 ns"
+disable_time = "100 ns"
+receiver_delay = "50 ns"
+load = "20 pF"
+
+[frame]
+bit_rate = "1 Mbit/s"
+overhead_bits = 32
+
+[access]
+scheme = "polling"
+master = "m"
+request_bits = 16
+empty_reply_bits = 16
+turnaround = "5 us"
+reply_timeout = "20 us"
+{access_extra}
+
+[[node]]
+name = "m"
+position = "0 m"
+
+[nodes]
+count = {slaves}
+first = "0 m"
+spacing = "0 m"
+prefix = "s"
+{traffic}
+"#
+    )
+}
+
+fn u(j: &Value, path: &str) -> u64 {
+    path.split('.').fold(j, |v, k| &v[k]).as_u64().unwrap_or_else(|| panic!("{path} in {j}"))
+}
+
+fn ps(x: &Value) -> u64 {
+    (x.as_f64().expect("a number") * 1e12).round() as u64
+}
+
+/// The 99 % two-sided normal-approximation interval of a binomial proportion.
+fn within_binomial_99(hits: u64, n: u64, p: f64) -> bool {
+    let half = 2.576 * (p * (1.0 - p) / n as f64).sqrt();
+    ((hits as f64 / n as f64) - p).abs() <= half
+}
+
+#[test]
+fn noise_corrupts_data_frames_as_the_binomial_zero_term_says() {
+    let ber: f64 = 1e-4;
+    // Three frame lengths: 96, 544 and 2032 line bits; each slave sends one
+    // frame per period, well inside what the bus carries.
+    for (payload_bytes, period, seed) in [(8u64, "2 ms", 1), (64, "4 ms", 2), (250, "12 ms", 3)] {
+        let traffic =
+            format!("traffic = {{ pattern = \"periodic\", period = \"{period}\", payload = \"{payload_bytes} B\" }}");
+        let toml = bus(4, "3 s", &format!("bit_error_rate = {ber}"), "", &traffic).replace("seed = 11", &format!("seed = {seed}"));
+        let j = run_toml(&toml);
+        let bits = 32 + 8 * payload_bytes; // NRZ: one line bit per data bit
+        let p = 1.0 - (1.0 - ber).powi(bits as i32);
+        let (n, noisy) = (u(&j, "frames.attempts"), u(&j, "frames.corrupted_by.noise"));
+        assert!(n >= 990, "{n} frames");
+        assert!(within_binomial_99(noisy, n, p), "{payload_bytes} B: {noisy} of {n} corrupted, expected fraction {p}");
+        assert_eq!(u(&j, "frames.corrupted"), noisy, "noise is the only cause here");
+        // Without retries a corrupted reply's message is given up, never lost silently.
+        assert_eq!(u(&j, "frames.given_up"), noisy);
+    }
+}
+
+#[test]
+fn noise_and_margin_give_q_of_their_ratio() {
+    let base = bus(4, "2 s", "noise = \"320 mV\"", "", "traffic = { pattern = \"periodic\", period = \"2 ms\", payload = \"64 B\" }");
+    let b = budget_toml(&base, &[]);
+    let normal = statrs::distribution::Normal::new(0.0, 1.0).unwrap();
+    let m = &b["nodes"]["m"];
+    let margin = m["margin_v"].as_f64().unwrap();
+    let ber = m["bit_error_rate"].as_f64().unwrap();
+    let want = statrs::distribution::ContinuousCDF::sf(&normal, margin / 0.32);
+    assert!(((ber - want) / want).abs() < 1e-9, "budget BER {ber}, Q(m/σ) {want}");
+    assert!(ber > 1e-6 && ber < 1e-3, "a noise level that corrupts some frames: {ber}");
+    // The master receives the data replies: their corrupted fraction follows its BER.
+    let j = run_toml(&base);
+    let p = 1.0 - (1.0 - ber).powi(32 + 8 * 64);
+    let (n, noisy) = (u(&j, "frames.attempts"), u(&j, "frames.corrupted_by.noise"));
+    assert!(within_binomial_99(noisy, n, p), "{noisy} of {n} corrupted, expected fraction {p}");
+}
+
+#[test]
+fn retries_take_the_truncated_geometric_number_of_polls() {
+    // No traffic: every exchange is a poll (16 bits) and an empty reply (16
+    // bits); it fails when either is hit: q = 1 − (1 − p)^32.
+    let p = 2e-3;
+    for r in [1u32, 3] {
+        let toml = bus(4, "4 s", &format!("bit_error_rate = {p}"), &format!("retries = {r}"), "");
+        let j = run_toml(&toml);
+        let s = &j["scheme"];
+        let (polls, retries) = (s["polls"].as_u64().unwrap(), s["retries"].as_u64().unwrap());
+        let exchanges = polls - retries;
+        let q = 1.0 - (1.0f64 - p).powi(32);
+        // X = polls of one exchange: P(X = k) = q^(k−1)(1 − q) for k ≤ r, P(X = r + 1) = q^r.
+        let dist: Vec<(f64, f64)> = (1..=r + 1)
+            .map(|k| {
+                let pk = if k <= r { q.powi(k as i32 - 1) * (1.0 - q) } else { q.powi(r as i32) };
+                (f64::from(k), pk)
+            })
+            .collect();
+        let mean: f64 = dist.iter().map(|(k, pk)| k * pk).sum();
+        let geometric: f64 = (0..=r).map(|i| q.powi(i as i32)).sum();
+        assert!((mean - geometric).abs() < 1e-12);
+        let var: f64 = dist.iter().map(|(k, pk)| (k - mean).powi(2) * pk).sum();
+        let half = 1.96 * (var / exchanges as f64).sqrt();
+        let got = polls as f64 / exchanges as f64;
+        assert!((got - mean).abs() <= half, "r = {r}: {got} polls per exchange, expected {mean} ± {half}");
+    }
+}
+
+#[test]
+fn a_down_slave_is_found_silent_at_the_exact_timeout() {
+    // Zero load, four slaves. An answered exchange takes
+    // e + 16 tb + r + T + e + 16 tb + r + T = 42.3 µs; one that times out
+    // e + 16 tb + reply_timeout = 36.1 µs. s01 is polled at k · 169.2 µs; the
+    // first poll after its fault at 1 ms is at 1015.2 µs, timing out at
+    // 1051.3 µs; each later cycle lasts 36.1 + 3 · 42.3 = 163.0 µs, so the
+    // third timeout in a row is at 1051.3 + 2 · 163.0 = 1377.3 µs.
+    let faults = r#"dead_after = 3
+probe_every = 4
+faults = [ { at = "1 ms", kind = "node-down", node = "s01" }, { at = "3 ms", kind = "node-up", node = "s01" } ]"#;
+    let j = run_toml(&bus(4, "6 ms", "", faults, ""));
+    let o = &j["outages"][0];
+    assert_eq!(o["node"], "s01");
+    assert_eq!(ps(&o["down_at_s"]), 1_000_000_000);
+    assert_eq!(ps(&o["found_silent_after_s"]), 377_300_000, "{o}");
+    assert_eq!(ps(&o["up_at_s"]), 3_000_000_000);
+    // Back up, it answers at its next probe, probe_every cycles at most after
+    // the last one it missed: at worst it comes back just after a probe's
+    // poll, whose timeout (36.1 µs) and the rest of that cycle pass, then
+    // four cycles of three answered slots (126.9 µs, its own skipped or
+    // missed), then its own answered exchange (42.3 µs).
+    let answered = ps(&o["answered_after_s"]);
+    assert!(answered <= 36_100_000 + 4 * 126_900_000 + 42_300_000, "answered after {answered} ps");
+    assert!(u(&j, "scheme.skipped_polls") > 0);
+}
+
+#[test]
+fn every_message_is_delivered_dropped_given_up_or_still_queued() {
+    let traffic = "traffic = { pattern = \"poisson\", rate = \"800/s\", payload = \"40 B\" }\nqueue_limit = 40";
+    let faults = r#"retries = 1
+dead_after = 2
+faults = [ { at = "20 ms", kind = "node-down", node = "s02" }, { at = "60 ms", kind = "node-up", node = "s02" },
+           { at = "70 ms", kind = "node-down", node = "s03" } ]"#;
+    let j = run_toml(&bus(6, "100 ms", "bit_error_rate = 3e-4", faults, &traffic.replace("queue_limit = 40", "")));
+    let f = &j["frames"];
+    let arrived = u(&j, "frames.arrived");
+    let accounted = u(&j, "frames.delivered") + u(&j, "frames.dropped") + u(&j, "frames.given_up") + u(&j, "frames.queued_at_end");
+    assert_eq!(accounted, arrived, "{f}");
+    assert!(u(&j, "frames.given_up") > 0 && u(&j, "scheme.retries") > 0, "{f}");
+    assert_eq!(j["outages"].as_array().unwrap().len(), 2);
+    assert!(j["outages"][1]["up_at_s"].is_null());
+}
+
+/// A user's mistake: exit 2 and a message naming file:line:column and the key.
+fn refused(toml: &str, key: &str, words: &str) {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("bad.toml");
+    std::fs::write(&path, toml).unwrap();
+    let out = halfwire(&["run", path.to_str().unwrap()]);
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{err}");
+    let file = path.to_str().unwrap();
+    assert!(err.contains(&format!("{file}:")) && err.contains(key) && err.contains(words), "{err}");
+    let (_, rest) = err.split_once(&format!("{file}:")).unwrap();
+    let mut parts = rest.splitn(3, ':');
+    assert!(parts.next().unwrap().parse::<u32>().is_ok() && parts.next().unwrap().parse::<u32>().is_ok(), "{err}");
+}
+
+#[test]
+fn bad_fault_and_noise_input_is_refused_with_its_place() {
+    let down = |node: &str| format!("faults = [ {{ at = \"1 ms\", kind = \"node-down\", node = \"{node}\" }} ]");
+    refused(&bus(3, "5 ms", "", &down("s9"), ""), "access.faults[0].node", "no node is called \"s9\"");
+    refused(&bus(3, "5 ms", "", &down("m"), ""), "access.faults", "master");
+    refused(
+        &bus(3, "5 ms", "", "faults = [ { at = \"1 ms\", kind = \"node-up\", node = \"s01\" } ]", ""),
+        "access.faults[0]",
+        "needs an earlier node-down",
+    );
+    refused(&bus(3, "5 ms", "", "faults = [ { at = \"1 ms\", kind = \"node-down\" } ]", ""), "access.faults[0].node", "needs the node");
+    refused(&bus(3, "5 ms", "", "probe_every = 3", ""), "access.probe_every", "dead_after");
+    refused(&bus(3, "5 ms", "", "retries = 5000", ""), "access.retries", "outside 0 to 1000");
+    refused(&bus(3, "5 ms", "bit_error_rate = 0.7", "", ""), "line.bit_error_rate", "outside 0 to 0.5");
+    refused(&bus(3, "5 ms", "bit_error_rate = 1e-6\nnoise = \"10 mV\"", "", ""), "line.bit_error_rate", "not both");
+    refused(&bus(3, "5 ms", "noise = \"-3 mV\"", "", ""), "line.noise", "negative");
+    // A scheme without replies has no retries.
+    let tdma = bus(3, "5 ms", "", "", "").replace("scheme = \"polling\"", "scheme = \"csma\"").replace("retries", "x");
+    let tdma = tdma.replace("master = \"m\"\n", "").replace("request_bits = 16\nempty_reply_bits = 16\n", "");
+    let tdma = tdma.replace("reply_timeout = \"20 us\"", "retries = 2");
+    refused(&tdma, "access.retries", "does not apply to scheme \"csma\"");
+}
