@@ -46,6 +46,8 @@ pub fn flatten(report: &Value) -> BTreeMap<String, f64> {
 pub const CONDITIONAL: &[(&str, &str)] = &[
     ("handover.slack_min_s", "no hand-over from one driver to another happened in the measured window"),
     ("handover.slack_p01_s", "no hand-over from one driver to another happened in the measured window"),
+    ("recovery.found_silent_after_max_s", "no down period was found silent (see recovery.never_found_silent)"),
+    ("recovery.answered_after_max_s", "no node came back and answered (see recovery.never_answered)"),
 ];
 
 fn conditional(metric: &str) -> Option<&'static str> {

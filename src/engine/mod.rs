@@ -260,6 +260,14 @@ impl Simulation {
         let w = &mut self.world;
         while let Some((t, ev)) = w.queue.pop() {
             if let Event::Deliver { frame, to } = ev {
+                let f = &w.frames[frame as usize];
+                if let (FrameKind::Data, Some(m), false) = (f.kind, f.message, f.aborted) {
+                    if !self.scheme.holds(&m) {
+                        // Neither delivered nor given up in the run, and not
+                        // held by the scheme (which counts its own).
+                        w.stats.frames.in_flight_at_end += 1;
+                    }
+                }
                 w.now = w.now.max(t);
                 resolve_delivery(w, frame, to as usize);
             }
@@ -372,6 +380,10 @@ impl Simulation {
                 if corrupted {
                     st.frames.corrupted += 1;
                     st.frames.corrupted_by.count(cause);
+                    if f.message.is_some() && !f.aborted && !self.scheme.resends_corrupted() {
+                        // Sent once: the message is lost, and counted so.
+                        st.frames.given_up += 1;
+                    }
                 } else if let Some(m) = f.message {
                     st.frames.delivered += 1;
                     st.payload_bits += u128::from(m.payload_bits);

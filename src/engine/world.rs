@@ -381,7 +381,13 @@ impl World {
     pub(crate) fn set_down(&mut self, node: NodeId, down: bool) {
         self.down[node] = down;
         if down {
-            self.outages.push(Outage { node, down_at: self.now, found_silent_at: None, up_at: None, answered_at: None });
+            self.outages.push(Outage {
+                node,
+                down_at: self.now,
+                found_silent_at: None,
+                up_at: None,
+                answered_at: None,
+            });
         } else if let Some(o) = self.outages.iter_mut().rev().find(|o| o.node == node) {
             o.up_at = Some(self.now);
         }

@@ -67,10 +67,8 @@ pub fn violations(report: &Value) -> Vec<String> {
             "frames.attempts ({attempts}) ≠ delivered ({delivered}) + corrupted ({corrupted}) + unheard ({unheard})"
         ));
     }
-    let by: u64 = ["contention", "floating", "framing", "noise"]
-        .iter()
-        .map(|k| count(&format!("frames.corrupted_by.{k}")))
-        .sum();
+    let by: u64 =
+        ["contention", "floating", "framing", "noise"].iter().map(|k| count(&format!("frames.corrupted_by.{k}"))).sum();
     if by != corrupted {
         bad(format!("frames.corrupted_by adds up to {by}, not frames.corrupted ({corrupted})"));
     }
@@ -203,8 +201,17 @@ fn finite_everywhere(v: &Value, path: &str, bad: &mut impl FnMut(String)) {
                 if p == "run" {
                     continue;
                 }
-                // Fields where null means "none": no edge limit, an open line.
-                let nullable = ["limits.max_bit_rate_bit_s", "line.dc_load_ohm"];
+                // Fields where null means "none": no edge limit, an open line,
+                // a down period not (yet) noticed, ended or answered.
+                let nullable = [
+                    "limits.max_bit_rate_bit_s",
+                    "line.dc_load_ohm",
+                    "recovery.found_silent_after_max_s",
+                    "recovery.answered_after_max_s",
+                    "outages.found_silent_after_s",
+                    "outages.up_at_s",
+                    "outages.answered_after_s",
+                ];
                 if x.is_null() && !nullable.contains(&p.as_str()) && !p.ends_with(".amplitude_dc_v") {
                     bad(format!("{p} is null (not a finite number)"));
                 }

@@ -44,6 +44,9 @@ pub struct Report {
     /// Down periods of nodes (`access.faults`), in the order they began.
     #[serde(skip_serializing_if = "Vec::is_empty")]
     pub outages: Vec<OutageFigures>,
+    /// Totals over the down periods, when the scenario injects node faults.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub recovery: Option<RecoveryFigures>,
     pub warnings: Vec<Warning>,
     /// Set when simulated time stopped advancing: the run ended there.
     #[serde(skip_serializing_if = "Option::is_none")]
@@ -78,12 +81,26 @@ pub struct Frames {
     pub arrived: u64,
     pub control: u64,
     pub control_corrupted: u64,
-    /// Messages still queued, or held by the scheme for a retry, when the run ended.
+    /// Messages still queued, held by the scheme for a retry, or on the wire when the run ended.
     pub queued_at_end: u64,
     /// Data frames lost at a receiver that was down.
     pub unheard: u64,
     /// Corrupted data-frame deliveries by cause; they add up to `corrupted`.
     pub corrupted_by: crate::stats::CorruptedBy,
+}
+
+/// Down periods together: how many, and the longest times to notice and to recover.
+#[derive(Clone, Copy, Debug, Serialize)]
+pub struct RecoveryFigures {
+    pub outages: u64,
+    /// Down periods the scheme never treated as silent (short ones, or no `dead_after`).
+    pub never_found_silent: u64,
+    /// Down periods that ended but whose node never answered afterwards.
+    pub never_answered: u64,
+    /// The longest time from a node going down to the scheme skipping it (null if none was).
+    pub found_silent_after_max_s: Option<f64>,
+    /// The longest time from a node coming back to its first answer (null if none did).
+    pub answered_after_max_s: Option<f64>,
 }
 
 /// One down period of a node.
@@ -266,6 +283,7 @@ impl Report {
                     answered_after_s: o.answered_at.zip(o.up_at).map(|(a, u)| (a - u).as_secs_f64()),
                 })
                 .collect(),
+            recovery: t.outages.map(|o| o.figures()),
             warnings,
             stalled_at_s: None,
             aborted_at_s: None,
@@ -364,7 +382,7 @@ fn warnings(w: &World, c: &Contention, f: &Floating, frames: &Frames) -> Vec<War
             code: "given-up",
             node: None,
             message: format!(
-                "{} messages given up after the scheme's last allowed attempt (max_attempts)",
+                "{} messages given up: their last allowed attempt failed (max_attempts, polling retries; token, TDMA and arbitration send a message once)",
                 frames.given_up
             ),
         });

@@ -57,9 +57,65 @@ pub struct Tallies {
     pub handover_slack_min_ps: Option<i64>,
     #[serde(default)]
     pub handovers_contended: u64,
+    /// Down periods of nodes, when the scenario injects node faults.
+    #[serde(default)]
+    pub outages: Option<OutageTally>,
     /// UART framing faults, when the report has a `uart` object.
     #[serde(default)]
     pub uart: Option<UartTally>,
+}
+
+/// Down periods, for merging: counts and the longest times.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
+pub struct OutageTally {
+    pub count: u64,
+    /// Down periods the scheme never treated as silent.
+    pub never_found_silent: u64,
+    /// Down periods that ended but whose node never answered afterwards.
+    pub never_answered: u64,
+    pub found_silent_after_max_ps: Option<u64>,
+    pub answered_after_max_ps: Option<u64>,
+}
+
+impl OutageTally {
+    fn of(w: &World) -> Option<OutageTally> {
+        if w.spec.access.node_faults().is_empty() {
+            return None;
+        }
+        let mut t = OutageTally::default();
+        for o in &w.outages {
+            t.count += 1;
+            match o.found_silent_at {
+                Some(f) => t.found_silent_after_max_ps = t.found_silent_after_max_ps.max(Some((f - o.down_at).0)),
+                None => t.never_found_silent += 1,
+            }
+            match (o.up_at, o.answered_at) {
+                (Some(u), Some(a)) => t.answered_after_max_ps = t.answered_after_max_ps.max(Some((a - u).0)),
+                (Some(_), None) => t.never_answered += 1,
+                (None, _) => {}
+            }
+        }
+        Some(t)
+    }
+
+    /// The report's `recovery` object.
+    pub fn figures(&self) -> super::RecoveryFigures {
+        super::RecoveryFigures {
+            outages: self.count,
+            never_found_silent: self.never_found_silent,
+            never_answered: self.never_answered,
+            found_silent_after_max_s: self.found_silent_after_max_ps.map(|x| Picos(x).as_secs_f64()),
+            answered_after_max_s: self.answered_after_max_ps.map(|x| Picos(x).as_secs_f64()),
+        }
+    }
+
+    fn add(&mut self, o: &OutageTally) {
+        self.count += o.count;
+        self.never_found_silent += o.never_found_silent;
+        self.never_answered += o.never_answered;
+        self.found_silent_after_max_ps = self.found_silent_after_max_ps.max(o.found_silent_after_max_ps);
+        self.answered_after_max_ps = self.answered_after_max_ps.max(o.answered_after_max_ps);
+    }
 }
 
 /// The `uart` counters, for merging.
@@ -106,7 +162,8 @@ impl Tallies {
             control_corrupted: st.frames.control_corrupted,
             corrupted_by: st.frames.corrupted_by,
             queued_at_end: w.queues.iter().map(|q| q.len() as u64).sum::<u64>()
-                + w.holding.iter().map(|&h| h as u64).sum::<u64>(),
+                + w.holding.iter().map(|&h| h as u64).sum::<u64>()
+                + st.frames.in_flight_at_end,
             unheard: st.frames.unheard,
             access_attempts: st.frames.access_attempts,
             contention_events: c.events,
@@ -125,6 +182,7 @@ impl Tallies {
             handovers: handover.count,
             handover_slack_min_ps: handover.min,
             handovers_contended: handover.contended,
+            outages: OutageTally::of(w),
             uart: super::firmware::UartFigures::of(w).map(|u| UartTally {
                 cut_frames: u.cut_frames,
                 char_timeouts: u.char_timeouts,
@@ -139,6 +197,13 @@ impl Tallies {
         let mut t = Tallies { handover_slack_min_ps: Some(0), ..Tallies::default() };
         if super::firmware::present(spec) {
             t.uart = Some(UartTally::default());
+        }
+        if !spec.access.node_faults().is_empty() {
+            t.outages = Some(OutageTally {
+                found_silent_after_max_ps: Some(0),
+                answered_after_max_ps: Some(0),
+                ..Default::default()
+            });
         }
         for n in spec.nodes.iter().filter(|n| !n.traffic.is_empty()) {
             t.latency_nodes.insert(n.name.clone(), LatencyTally::default());
@@ -188,6 +253,9 @@ impl Tallies {
             (Some(a), Some(b)) => Some(a.min(b)),
             (a, b) => a.or(b),
         };
+        if let Some(b) = &o.outages {
+            self.outages.get_or_insert_with(OutageTally::default).add(b);
+        }
         if let Some(b) = o.uart {
             let a = self.uart.get_or_insert_with(UartTally::default);
             a.cut_frames += b.cut_frames;
@@ -283,6 +351,7 @@ impl Tallies {
                 "slack_min_s": self.handover_slack_min_ps.map(|x| x as f64 * 1e-12),
             },
             "uart": self.uart,
+            "recovery": self.outages.map(|o| o.figures()),
         });
         let mut m = crate::check::flatten(&figures);
         put_latency(&mut m, "latency_s.all", &self.latency)?;

@@ -369,7 +369,11 @@ fn validate_line(v: &V, l: &RawLine, at: Range<usize>) -> R<LineSpec> {
 fn node_noise(v: &V, n: &S, key: &str, line: &LineSpec) -> R<f64> {
     if line.bit_error_rate.is_some() {
         return Err(v
-            .err(n.span(), key, "line.bit_error_rate sets every receiver's bit error rate: a node's noise has no effect")
+            .err(
+                n.span(),
+                key,
+                "line.bit_error_rate sets every receiver's bit error rate: a node's noise has no effect",
+            )
             .with_hint("remove line.bit_error_rate to derive bit errors from noise and margins"));
     }
     noise(v, n, key)

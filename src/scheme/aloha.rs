@@ -78,6 +78,14 @@ impl AccessScheme for Aloha {
         "aloha"
     }
 
+    fn resends_corrupted(&self) -> bool {
+        true
+    }
+
+    fn holds(&self, msg: &crate::traffic::Message) -> bool {
+        self.flight[msg.source].is_some_and(|f| f.msg == *msg)
+    }
+
     fn default_destination(&self, source: NodeId) -> NodeId {
         first_other_node(source)
     }

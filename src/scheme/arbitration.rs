@@ -320,6 +320,14 @@ impl AccessScheme for Arbitration {
         "arbitration"
     }
 
+    fn resends_corrupted(&self) -> bool {
+        true // ideal feedback: a damaged frame is sent again
+    }
+
+    fn holds(&self, msg: &crate::traffic::Message) -> bool {
+        self.nodes[msg.source].msg.is_some_and(|m| m == *msg)
+    }
+
     fn default_destination(&self, source: NodeId) -> NodeId {
         first_other_node(source)
     }

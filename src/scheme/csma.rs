@@ -262,6 +262,15 @@ impl AccessScheme for Csma {
         "csma"
     }
 
+    fn resends_corrupted(&self) -> bool {
+        // With collision detection a frame that ends undisturbed counts as sent.
+        !self.spec.collision_detect
+    }
+
+    fn holds(&self, msg: &crate::traffic::Message) -> bool {
+        self.nodes[msg.source].msg.is_some_and(|m| m == *msg)
+    }
+
     fn default_destination(&self, source: NodeId) -> NodeId {
         first_other_node(source)
     }

@@ -43,6 +43,22 @@ pub trait AccessScheme: std::fmt::Debug {
     /// The receiver output of `rx.at` has shown the last bit of a frame.
     fn on_receive(&mut self, world: &mut World, rx: &Reception);
 
+    /// Does the scheme send a corrupted data frame's message again (and count
+    /// it as given up itself when it stops trying)? Otherwise the engine
+    /// counts the message of every corrupted data frame as given up, except
+    /// frames the sender cut short itself (collision detection), whose
+    /// messages the scheme keeps.
+    fn resends_corrupted(&self) -> bool {
+        false
+    }
+
+    /// Does the scheme still hold `msg` (to send it again if it is lost)?
+    /// A message on the wire at the end of a run that no scheme holds counts
+    /// as still queued.
+    fn holds(&self, _msg: &crate::traffic::Message) -> bool {
+        false
+    }
+
     /// A frame reached `rx.at` while that node was down: nobody took it.
     /// Schemes that wait on the node's answer react here.
     fn on_unheard(&mut self, _world: &mut World, _rx: &Reception) {}

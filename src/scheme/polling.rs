@@ -207,14 +207,35 @@ impl Polling {
 
     /// Poll the next slave in order that is not being skipped this cycle.
     fn advance(&mut self, w: &mut World) {
+        let n = self.spec.order.len();
+        let mut passed = 0;
         loop {
-            self.idx = (self.idx + 1) % self.spec.order.len();
+            self.idx = (self.idx + 1) % n;
             if self.idx == 0 {
                 self.cycle_no += 1;
+                if passed >= n {
+                    // A whole cycle skipped: every slave is skipped. Jump to
+                    // the next cycle in which one is probed (O(n), not O(n·p)).
+                    let p = u64::from(self.spec.probe_every);
+                    let next = self
+                        .skipped_since
+                        .iter()
+                        .flatten()
+                        .map(|&since| since + (self.cycle_no - since).div_ceil(p) * p)
+                        .min()
+                        .expect("every slave is skipped");
+                    let jumped = next - self.cycle_no;
+                    if w.in_window(w.now()) {
+                        self.skipped_polls += jumped * n as u64;
+                    }
+                    self.cycle_no = next;
+                    passed = 0;
+                }
             }
             let slave = self.spec.order[self.idx];
             match self.skipped_since[slave] {
                 Some(since) if (self.cycle_no - since) % u64::from(self.spec.probe_every) != 0 => {
+                    passed += 1;
                     if w.in_window(w.now()) {
                         self.skipped_polls += 1;
                     }
@@ -296,6 +317,14 @@ impl Polling {
 impl AccessScheme for Polling {
     fn name(&self) -> &'static str {
         "polling"
+    }
+
+    fn resends_corrupted(&self) -> bool {
+        true
+    }
+
+    fn holds(&self, msg: &Message) -> bool {
+        self.held[msg.source].contains(msg)
     }
 
     fn default_destination(&self, _source: NodeId) -> NodeId {

@@ -25,6 +25,8 @@ pub struct FrameCounters {
     /// Control frames (polls, empty replies, tokens, ...) delivered intact or not.
     pub control_frames: u64,
     pub control_corrupted: u64,
+    /// Messages on the wire when the run ended, sent by a scheme that does not hold them.
+    pub in_flight_at_end: u64,
     /// Data frames whose receiver was down (lost there; their messages are given up).
     pub unheard: u64,
     /// Why data frames were corrupted (one cause per corrupted delivery).

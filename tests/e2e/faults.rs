@@ -83,7 +83,8 @@ fn noise_corrupts_data_frames_as_the_binomial_zero_term_says() {
     for (payload_bytes, period, seed) in [(8u64, "2 ms", 1), (64, "4 ms", 2), (250, "12 ms", 3)] {
         let traffic =
             format!("traffic = {{ pattern = \"periodic\", period = \"{period}\", payload = \"{payload_bytes} B\" }}");
-        let toml = bus(4, "3 s", &format!("bit_error_rate = {ber}"), "", &traffic).replace("seed = 11", &format!("seed = {seed}"));
+        let toml = bus(4, "3 s", &format!("bit_error_rate = {ber}"), "", &traffic)
+            .replace("seed = 11", &format!("seed = {seed}"));
         let j = run_toml(&toml);
         let bits = 32 + 8 * payload_bytes; // NRZ: one line bit per data bit
         let p = 1.0 - (1.0 - ber).powi(bits as i32);
@@ -98,7 +99,13 @@ fn noise_corrupts_data_frames_as_the_binomial_zero_term_says() {
 
 #[test]
 fn noise_and_margin_give_q_of_their_ratio() {
-    let base = bus(4, "2 s", "noise = \"320 mV\"", "", "traffic = { pattern = \"periodic\", period = \"2 ms\", payload = \"64 B\" }");
+    let base = bus(
+        4,
+        "2 s",
+        "noise = \"320 mV\"",
+        "",
+        "traffic = { pattern = \"periodic\", period = \"2 ms\", payload = \"64 B\" }",
+    );
     let b = budget_toml(&base, &[]);
     let normal = statrs::distribution::Normal::new(0.0, 1.0).unwrap();
     let m = &b["nodes"]["m"];
@@ -180,7 +187,8 @@ faults = [ { at = "20 ms", kind = "node-down", node = "s02" }, { at = "60 ms", k
     let j = run_toml(&bus(6, "100 ms", "bit_error_rate = 3e-4", faults, &traffic.replace("queue_limit = 40", "")));
     let f = &j["frames"];
     let arrived = u(&j, "frames.arrived");
-    let accounted = u(&j, "frames.delivered") + u(&j, "frames.dropped") + u(&j, "frames.given_up") + u(&j, "frames.queued_at_end");
+    let accounted =
+        u(&j, "frames.delivered") + u(&j, "frames.dropped") + u(&j, "frames.given_up") + u(&j, "frames.queued_at_end");
     assert_eq!(accounted, arrived, "{f}");
     assert!(u(&j, "frames.given_up") > 0 && u(&j, "scheme.retries") > 0, "{f}");
     assert_eq!(j["outages"].as_array().unwrap().len(), 2);
@@ -212,7 +220,11 @@ fn bad_fault_and_noise_input_is_refused_with_its_place() {
         "access.faults[0]",
         "needs an earlier node-down",
     );
-    refused(&bus(3, "5 ms", "", "faults = [ { at = \"1 ms\", kind = \"node-down\" } ]", ""), "access.faults[0].node", "needs the node");
+    refused(
+        &bus(3, "5 ms", "", "faults = [ { at = \"1 ms\", kind = \"node-down\" } ]", ""),
+        "access.faults[0].node",
+        "needs the node",
+    );
     refused(&bus(3, "5 ms", "", "probe_every = 3", ""), "access.probe_every", "dead_after");
     refused(&bus(3, "5 ms", "", "retries = 5000", ""), "access.retries", "outside 0 to 1000");
     refused(&bus(3, "5 ms", "bit_error_rate = 0.7", "", ""), "line.bit_error_rate", "outside 0 to 0.5");
@@ -223,4 +235,46 @@ fn bad_fault_and_noise_input_is_refused_with_its_place() {
     let tdma = tdma.replace("master = \"m\"\n", "").replace("request_bits = 16\nempty_reply_bits = 16\n", "");
     let tdma = tdma.replace("reply_timeout = \"20 us\"", "retries = 2");
     refused(&tdma, "access.retries", "does not apply to scheme \"csma\"");
+}
+
+#[test]
+fn no_demo_loses_a_message_silently() {
+    // With no warmup every arrival is counted, so each message must be
+    // delivered, dropped, given up or still queued (held or on the wire) at the end.
+    let mut demos: Vec<_> = std::fs::read_dir("scenarios")
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .filter(|p| p.extension().is_some_and(|x| x == "toml"))
+        .collect();
+    demos.sort();
+    // As written, and with noise that corrupts frames under every scheme.
+    let cases: Vec<_> =
+        demos.iter().flat_map(|p| [(p.clone(), "warmup=\"0 s\""), (p.clone(), "line.noise=\"300 mV\"")]).collect();
+    let results = crate::common::par_map(&cases, |(p, set)| {
+        let out = halfwire(&[
+            "run",
+            p.to_str().unwrap(),
+            "--format",
+            "json",
+            "--duration",
+            "300 ms",
+            "--set",
+            "warmup=\"0 s\"",
+            "--set",
+            set,
+        ]);
+        assert!(out.status.success(), "{}: {}", p.display(), String::from_utf8_lossy(&out.stderr));
+        (p.clone(), serde_json::from_slice::<Value>(&out.stdout).unwrap())
+    });
+    let mut corrupted = 0;
+    for (p, j) in results {
+        corrupted += u(&j, "frames.corrupted");
+        let arrived = u(&j, "frames.arrived");
+        let accounted = u(&j, "frames.delivered")
+            + u(&j, "frames.dropped")
+            + u(&j, "frames.given_up")
+            + u(&j, "frames.queued_at_end");
+        assert_eq!(accounted, arrived, "{}: {}", p.display(), j["frames"]);
+    }
+    assert!(corrupted > 1000, "the noisy variants corrupt frames: {corrupted}");
 }

@@ -224,6 +224,8 @@ const WORDS: &[&str] = &[
     "random",
     "typical",
     "lose-token",
+    "node-down",
+    "node-up",
     "non",
     "current",
     "voltage",
@@ -261,6 +263,15 @@ const KEYS: &[(&str, &str)] = &[
     ("transceiver.react_at", "\"stop-sample\""),
     ("transceiver.driver", "\"auto-direction\""),
     ("access.turnaround", "\"1 char\""),
+    ("line.bit_error_rate", "0.5"),
+    ("line.bit_error_rate", "1e-5"),
+    ("line.noise", "\"10 V\""),
+    ("line.noise", "\"1 nV\""),
+    ("access.retries", "1000"),
+    ("access.dead_after", "1"),
+    ("access.probe_every", "1000000"),
+    ("access.faults", "[ { at = \"1 us\", kind = \"node-down\", node = \"s01\" } ]"),
+    ("access.faults", "[ { at = \"0 s\", kind = \"node-down\", node = \"s02\" }, { at = \"0 s\", kind = \"node-up\", node = \"s02\" } ]"),
 ];
 
 /// Apply one random mutation to `text`.

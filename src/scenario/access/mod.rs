@@ -100,13 +100,21 @@ impl<'a> Access<'a> {
             let at = v.time(&f.at, &format!("{key}.at"))?;
             if kind == "lose-token" {
                 if let Some(n) = &f.node {
-                    return Err(v.err(n.span(), &format!("{key}.node"), "a lost token concerns no node: remove `node`"));
+                    return Err(v.err(
+                        n.span(),
+                        &format!("{key}.node"),
+                        "a lost token concerns no node: remove `node`",
+                    ));
                 }
                 out.lose_token_at.push(at);
                 continue;
             }
             let name = f.node.as_ref().ok_or_else(|| {
-                v.err(raw.span(), &format!("{key}.node"), format!("a {kind} fault needs the node, e.g. node = \"{}\"", self.names[0]))
+                v.err(
+                    raw.span(),
+                    &format!("{key}.node"),
+                    format!("a {kind} fault needs the node, e.g. node = \"{}\"", self.names[0]),
+                )
             })?;
             let node = self.find(name, &format!("{key}.node"))?;
             nodes.push((at, i, node, kind == "node-down", raw.span()));
@@ -136,7 +144,11 @@ impl<'a> Access<'a> {
         let Some(f) = field else { return Ok(None) };
         let n = *f.get_ref();
         if !(min..=max).contains(&n) {
-            return Err(self.v.err(f.span(), &format!("access.{key}"), format!("{key} = {n} is outside {min} to {max}")));
+            return Err(self.v.err(
+                f.span(),
+                &format!("access.{key}"),
+                format!("{key} = {n} is outside {min} to {max}"),
+            ));
         }
         Ok(Some(n))
     }

@@ -40,14 +40,25 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
     let faults = c.faults(FAULTS)?;
     if let Some(f) = faults.nodes.iter().find(|f| f.node == master) {
         return Err(v
-            .err(a.faults.as_ref().expect("faults were listed").span(), "access.faults", format!("a fault at {} takes down the master \"{}\": polling has no backup master here", f.at, c.names[master]))
+            .err(
+                a.faults.as_ref().expect("faults were listed").span(),
+                "access.faults",
+                format!(
+                    "a fault at {} takes down the master \"{}\": polling has no backup master here",
+                    f.at, c.names[master]
+                ),
+            )
             .with_hint("fail slaves only"));
     }
     let dead_after = c.count(&a.dead_after, "dead_after", 1, MAX_CYCLES)?;
     let probe_every = c.count(&a.probe_every, "probe_every", 1, MAX_CYCLES)?;
     if let (None, Some(p)) = (dead_after, &a.probe_every) {
         return Err(v
-            .err(p.span(), "access.probe_every", "probe_every applies to skipped slaves, and without dead_after no slave is skipped")
+            .err(
+                p.span(),
+                "access.probe_every",
+                "probe_every applies to skipped slaves, and without dead_after no slave is skipped",
+            )
             .with_hint("set dead_after, e.g. dead_after = 3"));
     }
     Ok(AccessSpec::Polling(PollingSpec {
