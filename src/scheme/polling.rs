@@ -234,7 +234,7 @@ impl Polling {
             }
             let slave = self.spec.order[self.idx];
             match self.skipped_since[slave] {
-                Some(since) if (self.cycle_no - since) % u64::from(self.spec.probe_every) != 0 => {
+                Some(since) if !(self.cycle_no - since).is_multiple_of(u64::from(self.spec.probe_every)) => {
                     passed += 1;
                     if w.in_window(w.now()) {
                         self.skipped_polls += 1;
