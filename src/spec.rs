@@ -686,6 +686,9 @@ pub struct PollingSpec {
     /// A skipped slave is polled again every this many cycles.
     pub probe_every: u32,
     pub node_faults: Vec<NodeFault>,
+    /// The slave that takes over polling after `takeover_after` without a poll from the master.
+    pub backup_master: Option<NodeId>,
+    pub takeover_after: Picos,
 }
 
 /// ALOHA, pure or slotted, with ideal feedback.

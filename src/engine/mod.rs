@@ -220,7 +220,10 @@ impl Simulation {
                 Event::Deliver { frame, to } => self.on_deliver(frame, to as usize),
                 Event::External { node, tag } => self.notify(node as usize, external::Notice::Timer { tag }),
                 Event::LineEdge { node, busy } => self.on_line_edge(node as usize, busy),
-                Event::NodeFault { node, down } => self.world.set_down(node as usize, down),
+                Event::NodeFault { node, down } => {
+                    self.world.set_down(node as usize, down);
+                    self.scheme.on_node_fault(&mut self.world, node as usize, down);
+                }
             }
             let w = &mut self.world;
             w.bus.process(&w.line, t.0, false, &mut w.trace);

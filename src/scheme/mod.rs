@@ -59,6 +59,9 @@ pub trait AccessScheme: std::fmt::Debug {
         false
     }
 
+    /// `node` has just gone down (`down`) or come back up (`access.faults`).
+    fn on_node_fault(&mut self, _world: &mut World, _node: NodeId, _down: bool) {}
+
     /// A frame reached `rx.at` while that node was down: nobody took it.
     /// Schemes that wait on the node's answer react here.
     fn on_unheard(&mut self, _world: &mut World, _rx: &Reception) {}

@@ -49,6 +49,8 @@ const NEXT_POLL: u64 = 1;
 const TIMEOUT: u64 = 2;
 /// Timeouts of polls to external slaves: this plus the poll's number.
 const EXTERNAL_TIMEOUT: u64 = 1 << 32;
+/// The backup master's silence watchdog: this plus its generation.
+const WATCHDOG: u64 = 1 << 62;
 
 #[derive(Debug)]
 pub struct Polling {
@@ -91,11 +93,25 @@ pub struct Polling {
     /// Cycles begun (the poll order wrapped around).
     cycle_no: u64,
     skipped_polls: u64,
+    /// The node polling now: the master, or the backup after a takeover.
+    master: NodeId,
+    /// The master's timer fired while it was down: polling waits for it.
+    halted: bool,
+    /// Generation of the backup's live watchdog.
+    watch_gen: u64,
+    /// Enable of the latest poll (by either master).
+    last_poll: Option<Picos>,
+    /// A takeover happened; its first poll has not been sent yet.
+    taking_over: bool,
+    takeovers: u64,
+    /// From the last poll of the failed master to the first poll of the backup.
+    unpolled: DurationStat,
 }
 
 impl Polling {
     pub fn new(spec: PollingSpec) -> Self {
         let nodes = spec.turnaround.len();
+        let spec_master = spec.master;
         Polling {
             spec,
             idx: 0,
@@ -121,12 +137,31 @@ impl Polling {
             skipped_since: vec![None; nodes],
             cycle_no: 0,
             skipped_polls: 0,
+            master: spec_master,
+            halted: false,
+            watch_gen: 0,
+            last_poll: None,
+            taking_over: false,
+            takeovers: 0,
+            unpolled: DurationStat::default(),
         }
     }
 
     fn poll(&mut self, w: &mut World) {
         let now = w.now();
-        let master = self.spec.master;
+        let master = self.master;
+        if w.is_down(master) {
+            // A down master polls nobody; it resumes if it comes back.
+            self.halted = true;
+            return;
+        }
+        if std::mem::take(&mut self.taking_over) {
+            if let Some(last) = self.last_poll {
+                if w.in_window(now) {
+                    self.unpolled.record((now - last).0);
+                }
+            }
+        }
         let slave = self.spec.order[self.idx];
         if self.idx == 0 {
             if let Some(prev) = self.cycle_start {
@@ -141,6 +176,8 @@ impl Polling {
         }
         let poll = FrameOut::control(FrameKind::Poll, Dest::Node(slave), self.spec.request_bits);
         let tx = w.transmit(master, now, &[poll]);
+        self.last_poll = Some(tx.enable);
+        self.watch(w, &tx);
         self.current_poll = tx.occupancy;
         self.reply_occ = u64::MAX;
         self.reply_bad = false;
@@ -162,6 +199,46 @@ impl Polling {
         if self.timeout_armed {
             w.set_timer(master, self.deadline, TIMEOUT);
         }
+    }
+
+    /// Re-arm the backup master's watchdog: it takes over when it has seen
+    /// no poll for `takeover_after` after the end of this one.
+    fn watch(&mut self, w: &mut World, poll: &TxTimes) {
+        let Some(backup) = self.spec.backup_master else { return };
+        if backup == self.master {
+            return;
+        }
+        self.watch_gen += 1;
+        let at = w.seen_at(self.master, backup, poll.off) + self.spec.takeover_after;
+        w.set_timer(backup, at, WATCHDOG + self.watch_gen);
+    }
+
+    /// The backup master has heard no poll for `takeover_after`: it polls
+    /// from now on, continuing with the next slave in order.
+    fn take_over(&mut self, w: &mut World, backup: NodeId) {
+        if w.is_down(backup) {
+            return;
+        }
+        debug!(t_ps = w.now().0, backup = %w.spec().nodes[backup].name, "backup master takes over");
+        if w.in_window(w.now()) {
+            self.takeovers += 1;
+        }
+        let old = self.master;
+        w.node_found_silent(old);
+        for held in &mut self.held {
+            for m in held.iter_mut().filter(|m| m.dest == old) {
+                m.dest = backup; // the slave answers whoever polls it
+            }
+        }
+        self.master = backup;
+        self.halted = false;
+        self.taking_over = true;
+        self.attempt = 0;
+        self.reply_occ = u64::MAX;
+        self.current_poll = u64::MAX;
+        self.awaiting_external = false;
+        self.timeout_armed = false;
+        self.advance(w);
     }
 
     /// The exchange with the current slave has had its answer (`answered`)
@@ -233,6 +310,11 @@ impl Polling {
                 }
             }
             let slave = self.spec.order[self.idx];
+            if slave == self.master {
+                // A backup that took over does not poll itself.
+                passed += 1;
+                continue;
+            }
             match self.skipped_since[slave] {
                 Some(since) if !(self.cycle_no - since).is_multiple_of(u64::from(self.spec.probe_every)) => {
                     passed += 1;
@@ -251,13 +333,13 @@ impl Polling {
     fn no_reply(&mut self, w: &mut World, poll: u64) {
         if poll == self.current_poll && !self.timeout_armed {
             self.timeout_armed = true;
-            w.set_timer(self.spec.master, self.deadline.max(w.now()), TIMEOUT);
+            w.set_timer(self.master, self.deadline.max(w.now()), TIMEOUT);
         }
     }
 
     fn reply(&mut self, w: &mut World, slave: NodeId, poll: u64) {
         let now = w.now();
-        let master = self.spec.master;
+        let master = self.master;
         let wait = self.spec.turnaround[slave] + sample_latency(&self.spec.response_latency, w.rng(slave));
         let limit = match self.spec.max_per_poll {
             0 => usize::MAX,
@@ -278,7 +360,11 @@ impl Polling {
                 let msg = if resend {
                     self.held[slave][k]
                 } else {
-                    let msg = w.pop_message(slave).expect("queue length checked");
+                    let mut msg = w.pop_message(slave).expect("queue length checked");
+                    if msg.dest == self.spec.master {
+                        // Addressed to the master: whichever node polls now.
+                        msg.dest = master;
+                    }
                     if msg.dest == master {
                         self.held[slave].push(msg);
                     }
@@ -331,11 +417,32 @@ impl AccessScheme for Polling {
         self.spec.master
     }
 
+    fn on_node_fault(&mut self, w: &mut World, node: NodeId, down: bool) {
+        if !down && node == self.master && std::mem::take(&mut self.halted) {
+            // The master is back: it polls the slave it was on, afresh.
+            self.attempt = 0;
+            self.poll(w);
+        }
+    }
+
     fn start(&mut self, w: &mut World) {
         self.poll(w);
     }
 
-    fn on_timer(&mut self, w: &mut World, _node: NodeId, tag: u64) {
+    fn on_timer(&mut self, w: &mut World, node: NodeId, tag: u64) {
+        if tag >= WATCHDOG {
+            if tag - WATCHDOG == self.watch_gen && node != self.master {
+                self.take_over(w, node);
+            }
+            return;
+        }
+        if node != self.master {
+            return; // a timer of a master that was replaced
+        }
+        if w.is_down(node) {
+            self.halted = true;
+            return;
+        }
         if tag >= EXTERNAL_TIMEOUT {
             if tag - EXTERNAL_TIMEOUT != self.poll_seq || !self.awaiting_external {
                 return; // answered in time, or a poll ago
@@ -362,7 +469,7 @@ impl AccessScheme for Polling {
     }
 
     fn on_receive(&mut self, w: &mut World, rx: &Reception) {
-        let master = self.spec.master;
+        let master = self.master;
         if rx.kind == FrameKind::Data || rx.kind == FrameKind::EmptyReply {
             if rx.at == master && rx.occupancy == self.reply_occ {
                 // Part of the reply the master waits on.
@@ -418,7 +525,7 @@ impl AccessScheme for Polling {
                 self.empty_replies += 1;
             }
         }
-        let master = self.spec.master;
+        let master = self.master;
         if !is_reply || !self.awaiting_external || self.spec.order[self.idx] != slave {
             return; // not an answer to the poll the master waits on
         }
@@ -445,7 +552,21 @@ impl AccessScheme for Polling {
                 ("polls_ignored", SchemeValue::Count(self.ignored)),
                 ("retries", SchemeValue::Count(self.retries)),
                 ("skipped_polls", SchemeValue::Count(self.skipped_polls)),
-            ],
+            ]
+            .into_iter()
+            .chain(
+                self.spec
+                    .backup_master
+                    .map(|_| {
+                        [
+                            ("takeovers", SchemeValue::Count(self.takeovers)),
+                            ("unpolled_max_s", SchemeValue::Seconds(self.unpolled.max_s())),
+                        ]
+                    })
+                    .into_iter()
+                    .flatten(),
+            )
+            .collect(),
         }
     }
 }

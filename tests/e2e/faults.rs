@@ -214,7 +214,18 @@ fn refused(toml: &str, key: &str, words: &str) {
 fn bad_fault_and_noise_input_is_refused_with_its_place() {
     let down = |node: &str| format!("faults = [ {{ at = \"1 ms\", kind = \"node-down\", node = \"{node}\" }} ]");
     refused(&bus(3, "5 ms", "", &down("s9"), ""), "access.faults[0].node", "no node is called \"s9\"");
-    refused(&bus(3, "5 ms", "", &down("m"), ""), "access.faults", "master");
+    refused(&bus(3, "5 ms", "", &down("m"), ""), "access.faults", "no backup_master");
+    refused(&bus(3, "5 ms", "", "backup_master = \"s02\"", ""), "access.takeover_after", "needs takeover_after");
+    refused(
+        &bus(3, "5 ms", "", "backup_master = \"s02\"\ntakeover_after = \"10 us\"", ""),
+        "access.takeover_after",
+        "longer than reply_timeout",
+    );
+    refused(
+        &bus(3, "5 ms", "", "backup_master = \"m\"\ntakeover_after = \"1 ms\"", ""),
+        "access.backup_master",
+        "must be a slave",
+    );
     refused(
         &bus(3, "5 ms", "", "faults = [ { at = \"1 ms\", kind = \"node-up\", node = \"s01\" } ]", ""),
         "access.faults[0]",
@@ -277,4 +288,32 @@ fn no_demo_loses_a_message_silently() {
         assert_eq!(accounted, arrived, "{}: {}", p.display(), j["frames"]);
     }
     assert!(corrupted > 1000, "the noisy variants corrupt frames: {corrupted}");
+}
+
+#[test]
+fn the_backup_master_takes_over_after_the_exact_silence() {
+    // The master's last poll before its fault at 3 ms begins at t; its end
+    // reaches the backup e + 16 tb + disable + r = 16.25 µs later, and the
+    // backup polls takeover_after (1 ms) after that: 1016.25 µs without a poll.
+    let access = r#"backup_master = "s04"
+takeover_after = "1 ms"
+faults = [ { at = "3 ms", kind = "node-down", node = "m" } ]"#;
+    let j = run_toml(&bus(4, "10 ms", "", access, ""));
+    let s = &j["scheme"];
+    assert_eq!(s["takeovers"], 1, "{s}");
+    assert_eq!(ps(&s["unpolled_max_s"]), 1_016_250_000, "{s}");
+    // The backup then polls the three other slaves: 3 × 42.3 µs per cycle.
+    let polls_after = s["polls"].as_u64().unwrap();
+    assert!(polls_after > 150, "{s}");
+    assert_eq!(j["outages"][0]["node"], "m");
+    // Polls begin every 42.3 µs from 0; the last before 3 ms is the 70th, at
+    // 2961 µs, so the takeover comes at 3977.25 µs, 977.25 µs after the fault.
+    assert_eq!(ps(&j["outages"][0]["found_silent_after_s"]), 977_250_000);
+    // A master back before the watchdog fires resumes polling itself.
+    let access = r#"backup_master = "s04"
+takeover_after = "1 ms"
+faults = [ { at = "3 ms", kind = "node-down", node = "m" }, { at = "3.2 ms", kind = "node-up", node = "m" } ]"#;
+    let j = run_toml(&bus(4, "10 ms", "", access, ""));
+    assert_eq!(j["scheme"]["takeovers"], 0, "{}", j["scheme"]);
+    assert!(j["scheme"]["cycles"].as_u64().unwrap() > 50);
 }

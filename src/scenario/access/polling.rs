@@ -2,6 +2,7 @@
 
 use super::{Access, R};
 use crate::spec::{AccessSpec, PollingSpec};
+use crate::units::Picos;
 
 pub const KEYS: &[&str] = &[
     "master",
@@ -13,6 +14,8 @@ pub const KEYS: &[&str] = &[
     "dead_after",
     "probe_every",
     "faults",
+    "backup_master",
+    "takeover_after",
 ];
 
 const FAULTS: &[&str] = &["node-down", "node-up"];
@@ -38,17 +41,71 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
     let max_per_poll = a.max_per_poll.as_ref().map(|m| *m.get_ref()).unwrap_or(1);
     c.check_burst(max_per_poll, None, "max_per_poll")?;
     let faults = c.faults(FAULTS)?;
-    if let Some(f) = faults.nodes.iter().find(|f| f.node == master) {
-        return Err(v
-            .err(
-                a.faults.as_ref().expect("faults were listed").span(),
-                "access.faults",
-                format!(
-                    "a fault at {} takes down the master \"{}\": polling has no backup master here",
-                    f.at, c.names[master]
-                ),
-            )
-            .with_hint("fail slaves only"));
+    let backup_master = match &a.backup_master {
+        None => None,
+        Some(b) => {
+            let id = c.find(b, "access.backup_master")?;
+            if id == master || !order.contains(&id) {
+                return Err(v
+                    .err(
+                        b.span(),
+                        "access.backup_master",
+                        format!("the backup master \"{}\" must be a slave in the poll order", c.names[id]),
+                    )
+                    .with_hint("it listens as a slave until it takes over"));
+            }
+            if !c.nodes[id].traffic.is_empty() {
+                return Err(v.err(
+                    b.span(),
+                    "access.backup_master",
+                    format!("the backup master \"{}\" has traffic, but a master sends none", c.names[id]),
+                ));
+            }
+            Some(id)
+        }
+    };
+    let reply_timeout = v.time(timeout_raw, "access.reply_timeout")?;
+    let takeover_after = match (&a.takeover_after, backup_master) {
+        (Some(t), Some(_)) => {
+            let x = v.time(t, "access.takeover_after")?;
+            if x <= reply_timeout {
+                return Err(v
+                    .err(t.span(), "access.takeover_after", format!("takeover_after ({x}) must be longer than reply_timeout ({reply_timeout}): a master waiting on a reply is silent that long"))
+                    .with_hint("allow the longest reply and a timeout, e.g. several times reply_timeout"));
+            }
+            x
+        }
+        (None, Some(_)) => {
+            return Err(v
+                .err(
+                    a.backup_master.as_ref().expect("given").span(),
+                    "access.takeover_after",
+                    "a backup master needs takeover_after, the silence after which it takes over",
+                )
+                .with_hint("e.g. takeover_after = \"5 ms\""))
+        }
+        (Some(t), None) => {
+            return Err(v.err(
+                t.span(),
+                "access.takeover_after",
+                "takeover_after applies to a backup master: set backup_master",
+            ))
+        }
+        (None, None) => Picos::ZERO,
+    };
+    if backup_master.is_none() {
+        if let Some(f) = faults.nodes.iter().find(|f| f.node == master) {
+            return Err(v
+                .err(
+                    a.faults.as_ref().expect("faults were listed").span(),
+                    "access.faults",
+                    format!(
+                        "a fault at {} takes down the master \"{}\", and no backup_master takes over",
+                        f.at, c.names[master]
+                    ),
+                )
+                .with_hint("set backup_master and takeover_after, or fail slaves only"));
+        }
     }
     let dead_after = c.count(&a.dead_after, "dead_after", 1, MAX_CYCLES)?;
     let probe_every = c.count(&a.probe_every, "probe_every", 1, MAX_CYCLES)?;
@@ -73,6 +130,8 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
         empty_reply_bits: c.control_bits(&a.empty_reply_bits, "empty_reply_bits")?,
         turnaround: c.turnarounds()?,
         response_latency: c.response_latency()?,
-        reply_timeout: v.time(timeout_raw, "access.reply_timeout")?,
+        reply_timeout,
+        backup_master,
+        takeover_after,
     }))
 }
