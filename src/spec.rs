@@ -625,6 +625,7 @@ impl AccessSpec {
     pub fn node_faults(&self) -> &[NodeFault] {
         match self {
             AccessSpec::Polling(p) => &p.node_faults,
+            AccessSpec::Token(t) => &t.node_faults,
             _ => &[],
         }
     }
@@ -659,6 +660,16 @@ pub struct TokenSpec {
     pub recovery_node: NodeId,
     /// Instants from which the next token frame sent is lost.
     pub lose_token_at: Vec<Picos>,
+    /// A holder whose successor shows nothing this long after the pass
+    /// drops it from the ring and passes to the next (`None`: no repair).
+    pub successor_timeout: Option<Picos>,
+    /// Every this many rotations the ring's head passes the token to a
+    /// dropped node; one that uses it rejoins.
+    pub solicit_every: u32,
+    /// When the recovery node is down, this node regenerates instead, after
+    /// `token_timeout` plus one zero-load rotation.
+    pub second_recovery: Option<(NodeId, Picos)>,
+    pub node_faults: Vec<NodeFault>,
 }
 
 /// Master/slave polling.

@@ -317,3 +317,102 @@ faults = [ { at = "3 ms", kind = "node-down", node = "m" }, { at = "3.2 ms", kin
     assert_eq!(j["scheme"]["takeovers"], 0, "{}", j["scheme"]);
     assert!(j["scheme"]["cycles"].as_u64().unwrap() > 50);
 }
+
+/// A token ring of four nodes at one position, no traffic: every hop takes
+/// T + e + 16 tb + r = 5 + 0.1 + 16 + 0.05 = 21.15 µs (README, "Timing model").
+fn ring(access_extra: &str) -> String {
+    format!(
+        r#"
+name = "ring test"
+seed = 5
+duration = "12 ms"
+
+[line]
+length = "10 m"
+impedance = "120 ohm"
+velocity_factor = 0.7
+
+[transceiver]
+family = "tia485"
+enable_time = "100 ns"
+disable_time = "100 ns"
+receiver_delay = "50 ns"
+load = "20 pF"
+
+[frame]
+bit_rate = "1 Mbit/s"
+overhead_bits = 32
+
+[access]
+scheme = "token"
+order = ["n01", "n02", "n03", "n04"]
+token_bits = 16
+turnaround = "5 us"
+{access_extra}
+
+[nodes]
+count = 4
+first = "0 m"
+spacing = "0 m"
+prefix = "n"
+"#
+    )
+}
+
+#[test]
+fn a_silent_successor_is_dropped_at_the_exact_timeout_and_rejoins() {
+    // n02 holds at (4m + 1) · 21.15 µs; its first pass that reaches n03
+    // (16.15 µs after its enable) after the fault at 3 ms is at 145 · 21.15
+    // = 3066.75 µs. Its output is off 16.2 µs later, and 30 µs after that,
+    // at 3112.95 µs, it drops n03: 112.95 µs after the fault.
+    let access = r#"token_timeout = "1 ms"
+successor_timeout = "30 us"
+solicit_every = 4
+faults = [ { at = "3 ms", kind = "node-down", node = "n03" }, { at = "8 ms", kind = "node-up", node = "n03" } ]"#;
+    let j = run_toml(&ring(access));
+    let o = &j["outages"][0];
+    assert_eq!(ps(&o["found_silent_after_s"]), 112_950_000, "{o}");
+    let s = &j["scheme"];
+    assert_eq!(s["ring_repairs"], 1, "{s}");
+    assert_eq!(s["readmissions"], 1, "{s}");
+    assert_eq!(s["recoveries"], 0, "the repair keeps the token alive: {s}");
+    // Back up, n03 rejoins at a solicitation: the head solicits every fourth
+    // visit, and a rotation of the three others takes 3 · 21.15 µs (plus one
+    // unanswered solicitation of 16.2 + 30 µs per cycle while it was down).
+    let answered = ps(&o["answered_after_s"]);
+    assert!(answered <= 4 * (63_450_000 + 46_200_000) + 2 * 21_150_000, "answered after {answered} ps");
+}
+
+#[test]
+fn a_down_recovery_node_is_replaced_by_the_next_in_order() {
+    // Without repair, a token passed to the down recovery node n01 is lost.
+    // n01's watchdog cannot fire; n02 regenerates after token_timeout plus
+    // one zero-load rotation bounded with the worst enable time (4 · 21.15 =
+    // 84.6 µs): 200 + 84.6 µs after the lost token's end reaches it
+    // (disable 0.1 µs + receiver 0.05 µs): a recovery of 284.75 µs.
+    let access = r#"token_timeout = "200 us"
+faults = [ { at = "3 ms", kind = "node-down", node = "n01" } ]"#;
+    let j = run_toml(&ring(access));
+    let s = &j["scheme"];
+    assert!(s["recoveries"].as_u64().unwrap() >= 10, "{s}");
+    assert_eq!(ps(&s["recovery_max_s"]), 284_750_000, "{s}");
+    assert_eq!(ps(&s["recovery_mean_s"]), 284_750_000, "{s}");
+    assert_eq!(s["spurious_regenerations"], 0, "{s}");
+}
+
+#[test]
+fn bad_ring_repair_input_is_refused_with_its_place() {
+    refused(&ring("solicit_every = 3"), "access.solicit_every", "without successor_timeout");
+    // A live successor answers within 2 × (0 + 50 ns) + 5 µs = 5.1 µs.
+    refused(&ring("successor_timeout = \"5 us\""), "access.successor_timeout", "would drop live nodes");
+    refused(
+        &ring("faults = [ { at = \"1 ms\", kind = \"node-down\", node = \"n02\" } ]"),
+        "access.faults",
+        "nothing repairs the ring",
+    );
+    refused(
+        &ring("token_timeout = \"1 ms\"\nfaults = [ { at = \"1 ms\", kind = \"lose-token\", node = \"n02\" } ]"),
+        "access.faults[0].node",
+        "concerns no node",
+    );
+}
