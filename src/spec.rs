@@ -626,6 +626,7 @@ impl AccessSpec {
         match self {
             AccessSpec::Polling(p) => &p.node_faults,
             AccessSpec::Token(t) => &t.node_faults,
+            AccessSpec::Tdma(t) => &t.node_faults,
             _ => &[],
         }
     }
@@ -815,6 +816,9 @@ pub struct TdmaSpec {
     pub drift: Vec<Drift>,
     /// Nodes correct the beacon's arrival for their known wire and receiver delay.
     pub compensate: bool,
+    /// Beacon periods a node keeps its slots on its own clock without a beacon.
+    pub holdover: u32,
+    pub node_faults: Vec<NodeFault>,
 }
 
 impl TdmaSpec {

@@ -14,6 +14,10 @@ pub enum Literal {
     Int(i64),
     Float(f64),
     Text(String),
+    /// An array or inline table, as TOML source (`[{ at = "1 ms", … }]`).
+    Toml {
+        toml: String,
+    },
 }
 
 /// One part of a key path: a name, optionally indexed (`node[2]`).
@@ -46,6 +50,7 @@ fn to_value(v: &Literal) -> Value {
         Literal::Int(i) => Value::from(*i),
         Literal::Float(x) => Value::from(*x),
         Literal::Text(s) => Value::from(s.as_str()),
+        Literal::Toml { toml } => toml.parse::<Value>().expect("checked when the literal was made"),
     }
 }
 

@@ -98,6 +98,9 @@ pub fn parse_assignment(arg: &str) -> Result<(String, edit::Literal), String> {
         Ok(toml_edit::Value::Integer(i)) => edit::Literal::Int(*i.value()),
         Ok(toml_edit::Value::Float(x)) => edit::Literal::Float(*x.value()),
         Ok(toml_edit::Value::String(s)) => edit::Literal::Text(s.value().clone()),
+        Ok(toml_edit::Value::Array(_) | toml_edit::Value::InlineTable(_)) => {
+            edit::Literal::Toml { toml: value.to_owned() }
+        }
         _ => edit::Literal::Text(value.to_owned()),
     };
     Ok((key.to_owned(), literal))

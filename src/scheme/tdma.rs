@@ -19,6 +19,15 @@
 //!
 //! i.e. guard ≥ disable time + wire delay between consecutive owners + the
 //! clock error accumulated since the beacon (at most about cycle × 2·ppm).
+//!
+//! **Holdover** (`holdover = h`): a node that has had no beacon a guard
+//! after it expected one (corrupted, or the timekeeper is down) takes the
+//! expected instant, on its own clock, as the beacon's end and keeps its
+//! slots, for h beacon periods in a row; then it stops sending until a beacon
+//! comes. Clock drift accumulates meanwhile, and where it exceeds the guard
+//! the hand-overs contend. A timekeeper that is down sends no beacon; it
+//! resumes at its next beacon time once back. A node that is down sends in
+//! no slot.
 
 use rand::Rng;
 use tracing::debug;
@@ -30,6 +39,13 @@ use crate::units::Picos;
 
 const BEACON: u64 = 1;
 const SLOT: u64 = 2;
+/// A guard after a node's expected beacon: no beacon came, hold over.
+const EXPECT: u64 = 3;
+
+/// Timer tag: the node's resync generation (low 32 bits), an index, a kind.
+fn tag(generation: u64, index: u64, kind: u64) -> u64 {
+    ((generation & 0xffff_ffff) << 32) | (index << 8) | kind
+}
 
 #[derive(Debug)]
 pub struct Tdma {
@@ -47,6 +63,14 @@ pub struct Tdma {
     missed: u64,
     used: u64,
     overruns: u64,
+    /// Per node: generation of its slot schedule (bumped at every resync).
+    generation: Vec<u64>,
+    /// Per node: the beacon end its current schedule counts from.
+    reference: Vec<Picos>,
+    /// Per node: beacon periods held over in a row.
+    held_over: Vec<u32>,
+    free_running: u64,
+    expired: u64,
 }
 
 impl Tdma {
@@ -69,6 +93,11 @@ impl Tdma {
             missed: 0,
             used: 0,
             overruns: 0,
+            generation: Vec::new(),
+            reference: Vec::new(),
+            held_over: Vec::new(),
+            free_running: 0,
+            expired: 0,
         }
     }
 
@@ -84,19 +113,52 @@ impl Tdma {
         w.set_timer(tk, at, (cycle << 8) | BEACON);
     }
 
-    /// `node` takes `t_ref` as the end of the beacon: arm its slots.
+    /// `node` takes `t_ref` as the end of the beacon: arm its slots (and,
+    /// with holdover, a check that the next beacon comes).
     fn resync(&mut self, w: &mut World, node: NodeId, t_ref: Picos) {
+        self.generation[node] += 1;
+        self.reference[node] = t_ref;
+        let g = self.generation[node];
         for k in 0..self.spec.slots.len() {
             if self.spec.slots[k].owner != node {
                 continue;
             }
             let start = t_ref + self.true_span(node, self.offset[k] + self.spec.guard);
             self.slot_end[k] = t_ref + self.true_span(node, self.offset[k] + self.spec.slots[k].length);
-            w.set_timer(node, start.max(w.now()), ((k as u64) << 8) | SLOT);
+            w.set_timer(node, start.max(w.now()), tag(g, k as u64, SLOT));
+        }
+        if self.spec.holdover > 0 && node != self.spec.timekeeper {
+            let expect = t_ref + self.true_span(node, self.cycle_local + self.spec.guard);
+            w.set_timer(node, expect.max(w.now()), tag(g, 0, EXPECT));
         }
     }
 
+    /// No beacon came by a guard after `node` expected it: hold over on its
+    /// own clock, or stop after `holdover` periods.
+    fn no_beacon(&mut self, w: &mut World, node: NodeId) {
+        if w.is_down(node) {
+            return; // it waits for a beacon once back
+        }
+        let counted = w.in_window(w.now());
+        if self.held_over[node] >= self.spec.holdover {
+            if counted {
+                self.expired += 1;
+            }
+            debug!(t_ps = w.now().0, node = %w.spec().nodes[node].name, "holdover over: silent until a beacon");
+            return;
+        }
+        self.held_over[node] += 1;
+        if counted {
+            self.free_running += 1;
+        }
+        let t_ref = self.reference[node] + self.true_span(node, self.cycle_local);
+        self.resync(w, node, t_ref);
+    }
+
     fn run_slot(&mut self, w: &mut World, node: NodeId, k: usize) {
+        if w.is_down(node) {
+            return;
+        }
         let end = self.slot_end[k];
         let now = w.earliest_enable(node);
         let frame = w.spec().frame.clone();
@@ -123,7 +185,11 @@ impl Tdma {
         }
         if sent > 0 {
             let tx = w.finish_tx();
-            let nominal_end = self.beacon_release + self.offset[k] + self.spec.slots[k].length;
+            // The cycle the slot belongs to in the timekeeper's schedule (a
+            // later one than the latest beacon's while nodes hold over).
+            let cycles = (now - self.beacon_release.min(now)).0 / self.cycle_local.0.max(1);
+            let cycle_start = self.beacon_release + Picos(cycles * self.cycle_local.0);
+            let nominal_end = cycle_start + self.offset[k] + self.spec.slots[k].length;
             if w.in_window(now) {
                 self.used += 1;
                 if tx.release > nominal_end {
@@ -157,13 +223,26 @@ impl AccessScheme for Tdma {
         }
         let tk = self.spec.timekeeper;
         self.cycle_local = self.spec.cycle(&w.spec().frame, w.spec().nodes[tk].transceiver.enable_time);
+        let n = self.eps.len();
+        self.generation = vec![0; n];
+        self.reference = vec![Picos::ZERO; n];
+        self.held_over = vec![0; n];
         self.schedule_beacon(w, 0);
     }
 
     fn on_timer(&mut self, w: &mut World, node: NodeId, tag: u64) {
-        let n = tag >> 8;
-        match tag & 0xff {
+        let kind = tag & 0xff;
+        if kind != BEACON && tag >> 32 != self.generation[node] & 0xffff_ffff {
+            return; // a schedule replaced by a later resync
+        }
+        let n = (tag >> 8) & 0xff_ffff;
+        match kind {
+            BEACON if w.is_down(node) => {
+                // A down timekeeper sends nothing; it keeps its cycle count.
+                self.schedule_beacon(w, (tag >> 8) + 1);
+            }
             BEACON => {
+                let n = tag >> 8;
                 let beacon = FrameOut::control(FrameKind::Beacon, Dest::All, self.spec.beacon_bits);
                 let tx = w.transmit(node, w.now(), &[beacon]);
                 self.beacon_release = tx.last_bit;
@@ -175,6 +254,7 @@ impl AccessScheme for Tdma {
                 self.schedule_beacon(w, n + 1);
             }
             SLOT => self.run_slot(w, node, n as usize),
+            EXPECT => self.no_beacon(w, node),
             _ => unreachable!("tdma sets only its own timers"),
         }
     }
@@ -196,6 +276,7 @@ impl AccessScheme for Tdma {
             Picos::ZERO
         };
         let t_ref = w.now() - lag;
+        self.held_over[node] = 0;
         self.resync(w, node, t_ref);
     }
 
@@ -217,7 +298,18 @@ impl AccessScheme for Tdma {
                 ("beacons_missed", SchemeValue::Count(self.missed)),
                 ("slots_used", SchemeValue::Count(self.used)),
                 ("slot_overruns", SchemeValue::Count(self.overruns)),
-            ],
+            ]
+            .into_iter()
+            .chain(
+                (self.spec.holdover > 0)
+                    .then_some([
+                        ("free_running_cycles", SchemeValue::Count(self.free_running)),
+                        ("holdovers_expired", SchemeValue::Count(self.expired)),
+                    ])
+                    .into_iter()
+                    .flatten(),
+            )
+            .collect(),
         }
     }
 }

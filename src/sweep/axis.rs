@@ -33,6 +33,7 @@ impl AxisValue {
             Literal::Int(i) => i.to_string(),
             Literal::Float(x) => x.to_string(),
             Literal::Text(s) => s.clone(),
+            Literal::Toml { toml } => toml.clone(),
         }
     }
 }

@@ -416,3 +416,30 @@ fn bad_ring_repair_input_is_refused_with_its_place() {
         "concerns no node",
     );
 }
+
+#[test]
+fn tdma_nodes_hold_over_for_the_stated_beacon_periods() {
+    // The timekeeper is down for 10 ms (about 600 cycles of 16.5 µs). p runs
+    // 200 ppm fast and r 200 ppm slow: on their own clocks the gap from r's
+    // slot to p's next one shrinks by about 400 ppm of a cycle (6.6 ns) per
+    // cycle, from guard + beacon slot (about 0.53 µs), so it closes after
+    // roughly 80 cycles (the drift bound in the scheme's documentation).
+    let run = |holdover: u32| {
+        let extra = format!(
+            "clock_ppm = {{ p = 200, r = -200 }}\nholdover = {holdover}\nfaults = [ {{ at = \"5 ms\", kind = \"node-down\", node = \"tk\" }}, {{ at = \"15 ms\", kind = \"node-up\", node = \"tk\" }} ]"
+        );
+        run_toml(&crate::common::tdma_pair(200_000, 8_000_000, 8_000_000, &extra))
+    };
+    let short = run(20);
+    assert_eq!(short["scheme"]["free_running_cycles"], 40, "{}", short["scheme"]);
+    assert_eq!(short["scheme"]["holdovers_expired"], 2, "{}", short["scheme"]);
+    assert_eq!(short["contention"]["events"], 0);
+    assert_eq!(short["scheme"]["slot_overruns"], 0, "{}", short["scheme"]);
+    let long = run(500);
+    assert_eq!(long["scheme"]["free_running_cycles"], 1000, "{}", long["scheme"]);
+    assert!(
+        long["contention"]["events"].as_u64().unwrap() > 0,
+        "drift past the guard contends: {}",
+        long["contention"]
+    );
+}

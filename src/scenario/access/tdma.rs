@@ -4,8 +4,23 @@ use super::{Access, R};
 use crate::spec::{AccessSpec, Drift, Slot, TdmaSpec};
 use crate::units::Picos;
 
-pub const KEYS: &[&str] =
-    &["timekeeper", "beacon_bits", "slot_length", "slots", "guard", "drift_ppm", "clock_ppm", "compensate"];
+pub const KEYS: &[&str] = &[
+    "timekeeper",
+    "beacon_bits",
+    "slot_length",
+    "slots",
+    "guard",
+    "drift_ppm",
+    "clock_ppm",
+    "compensate",
+    "holdover",
+    "faults",
+];
+
+const FAULTS: &[&str] = &["node-down", "node-up"];
+
+/// Most beacon periods a node may run on its own clock.
+pub const MAX_HOLDOVER: u32 = 1_000_000;
 
 pub fn validate(c: &Access) -> R<AccessSpec> {
     let (v, a) = (c.v, c.a);
@@ -136,7 +151,10 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
             ),
         ));
     }
+    let faults = c.faults(FAULTS)?;
     Ok(AccessSpec::Tdma(TdmaSpec {
+        holdover: c.count(&a.holdover, "holdover", 0, MAX_HOLDOVER)?.unwrap_or(0),
+        node_faults: faults.nodes,
         timekeeper,
         beacon_bits,
         slots: slots.into_iter().map(|(owner, length, _, _)| Slot { owner, length }).collect(),
