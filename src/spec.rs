@@ -627,7 +627,9 @@ impl AccessSpec {
             AccessSpec::Polling(p) => &p.node_faults,
             AccessSpec::Token(t) => &t.node_faults,
             AccessSpec::Tdma(t) => &t.node_faults,
-            _ => &[],
+            AccessSpec::Aloha(a) => &a.node_faults,
+            AccessSpec::Csma(c) => &c.node_faults,
+            AccessSpec::Arbitration(a) => &a.node_faults,
         }
     }
 }
@@ -715,6 +717,7 @@ pub struct AlohaSpec {
     pub backoff: Latency,
     /// Attempts after which a message is dropped; 0 = never.
     pub max_attempts: u32,
+    pub node_faults: Vec<NodeFault>,
 }
 
 /// What a CSMA node does when it senses the line busy.
@@ -784,6 +787,7 @@ pub struct CsmaSpec {
     pub backoff_given: bool,
     /// Attempts after which a message is dropped; 0 = never.
     pub max_attempts: u32,
+    pub node_faults: Vec<NodeFault>,
 }
 
 /// A node's clock error.
@@ -854,4 +858,5 @@ pub struct ArbitrationSpec {
     pub idle_bits: u32,
     /// Where in the bit a node samples, as a fraction of the bit time.
     pub sample_point: f64,
+    pub node_faults: Vec<NodeFault>,
 }

@@ -353,7 +353,8 @@ impl Simulation {
                     w.stats.data_frames_sent += 1;
                     w.stats.data_wire_ps += u128::from(f.e - f.s);
                     w.stats.frames.unheard += 1;
-                    if f.message.is_some() {
+                    if f.message.is_some() && !self.scheme.resends_corrupted() {
+                        // Sent once: lost with its receiver.
                         w.stats.frames.given_up += 1;
                     }
                 } else {

@@ -34,11 +34,13 @@ pub struct Aloha {
     collisions: u64,
     retries: u64,
     given_up: u64,
+    /// Per node: the timer that fired while it was down (acted on once it is back).
+    lapsed: Vec<Option<u64>>,
 }
 
 impl Aloha {
     pub fn new(spec: AlohaSpec, nodes: usize) -> Self {
-        Aloha { spec, flight: vec![None; nodes], collisions: 0, retries: 0, given_up: 0 }
+        Aloha { spec, flight: vec![None; nodes], collisions: 0, retries: 0, given_up: 0, lapsed: vec![None; nodes] }
     }
 
     /// The next instant at or after `t` a transmission may start.
@@ -71,6 +73,37 @@ impl Aloha {
             self.send(w, node, at);
         }
     }
+
+    /// The outcome of the node's latest frame is known now (ideal feedback).
+    fn outcome(&mut self, w: &mut World, node: NodeId) {
+        let f = self.flight[node].as_mut().expect("outcome of a message in flight");
+
+        f.attempts += 1;
+        if f.delivered {
+            self.flight[node] = None;
+            w.set_holding(node, 0);
+            self.next_message(w, node);
+            return;
+        }
+        let counted = w.in_window(w.now());
+        if counted {
+            self.collisions += 1;
+        }
+        if self.spec.max_attempts > 0 && f.attempts >= self.spec.max_attempts {
+            self.flight[node] = None;
+            w.set_holding(node, 0);
+            w.count_given_up();
+            if counted {
+                self.given_up += 1;
+            }
+            self.next_message(w, node);
+            return;
+        }
+        let delay = sample_latency(&self.spec.backoff, w.rng(node));
+        let at = self.start_time(w.now() + delay);
+        debug!(t_ps = w.now().0, node = %w.spec().nodes[node].name, retry_ps = at.0, "collision; backing off");
+        w.set_timer(node, at, RETRY);
+    }
 }
 
 impl AccessScheme for Aloha {
@@ -93,39 +126,32 @@ impl AccessScheme for Aloha {
     fn start(&mut self, _w: &mut World) {}
 
     fn on_message(&mut self, w: &mut World, node: NodeId) {
-        self.next_message(w, node);
+        if !w.is_down(node) {
+            self.next_message(w, node);
+        }
+    }
+
+    fn on_node_fault(&mut self, w: &mut World, node: NodeId, down: bool) {
+        if down {
+            return;
+        }
+        match self.lapsed[node].take() {
+            // A timer lapsed while it was down: act on it now.
+            Some(OUTCOME) => self.outcome(w, node),
+            Some(_) => self.send(w, node, self.start_time(w.now())),
+            // Its timers still run, or it was idle.
+            None if self.flight[node].is_none() => self.next_message(w, node),
+            None => {}
+        }
     }
 
     fn on_timer(&mut self, w: &mut World, node: NodeId, tag: u64) {
+        if w.is_down(node) {
+            self.lapsed[node] = Some(tag);
+            return;
+        }
         match tag {
-            OUTCOME => {
-                let f = self.flight[node].as_mut().expect("outcome of a message in flight");
-                f.attempts += 1;
-                if f.delivered {
-                    self.flight[node] = None;
-                    w.set_holding(node, 0);
-                    self.next_message(w, node);
-                    return;
-                }
-                let counted = w.in_window(w.now());
-                if counted {
-                    self.collisions += 1;
-                }
-                if self.spec.max_attempts > 0 && f.attempts >= self.spec.max_attempts {
-                    self.flight[node] = None;
-                    w.set_holding(node, 0);
-                    w.count_given_up();
-                    if counted {
-                        self.given_up += 1;
-                    }
-                    self.next_message(w, node);
-                    return;
-                }
-                let delay = sample_latency(&self.spec.backoff, w.rng(node));
-                let at = self.start_time(w.now() + delay);
-                debug!(t_ps = w.now().0, node = %w.spec().nodes[node].name, retry_ps = at.0, "collision; backing off");
-                w.set_timer(node, at, RETRY);
-            }
+            OUTCOME => self.outcome(w, node),
             RETRY => {
                 if w.in_window(w.now()) {
                     self.retries += 1;

@@ -25,6 +25,10 @@
 //! ```
 //!
 //! Below it two nodes can both believe they won: their frames collide.
+//!
+//! A node that is down (`node-down` faults) neither starts nor joins a round
+//! (one it is already in, and a frame it has won, it finishes); back up, it
+//! offers its message at the next idle line.
 
 use tracing::debug;
 
@@ -154,7 +158,7 @@ impl Arbitration {
     }
 
     fn take_next(&mut self, w: &mut World, node: NodeId) {
-        if self.nodes[node].msg.is_some() {
+        if self.nodes[node].msg.is_some() || w.is_down(node) {
             return;
         }
         // A node offers its highest-priority (lowest-identifier) queued message.
@@ -220,7 +224,7 @@ impl Arbitration {
         // Waiting nodes join on the first start edge they see.
         let valid = now + en;
         for j in 0..self.nodes.len() {
-            if j == node || self.nodes[j].phase != Phase::Waiting {
+            if j == node || self.nodes[j].phase != Phase::Waiting || w.is_down(j) {
                 continue;
             }
             let edge = w.seen_at(node, j, valid);
@@ -343,7 +347,26 @@ impl AccessScheme for Arbitration {
         self.min_bit = min_bit_time(w.spec(), &self.spec, w.line());
     }
 
+    fn on_node_fault(&mut self, w: &mut World, node: NodeId, down: bool) {
+        if down {
+            return;
+        }
+        match self.nodes[node].phase {
+            Phase::Waiting => self.wait(w, node),
+            Phase::Idle => self.take_next(w, node),
+            _ => {}
+        }
+    }
+
+    fn on_unheard(&mut self, w: &mut World, rx: &Reception) {
+        // No receiver took it: the sender learns of that as of damage.
+        self.on_receive(w, &Reception { corrupted: true, ..*rx });
+    }
+
     fn on_message(&mut self, w: &mut World, node: NodeId) {
+        if w.is_down(node) {
+            return;
+        }
         if self.nodes[node].phase == Phase::Waiting {
             self.reselect(w, node);
         }
@@ -355,6 +378,7 @@ impl AccessScheme for Arbitration {
             return;
         }
         match tag & 0xff {
+            WAKE | JOIN if w.is_down(node) => {} // it takes part again once back
             WAKE => {
                 if self.nodes[node].phase != Phase::Waiting {
                     return;

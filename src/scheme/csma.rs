@@ -26,6 +26,10 @@
 //! collision (binary exponential backoff; a given `backoff` replaces it), and
 //! gives up after `max_attempts`.
 //! A frame that ends without a detected collision counts as sent.
+//!
+//! A node that is down (`node-down` faults) does nothing: its timers lapse
+//! and its queue fills. Back up, it finishes the message it held (sent if
+//! its frame arrived intact, else a fresh attempt) and goes on.
 
 use rand::Rng;
 use tracing::debug;
@@ -278,12 +282,29 @@ impl AccessScheme for Csma {
     fn start(&mut self, _w: &mut World) {}
 
     fn on_message(&mut self, w: &mut World, node: NodeId) {
-        self.take_next(w, node);
+        if !w.is_down(node) {
+            self.take_next(w, node);
+        }
+    }
+
+    fn on_node_fault(&mut self, w: &mut World, node: NodeId, down: bool) {
+        self.bump(node); // its pending timers lapse either way
+        if down {
+            return;
+        }
+        let st = &mut self.nodes[node];
+        st.tx = None;
+        st.waiting_idle = false;
+        match st.msg {
+            Some(_) if st.delivered => self.success(w, node),
+            Some(_) => self.attempt(w, node),
+            None => self.take_next(w, node),
+        }
     }
 
     fn on_timer(&mut self, w: &mut World, node: NodeId, tag: u64) {
-        if tag >> 8 != self.nodes[node].generation {
-            return; // superseded
+        if tag >> 8 != self.nodes[node].generation || w.is_down(node) {
+            return; // superseded, or the node is down
         }
         match tag & 0xff {
             ATTEMPT => self.attempt(w, node),

@@ -512,6 +512,10 @@ impl AccessScheme for Polling {
         if rx.kind == FrameKind::Poll {
             debug!(t_ps = w.now().0, slave = %w.spec().nodes[rx.at].name, "poll to a down slave");
             self.no_reply(w, rx.occupancy);
+        } else if let Some(m) = rx.message {
+            if !self.holds(&m) {
+                w.count_given_up(); // sent once, to a node that is down
+            }
         }
     }
 

@@ -5,7 +5,7 @@ use crate::scenario::check::latency;
 use crate::spec::{AccessSpec, AlohaSpec, Latency, WorstTimes};
 use crate::units::Picos;
 
-pub const KEYS: &[&str] = &["slotted", "slot_time", "ack_timeout", "backoff", "max_attempts"];
+pub const KEYS: &[&str] = &["slotted", "slot_time", "ack_timeout", "backoff", "max_attempts", "faults"];
 
 pub fn validate(c: &Access) -> R<AccessSpec> {
     let (v, a) = (c.v, c.a);
@@ -27,6 +27,7 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
         None => Latency::Exponential { mean: Picos(slot_time.0.max(1) * 10) },
     };
     Ok(AccessSpec::Aloha(AlohaSpec {
+        node_faults: c.faults(super::NODE_FAULTS)?.nodes,
         slotted,
         slot_time,
         ack_timeout,

@@ -3,7 +3,7 @@
 use super::{Access, R};
 use crate::spec::{AccessSpec, ArbitrationSpec};
 
-pub const KEYS: &[&str] = &["id_bits", "idle_bits", "sample_point"];
+pub const KEYS: &[&str] = &["id_bits", "idle_bits", "sample_point", "faults"];
 
 pub fn validate(c: &Access) -> R<AccessSpec> {
     let (v, a) = (c.v, c.a);
@@ -47,5 +47,6 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
             }
         }
     }
-    Ok(AccessSpec::Arbitration(ArbitrationSpec { id_bits, idle_bits, sample_point }))
+    let node_faults = c.faults(super::NODE_FAULTS)?.nodes;
+    Ok(AccessSpec::Arbitration(ArbitrationSpec { id_bits, idle_bits, sample_point, node_faults }))
 }

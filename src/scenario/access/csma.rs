@@ -15,6 +15,7 @@ pub const KEYS: &[&str] = &[
     "ack_timeout",
     "backoff",
     "max_attempts",
+    "faults",
 ];
 
 /// Jam length when none is given: 32 bits (common practice for CSMA/CD, from memory).
@@ -74,6 +75,7 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
         None => DEFAULT_JAM_BITS,
     };
     Ok(AccessSpec::Csma(CsmaSpec {
+        node_faults: c.faults(super::NODE_FAULTS)?.nodes,
         persistence,
         collision_detect,
         detect_delay,

@@ -79,6 +79,9 @@ pub(crate) struct Faults {
     pub nodes: Vec<crate::spec::NodeFault>,
 }
 
+/// Fault kinds every scheme supports.
+pub const NODE_FAULTS: &[&str] = &["node-down", "node-up"];
+
 /// Most faults a scenario may list.
 pub const MAX_FAULTS: usize = 10_000;
 
