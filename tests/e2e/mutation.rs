@@ -271,6 +271,14 @@ const KEYS: &[(&str, &str)] = &[
     ("access.dead_after", "1"),
     ("access.probe_every", "1000000"),
     ("access.faults", "[ { at = \"1 us\", kind = \"node-down\", node = \"s01\" } ]"),
+    ("access.faults", "[ { at = \"1 ms\", kind = \"node-down\", node = \"controller\" } ]"),
+    ("access.faults", "[ { at = \"2 ms\", kind = \"node-down\", node = \"console\" } ]"),
+    ("access.backup_master", "\"pit\""),
+    ("access.takeover_after", "\"1 s\""),
+    ("access.successor_timeout", "\"1 us\""),
+    ("access.successor_timeout", "\"1000000 s\""),
+    ("access.solicit_every", "1"),
+    ("access.holdover", "1000000"),
     ("access.faults", "[ { at = \"0 s\", kind = \"node-down\", node = \"s02\" }, { at = \"0 s\", kind = \"node-up\", node = \"s02\" } ]"),
 ];
 
