@@ -491,3 +491,20 @@ fn a_node_down_under_every_scheme_loses_nothing_and_sends_nothing() {
         }
     }
 }
+
+#[test]
+fn a_beacon_lost_to_noise_is_bridged_by_holdover() {
+    // Every beacon a node misses (corrupted by noise) makes it hold over one
+    // period, or, if its holdover is spent, fall silent until the next beacon.
+    let extra = "holdover = 1";
+    let toml = crate::common::tdma_pair(200_000, 8_000_000, 8_000_000, extra)
+        .replace("[line]", "[line]\nbit_error_rate = 2e-3");
+    let j = run_toml(&toml);
+    let s = &j["scheme"];
+    let missed = s["beacons_missed"].as_u64().unwrap();
+    let bridged = s["free_running_cycles"].as_u64().unwrap() + s["holdovers_expired"].as_u64().unwrap();
+    assert!(missed > 50, "{s}");
+    // The window's edges may split one miss from its consequence.
+    assert!(missed.abs_diff(bridged) <= 2, "{missed} beacons missed, {bridged} bridged or expired: {s}");
+    assert!(s["holdovers_expired"].as_u64().unwrap() > 0, "two misses in a row happen at this rate: {s}");
+}
