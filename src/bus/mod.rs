@@ -17,9 +17,8 @@
 
 pub mod contention;
 pub mod floating;
+mod log;
 pub mod trace;
-
-use std::collections::VecDeque;
 
 use crate::line::LineModel;
 use crate::spec::{NodeId, Spec};
@@ -76,7 +75,7 @@ pub struct ContentionTotals {
 
 #[derive(Debug)]
 pub struct Bus {
-    log: VecDeque<Occupancy>,
+    log: log::Log,
     processed: usize,
     next_id: u64,
     positions: Vec<f64>,
@@ -112,7 +111,7 @@ impl Bus {
             })
             .collect();
         Bus {
-            log: VecDeque::with_capacity(64),
+            log: log::Log::with_capacity(128),
             processed: 0,
             next_id: 0,
             positions: spec.nodes.iter().map(|n| n.position_m).collect(),
@@ -246,7 +245,7 @@ impl Bus {
         let from = self.prev.filter(|&(_, node, _)| !k.dominant && node != k.node);
         let mut contended = false;
         // Contention against every earlier entry that can still overlap.
-        for j in self.log.range(..idx) {
+        for j in &self.log[..idx] {
             if j.b + self.max_delay <= k.a || j.node == k.node || (j.dominant && k.dominant) {
                 continue;
             }
@@ -294,7 +293,7 @@ impl Bus {
         } else {
             self.scratch.clear();
             self.scratch.resize(self.positions.len(), u64::MAX);
-            for m in self.log.range(idx + 1..) {
+            for m in &self.log[idx + 1..] {
                 for (slot, d) in self.scratch.iter_mut().zip(line.delay_row(m.node)) {
                     *slot = (*slot).min(m.a + d);
                 }

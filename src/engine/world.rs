@@ -216,6 +216,9 @@ pub struct World {
     half_bit: u64,
     /// Frames of the open transmission, when its release may cut them.
     tx_frames: Vec<u32>,
+    /// The last two frame sizes and their times on the wire (data bits, ps):
+    /// a bus sends few sizes, and the float conversion is not free.
+    frame_times: [(u64, u64); 2],
 }
 
 impl World {
@@ -318,6 +321,7 @@ impl World {
             outages: Vec::new(),
             half_bit,
             tx_frames: Vec::with_capacity(16),
+            frame_times: [(u64::MAX, 0); 2],
             spec,
         }
     }
@@ -566,7 +570,15 @@ impl World {
         }
         let fmt = &self.spec.frame;
         let s = tx.cursor;
-        let mut e = s + fmt.base_time(f.data_bits).0;
+        let mut e = s + match self.frame_times {
+            [(b, t), _] if b == f.data_bits => t,
+            [_, (b, t)] if b == f.data_bits => t,
+            _ => {
+                let t = fmt.base_time(f.data_bits).0;
+                self.frame_times = [(f.data_bits, t), self.frame_times[0]];
+                t
+            }
+        };
         let mut flags = 0;
         let mut gap_seed = 0;
         if let Some(u) = &mut self.uart {

@@ -285,6 +285,13 @@ impl Polling {
     /// Poll the next slave in order that is not being skipped this cycle.
     fn advance(&mut self, w: &mut World) {
         let n = self.spec.order.len();
+        if self.spec.dead_after.is_none() && self.master == self.spec.master {
+            // Nobody is skipped: the next in order.
+            self.idx = (self.idx + 1) % n;
+            self.cycle_no += u64::from(self.idx == 0);
+            self.poll(w);
+            return;
+        }
         let mut passed = 0;
         loop {
             self.idx = (self.idx + 1) % n;
@@ -365,7 +372,8 @@ impl Polling {
                         // Addressed to the master: whichever node polls now.
                         msg.dest = master;
                     }
-                    if msg.dest == master {
+                    if msg.dest == master && self.spec.retries > 0 {
+                        // Kept until the master has it (without retries, sent once).
                         self.held[slave].push(msg);
                     }
                     msg
@@ -373,7 +381,9 @@ impl Polling {
                 w.count_access_attempt();
                 w.add_frame(FrameOut::data(msg, overhead));
             }
-            w.set_holding(slave, self.held[slave].len());
+            if self.spec.retries > 0 {
+                w.set_holding(slave, self.held[slave].len());
+            }
             if counted {
                 self.data_replies += 1;
             }
@@ -475,7 +485,10 @@ impl AccessScheme for Polling {
                 // Part of the reply the master waits on.
                 if rx.corrupted {
                     self.reply_bad = true;
-                } else if let Some(m) = rx.message {
+                    if self.spec.retries == 0 && rx.message.is_some() {
+                        w.count_given_up(); // no retry: its one attempt failed
+                    }
+                } else if let Some(m) = rx.message.filter(|_| self.spec.retries > 0) {
                     let held = &mut self.held[rx.from];
                     if let Some(i) = held.iter().position(|h| *h == m) {
                         held.remove(i);

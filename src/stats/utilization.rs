@@ -17,9 +17,9 @@
 //! delivered), so the sweep keeps their edges sorted and advances only up to
 //! a frontier before which no new piece can start. It holds the edges of the
 //! few transmissions in flight, so memory stays flat; edges arrive nearly in
-//! order, so a sorted deque with insertion from the back beats a heap here.
-
-use std::collections::VecDeque;
+//! order, so a sorted array with insertion from the back beats a heap here.
+//! The array's consumed front is dropped in bulk (plain indexing is cheaper
+//! than a ring buffer's on this path, which runs after every event).
 
 /// What a piece contributes to the sweep.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord)]
@@ -57,8 +57,10 @@ impl UtilizationTotals {
 /// The incremental sweep.
 #[derive(Debug)]
 pub struct UtilizationSweep {
-    /// Edges sorted by time: (time, kind << 1 | is_end).
-    edges: VecDeque<(u64, u8)>,
+    /// Edges sorted by time: (time, kind << 1 | is_end); those before
+    /// `head` are consumed.
+    edges: Vec<(u64, u8)>,
+    head: usize,
     last: u64,
     drivers: u32,
     dominant: u32,
@@ -71,7 +73,8 @@ impl UtilizationSweep {
     /// Measures the window `start..end` (picoseconds).
     pub fn new(start: u64, end: u64) -> Self {
         UtilizationSweep {
-            edges: VecDeque::with_capacity(64),
+            edges: Vec::with_capacity(128),
+            head: 0,
             last: 0,
             drivers: 0,
             dominant: 0,
@@ -91,14 +94,19 @@ impl UtilizationSweep {
         self.insert(to, (kind << 1) | 1);
     }
 
-    #[inline]
+    #[inline(always)]
     fn insert(&mut self, t: u64, code: u8) {
+        if self.head >= 64 && self.head * 2 >= self.edges.len() {
+            // Drop the consumed front now and then (amortised O(1)).
+            self.edges.drain(..self.head);
+            self.head = 0;
+        }
         let mut at = self.edges.len();
-        while at > 0 && self.edges[at - 1].0 > t {
+        while at > self.head && self.edges[at - 1].0 > t {
             at -= 1;
         }
         if at == self.edges.len() {
-            self.edges.push_back((t, code));
+            self.edges.push((t, code));
         } else {
             self.edges.insert(at, (t, code));
         }
@@ -107,11 +115,11 @@ impl UtilizationSweep {
     /// Classify all time before `frontier`. The caller promises that no piece
     /// added later starts before `frontier`.
     pub fn advance(&mut self, frontier: u64) {
-        while let Some(&(t, code)) = self.edges.front() {
+        while let Some(&(t, code)) = self.edges.get(self.head) {
             if t > frontier {
                 break;
             }
-            self.edges.pop_front();
+            self.head += 1;
             self.account(t);
             let kind = code >> 1;
             let end = code & 1 == 1;
