@@ -8,6 +8,7 @@
 //! The engine, the line model, the bus and the access schemes do no I/O and
 //! read no clocks.
 
+pub mod bound;
 pub mod budget;
 pub mod bus;
 pub mod check;

@@ -341,8 +341,10 @@ pub struct TrafficSpec {
 
 #[derive(Clone, Debug, PartialEq)]
 pub enum Pattern {
-    /// Poisson arrivals at `rate_per_s` messages per second.
-    Poisson { rate_per_s: f64 },
+    /// Poisson arrivals at `rate_per_s` messages per second; with a
+    /// `min_interval`, gaps shorter than it are stretched to it (a sporadic
+    /// source: its arrivals are bounded, so a worst case exists).
+    Poisson { rate_per_s: f64, min_interval: Picos },
     /// Releases at `phase + k·period`, each delayed by a uniform draw in `0..=jitter`.
     Periodic { period: Picos, phase: Picos, jitter: Picos },
 }

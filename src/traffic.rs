@@ -37,7 +37,7 @@ pub struct Source {
 impl Source {
     pub fn new(seed: u64, node_name: &str, node: NodeId, flow: u16, spec: TrafficSpec) -> Self {
         let exp = match spec.pattern {
-            Pattern::Poisson { rate_per_s } => Some(Exp::new(rate_per_s).expect("rate validated > 0")),
+            Pattern::Poisson { rate_per_s, .. } => Some(Exp::new(rate_per_s).expect("rate validated > 0")),
             Pattern::Periodic { .. } => None,
         };
         Source { node, flow, rng: stream(seed, node_name, &format!("traffic/{flow}")), spec, k: 0, exp }
@@ -51,7 +51,8 @@ impl Source {
                 // At least 1 ps apart so arrivals stay strictly ordered; a gap
                 // beyond the range of time means no further arrival (the cast
                 // saturates, and so does the sum: both lie past any run's end).
-                now.saturating_add(Picos(((gap_s * 1e12).round() as u64).max(1)))
+                let Pattern::Poisson { min_interval, .. } = self.spec.pattern else { unreachable!() };
+                now.saturating_add(Picos(((gap_s * 1e12).round() as u64).max(1).max(min_interval.0)))
             }
             (Pattern::Periodic { period, phase, jitter }, _) => {
                 let base = phase.0 + self.k * period.0;

@@ -51,6 +51,9 @@ pub const CONDITIONAL: &[(&str, &str)] = &[
 ];
 
 fn conditional(metric: &str) -> Option<&'static str> {
+    if metric.starts_with("bound_s.flows.") {
+        return Some("the flow has no worst-case bound (`halfwire bound` says why)");
+    }
     CONDITIONAL.iter().find(|(m, _)| *m == metric).map(|(_, why)| *why)
 }
 
@@ -66,7 +69,7 @@ pub fn dimension_of(path: &str) -> Option<Dimension> {
         Some(Dimension::BitRate)
     } else if has("_s_per_m") {
         Some(Dimension::DelayPerLength)
-    } else if has("_s") || parts.first() == Some(&"latency_s") {
+    } else if has("_s") || parts.first() == Some(&"latency_s") || parts.first() == Some(&"bound_s") {
         Some(Dimension::Time)
     } else if has("_v") {
         Some(Dimension::Voltage)

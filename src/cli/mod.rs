@@ -1,5 +1,6 @@
 //! Command-line interface: one file per command.
 
+mod bound;
 mod budget;
 mod check;
 mod cosim;
@@ -31,6 +32,8 @@ enum Command {
     Run(run::RunArgs),
     /// Check the line electrically and compute the minimum safe turnaround of every hand-over.
     Budget(budget::BudgetArgs),
+    /// Worst-case latency bound of every flow with bounded arrivals, from the timing model.
+    Bound(bound::BoundArgs),
     /// Run scenario files and check their [[expect]] requirements (exit 1 if any fails).
     Check(check::CheckArgs),
     /// Compare two JSON reports metric by metric (exit 1 on a regression beyond tolerance).
@@ -128,6 +131,7 @@ fn run() -> ExitCode {
     let result = match cli.command {
         Command::Run(args) => run::run(args),
         Command::Budget(args) => budget::budget(args),
+        Command::Bound(args) => bound::bound(args),
         Command::Check(args) => check::check(args),
         Command::Diff(args) => diff::diff(args),
         Command::Sweep(args) => sweep::sweep(args),

@@ -76,6 +76,17 @@ pub fn violations(report: &Value) -> Vec<String> {
         bad("frames.control_corrupted exceeds frames.control".into());
     }
 
+    // Worst-case bounds: no simulated maximum above its bound.
+    if let Some(Value::Array(bounds)) = lookup(report, "bounds") {
+        for b in bounds {
+            if let (Some(max), Some(bound)) = (b["simulated_max_s"].as_f64(), b["bound_s"].as_f64()) {
+                if max > bound * (1.0 + 1e-12) {
+                    bad(format!("flow {}: simulated maximum {max} s exceeds its bound {bound} s", b["flow"]));
+                }
+            }
+        }
+    }
+
     // Latency.
     let lat_count = count("latency_s.all.count");
     if lat_count != delivered {
@@ -211,6 +222,9 @@ fn finite_everywhere(v: &Value, path: &str, bad: &mut impl FnMut(String)) {
                     "outages.found_silent_after_s",
                     "outages.up_at_s",
                     "outages.answered_after_s",
+                    "bounds.bound_s",
+                    "bounds.simulated_max_s",
+                    "bounds.ratio",
                 ];
                 if x.is_null() && !nullable.contains(&p.as_str()) && !p.ends_with(".amplitude_dc_v") {
                     bad(format!("{p} is null (not a finite number)"));

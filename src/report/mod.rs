@@ -44,6 +44,14 @@ pub struct Report {
     /// Down periods of nodes (`access.faults`), in the order they began.
     #[serde(skip_serializing_if = "Vec::is_empty")]
     pub outages: Vec<OutageFigures>,
+    /// Worst-case latency bounds of the flows (`halfwire bound`), beside the
+    /// simulated maxima; present when at least one flow has a bound.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub bounds: Vec<BoundFigures>,
+    /// The bounded flows' bounds by name (`bound_s.flows.<flow>`, the metric
+    /// an expectation gates on); present with `bounds`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub bound_s: Option<BoundMetrics>,
     /// Totals over the down periods, when the scenario injects node faults.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub recovery: Option<RecoveryFigures>,
@@ -87,6 +95,27 @@ pub struct Frames {
     pub unheard: u64,
     /// Corrupted data-frame deliveries by cause; they add up to `corrupted`.
     pub corrupted_by: crate::stats::CorruptedBy,
+}
+
+/// `bound_s.flows.<flow>`: each bounded flow's bound in seconds.
+#[derive(Clone, Debug, Serialize)]
+pub struct BoundMetrics {
+    pub flows: BTreeMap<String, f64>,
+}
+
+/// A flow's worst-case bound beside what the run saw.
+#[derive(Clone, Debug, Serialize)]
+pub struct BoundFigures {
+    pub flow: String,
+    /// Null when the flow has no bound (see `unbounded`).
+    pub bound_s: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub unbounded: Option<String>,
+    /// The flow's longest latency in the measured window (null when the
+    /// report cannot single it out: a node with several sources without identifiers).
+    pub simulated_max_s: Option<f64>,
+    /// simulated_max_s / bound_s.
+    pub ratio: Option<f64>,
 }
 
 /// Down periods together: how many, and the longest times to notice and to recover.
@@ -197,7 +226,8 @@ impl Report {
         let spec = &w.spec;
         let line = &w.line;
         // The counters, once; the figures below are derived from them.
-        let t = tallies::Tallies::from_world(w);
+        let flow_bounds = crate::bound::bounds(&w.spec, &w.line);
+        let t = tallies::Tallies::from_world(w, &flow_bounds);
         let st = &w.stats;
         let frames = t.frames();
         let mean_wire_s =
@@ -250,6 +280,7 @@ impl Report {
         let line_fig = crate::line::figures::line_figures(spec, line);
         let uart = firmware::UartFigures::of(w);
         let mut warnings = warnings(w, &contention, &floating, &frames);
+        let bounds = bound_figures(w, &flow_bounds, &mut warnings);
         if let Some(u) = &uart {
             uart_warnings(u, &mut warnings);
         }
@@ -284,6 +315,10 @@ impl Report {
                 })
                 .collect(),
             recovery: t.outages.map(|o| o.figures()),
+            bound_s: (!bounds.is_empty()).then(|| BoundMetrics {
+                flows: t.bounds_ps.iter().map(|(k, v)| (k.clone(), Picos(*v).as_secs_f64())).collect(),
+            }),
+            bounds,
             warnings,
             stalled_at_s: None,
             aborted_at_s: None,
@@ -325,6 +360,49 @@ fn uart_warnings(u: &firmware::UartFigures, out: &mut Vec<Warning>) {
         u.unsettled_frames,
         "deliveries from auto-direction drivers received wrong: the bias does not settle the recessive bits within a bit",
     );
+}
+
+/// Each flow's bound beside its simulated maximum; a maximum above its bound
+/// is a loud warning (the model or the analysis is wrong).
+fn bound_figures(w: &World, all: &[crate::bound::FlowBound], warnings: &mut Vec<Warning>) -> Vec<BoundFigures> {
+    if all.iter().all(|b| b.bound().is_none()) {
+        return Vec::new();
+    }
+    let st = &w.stats;
+    all.iter()
+        .map(|b| {
+            let node = &w.spec.nodes[b.node];
+            let by_id = st.latency_id.iter().find(|(id, _)| format!("{id:#06x}") == b.name).map(|(_, l)| l);
+            let stats = by_id.or((node.traffic.len() == 1).then(|| &st.latency_node[b.node]));
+            let max = stats.map(|l| l.summary()).filter(|s| s.count > 0).map(|s| s.max);
+            let bound = b.bound().map(|x| x.as_secs_f64());
+            if let (Some(m), Some(bd)) = (max, b.bound()) {
+                // Compared exactly, in picoseconds.
+                if stats.is_some_and(|l| l.max_ps() > bd.0) {
+                    warnings.push(Warning {
+                        code: "bound-exceeded",
+                        node: Some(node.name.clone()),
+                        message: format!(
+                            "flow {}: a latency of {} exceeds its worst-case bound of {}; the timing model or the analysis is wrong, please report this scenario",
+                            b.name,
+                            crate::units::format_si(m, "s"),
+                            crate::units::format_si(bd.as_secs_f64(), "s")
+                        ),
+                    });
+                }
+            }
+            BoundFigures {
+                flow: b.name.clone(),
+                bound_s: bound,
+                unbounded: match &b.outcome {
+                    crate::bound::Outcome::Unbounded { reason } => Some(reason.clone()),
+                    _ => None,
+                },
+                simulated_max_s: max,
+                ratio: max.zip(bound).map(|(m, b)| if b > 0.0 { m / b } else { 0.0 }),
+            }
+        })
+        .collect()
 }
 
 fn warnings(w: &World, c: &Contention, f: &Floating, frames: &Frames) -> Vec<Warning> {

@@ -57,6 +57,10 @@ pub struct Tallies {
     pub handover_slack_min_ps: Option<i64>,
     #[serde(default)]
     pub handovers_contended: u64,
+    /// Worst-case latency bound of each bounded flow (ps): a function of the
+    /// scenario, the same in every run of it.
+    #[serde(default, skip_serializing_if = "BTreeMap::is_empty")]
+    pub bounds_ps: BTreeMap<String, u64>,
     /// Down periods of nodes, when the scenario injects node faults.
     #[serde(default)]
     pub outages: Option<OutageTally>,
@@ -134,7 +138,7 @@ impl Default for LatencyTally {
 }
 
 impl Tallies {
-    pub(crate) fn from_world(w: &World) -> Tallies {
+    pub(crate) fn from_world(w: &World, bounds: &[crate::bound::FlowBound]) -> Tallies {
         let st = &w.stats;
         let c = &w.bus.contention;
         let f = w.bus.floating.totals;
@@ -183,6 +187,7 @@ impl Tallies {
             handover_slack_min_ps: handover.min,
             handovers_contended: handover.contended,
             outages: OutageTally::of(w),
+            bounds_ps: bounds.iter().filter_map(|b| Some((b.name.clone(), b.bound()?.0))).collect(),
             uart: super::firmware::UartFigures::of(w).map(|u| UartTally {
                 cut_frames: u.cut_frames,
                 char_timeouts: u.char_timeouts,
@@ -207,6 +212,9 @@ impl Tallies {
         }
         for n in spec.nodes.iter().filter(|n| !n.traffic.is_empty()) {
             t.latency_nodes.insert(n.name.clone(), LatencyTally::default());
+        }
+        for f in crate::bound::flows(spec) {
+            t.bounds_ps.insert(f.name, 0);
         }
         t.metrics().map(|m| m.into_keys().collect()).unwrap_or_default()
     }
@@ -253,6 +261,10 @@ impl Tallies {
             (Some(a), Some(b)) => Some(a.min(b)),
             (a, b) => a.or(b),
         };
+        for (k, v) in &o.bounds_ps {
+            let e = self.bounds_ps.entry(k.clone()).or_insert(*v);
+            *e = (*e).max(*v);
+        }
         if let Some(b) = &o.outages {
             self.outages.get_or_insert_with(OutageTally::default).add(b);
         }
@@ -354,6 +366,9 @@ impl Tallies {
             "recovery": self.outages.map(|o| o.figures()),
         });
         let mut m = crate::check::flatten(&figures);
+        for (flow, ps) in &self.bounds_ps {
+            m.insert(format!("bound_s.flows.{flow}"), Picos(*ps).as_secs_f64());
+        }
         put_latency(&mut m, "latency_s.all", &self.latency)?;
         for (name, t) in &self.latency_nodes {
             put_latency(&mut m, &format!("latency_s.nodes.{name}"), t)?;

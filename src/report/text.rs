@@ -166,6 +166,22 @@ pub fn render_titled(r: &Report, title: &str, color: bool) -> String {
     } else {
         let _ = writeln!(o, "  ({} sources; per-node figures in --format json)", r.latency_s.nodes.len());
     }
+    let bounded: Vec<_> = r.bounds.iter().filter(|b| b.bound_s.is_some()).collect();
+    if !bounded.is_empty() {
+        let closest =
+            bounded.iter().filter(|b| b.ratio.is_some()).max_by(|a, b| a.ratio.partial_cmp(&b.ratio).unwrap());
+        let mut line = format!("  worst-case bounds: {} of {} flows bounded", bounded.len(), r.bounds.len());
+        if let Some(c) = closest {
+            line += &format!(
+                "; closest: {} at {} of its bound {} ({:.1} %)",
+                c.flow,
+                format_seconds(c.simulated_max_s.unwrap_or(0.0)),
+                format_seconds(c.bound_s.unwrap_or(0.0)),
+                100.0 * c.ratio.unwrap_or(0.0)
+            );
+        }
+        let _ = writeln!(o, "{line}  (halfwire bound lists them)");
+    }
     let _ = writeln!(o);
     let _ = writeln!(o, "{}", st.head.apply_to("Hand-overs"));
     let c = &r.contention;

@@ -278,6 +278,8 @@ pub struct RawTraffic {
     pub to: Option<S>,
     pub queue_limit: Option<Spanned<u64>>,
     pub id: Option<Spanned<u64>>,
+    /// A Poisson source's shortest gap between arrivals (a sporadic source).
+    pub min_interval: Option<S>,
 }
 
 /// `"64 B"` or `["16 B", "64 B"]`.

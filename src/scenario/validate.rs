@@ -476,7 +476,7 @@ fn check_arrival_count(v: &V, raw: &RawScenario, nodes: &[NodeSpec], duration: P
         .iter()
         .flat_map(|n| &n.traffic)
         .map(|t| match t.pattern {
-            Pattern::Poisson { rate_per_s } => rate_per_s,
+            Pattern::Poisson { rate_per_s, .. } => rate_per_s,
             Pattern::Periodic { period, .. } => 1.0 / period.as_secs_f64(),
         })
         .sum();
@@ -812,9 +812,27 @@ fn validate_traffic(
             .rate
             .as_ref()
             .ok_or_else(|| v.err(span.clone(), key, "a poisson source needs a rate, e.g. rate = \"2000/s\""))?;
-        Pattern::Poisson { rate_per_s: v.positive(rate, Dimension::Rate, &format!("{key}.rate"))? }
+        let rate_per_s = v.positive(rate, Dimension::Rate, &format!("{key}.rate"))?;
+        let min_interval = match &r.min_interval {
+            None => Picos::ZERO,
+            Some(m) => {
+                let t = v.time(m, &format!("{key}.min_interval"))?;
+                if t.as_secs_f64() * rate_per_s >= 1.0 {
+                    return Err(v
+                        .err(
+                            m.span(),
+                            &format!("{key}.min_interval"),
+                            format!("min_interval ({t}) is not shorter than the mean gap of the rate (1/rate)"),
+                        )
+                        .with_hint("a sporadic source's minimum gap lies below its mean gap"));
+                }
+                t
+            }
+        };
+        Pattern::Poisson { rate_per_s, min_interval }
     } else {
         stray(&r.rate, "rate")?;
+        stray(&r.min_interval, "min_interval")?;
         let period_raw = r
             .period
             .as_ref()

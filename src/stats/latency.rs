@@ -34,6 +34,11 @@ impl Default for LatencyStats {
 }
 
 impl LatencyStats {
+    /// The longest latency recorded, exactly (ps).
+    pub fn max_ps(&self) -> u64 {
+        self.max_ps
+    }
+
     pub fn new() -> Self {
         // Auto-resizing from a small initial range: the histogram grows (and
         // allocates) only when a value of a new order of magnitude appears.

@@ -6,6 +6,7 @@ mod common;
 
 mod aloha;
 mod arbitration;
+mod bounds;
 mod budget;
 mod cli_run;
 mod cosim;

@@ -1,0 +1,121 @@
+//! Bitwise arbitration: the response-time analysis of Davis, Burns, Bril &
+//! Lukkien (2007), "Controller Area Network (CAN) schedulability analysis:
+//! refuted, revisited and revised", Real-Time Systems 35(3), for
+//! non-preemptive fixed-priority arbitration, with this bus's own times.
+//!
+//! C_k, the line time of message k from the start of its round to the
+//! earliest start of the next, at its worst:
+//!
+//! ```text
+//! C_k = e + d + r + (1 + id_bits)·tb + F_k + dis + d + r + idle_bits·tb
+//! ```
+//!
+//! (e the longest enable time, d the longest wire delay, r the longest
+//! receiver delay, F_k its frame, dis its sender's disable time). With B_i
+//! the longest C_k of a lower priority (a round that began just before i
+//! could join it), T_k and J_k each flow's minimum inter-arrival time and
+//! release jitter, and τ = 1 ps (a message must be queued by a round's start
+//! to take part in it):
+//!
+//! ```text
+//! t_i     = B_i + Σ_{k ∈ hep(i)} ⌈(t_i + J_k)/T_k⌉·C_k          (busy period)
+//! w_i(q)  = B_i + q·C_i + Σ_{k ∈ hp(i)} ⌈(w_i(q) + J_k + τ)/T_k⌉·C_k,   q < ⌈(t_i + J_i)/T_i⌉
+//! bound_i = max_q (w_i(q) − q·T_i) + E_i
+//! ```
+//!
+//! E_i is the time from the start of i's round to its delivery at its
+//! destination (the round's start edge, the arbitration field, the frame,
+//! the wire and receiver delay). The latency is counted from the message's
+//! own arrival, so its release jitter enters only others' interference.
+
+use super::{finite, worst, Flow, Outcome};
+use crate::line::LineModel;
+use crate::spec::{ArbitrationSpec, Spec};
+
+const FORMULA: &str = "max_q (w_i(q) − q·T_i) + E_i, w_i(q) = B_i + q·C_i + Σ_hp ⌈(w_i(q) + J_k + τ)/T_k⌉·C_k";
+const SOURCE: &str = "Davis, Burns, Bril & Lukkien (2007), Real-Time Systems 35(3), response-time analysis of CAN";
+
+pub(crate) fn bounds(spec: &Spec, line: &LineModel, a: &ArbitrationSpec, flows: &[Flow]) -> Vec<Outcome> {
+    let all = |reason: String| flows.iter().map(|_| Outcome::Unbounded { reason: reason.clone() }).collect();
+    let tb = u128::from(spec.frame.bit_time().0);
+    let min_bit = crate::scheme::arbitration::min_bit_time(spec, a, line);
+    if spec.frame.bit_time() < min_bit {
+        return all(format!(
+            "the bit time ({}) is below the safe arbitration bound ({min_bit}): rounds can fail and frames collide",
+            spec.frame.bit_time()
+        ));
+    }
+    let n = spec.nodes.len();
+    let e_max = (0..n).map(|i| worst(spec, i).enable).max().unwrap_or(0);
+    let r_max = (0..n).map(|i| worst(spec, i).receiver).max().unwrap_or(0);
+    let d_max = u128::from(line.max_node_delay.0);
+    let field = (1 + u128::from(a.id_bits)) * tb;
+    let idle = u128::from(a.idle_bits) * tb;
+    // Per flow: its line time C, its time to delivery E, its interval T, jitter J and priority.
+    let mut params = Vec::with_capacity(flows.len());
+    for f in flows {
+        let Some((t, j)) = f.interval_and_jitter() else {
+            return all(format!(
+                "the flow {} is Poisson without min_interval: with no minimum gap it has no worst case, and it interferes with every other",
+                f.name
+            ));
+        };
+        let w = worst(spec, f.node);
+        let frame = u128::from(spec.frame.data_time(f.traffic.payload.max_bits()).0);
+        let late = w.lead.saturating_sub(w.enable);
+        let c = e_max + d_max + r_max + field + late + frame + w.disable + d_max + r_max + idle;
+        let dest = f.traffic.to.unwrap_or(crate::scheme::first_other_node(f.node));
+        let wd = worst(spec, dest);
+        let deliver =
+            e_max + d_max + r_max + field + late + frame + u128::from(line.delay_ps(f.node, dest)) + wd.receiver;
+        let deliver = deliver - wd.react.min(deliver);
+        let prio = f.traffic.id.expect("validated: every arbitration source has an id");
+        params.push((c, deliver, t, j, prio));
+    }
+    let cap = u128::from(crate::scenario::check::MAX_TIME.0);
+    let mut out = Vec::with_capacity(flows.len());
+    for (i, &(c_i, e_i, t_i, j_i, p_i)) in params.iter().enumerate() {
+        let b_i = params.iter().filter(|x| x.4 > p_i).map(|x| x.0).max().unwrap_or(0);
+        let hp: Vec<_> = params.iter().enumerate().filter(|&(k, x)| k != i && x.4 < p_i).map(|(_, x)| *x).collect();
+        // Busy period, including i itself and equal priorities.
+        let hep: Vec<_> = params.iter().filter(|x| x.4 <= p_i).copied().collect();
+        let mut t = b_i + c_i;
+        let mut ok = true;
+        loop {
+            let next = b_i + hep.iter().map(|x| (t + x.3).div_ceil(x.2) * x.0).sum::<u128>();
+            if next == t {
+                break;
+            }
+            if next > cap {
+                ok = false;
+                break;
+            }
+            t = next;
+        }
+        if !ok {
+            out.push(Outcome::Unbounded {
+                reason: "the busy period of this priority level does not end: the bus is loaded past 100 %".into(),
+            });
+            continue;
+        }
+        let instances = (t + j_i).div_ceil(t_i);
+        let mut worst_q = 0u128;
+        for q in 0..instances {
+            let mut w = b_i + q * c_i;
+            loop {
+                let next = b_i + q * c_i + hp.iter().map(|x| (w + x.3 + 1).div_ceil(x.2) * x.0).sum::<u128>();
+                if next == w || next > cap {
+                    w = next;
+                    break;
+                }
+                w = next;
+            }
+            worst_q = worst_q.max(w.saturating_sub(q * t_i));
+        }
+        out.push(match finite(worst_q + e_i, "the bound") {
+            Ok(bound) => Outcome::Bounded { bound, formula: FORMULA, source: SOURCE },
+            Err(reason) => Outcome::Unbounded { reason },
+        });
+    }
+    out
+}

@@ -1,0 +1,171 @@
+//! Worst-case latency bounds: for every flow whose arrivals are bounded, an
+//! upper bound on the time from a message's arrival to its delivery, from
+//! the scenario's own timing model with every time at its worst (the top of
+//! each transceiver range, the longest frames with their longest character
+//! gaps, the longest firmware latency).
+//!
+//! A bound is a guarantee only as good as the model: where the analysis
+//! does not cover a case (unbounded arrivals, random latencies without an
+//! upper end, bit errors, faults, a scheme not analysed here) the flow is
+//! "unbounded" with the reason, never a number. Pure functions of the spec:
+//! no I/O.
+
+mod arbitration;
+mod polling;
+
+use crate::line::LineModel;
+use crate::spec::{Latency, NodeId, Pattern, Spec, TrafficSpec};
+use crate::units::Picos;
+
+/// The bound of one flow (a traffic source).
+#[derive(Clone, Debug, PartialEq)]
+pub struct FlowBound {
+    /// `node` for a node's only source, `node[k]` for one of several, or the
+    /// identifier (`0x0123`) when the source has one.
+    pub name: String,
+    pub node: NodeId,
+    pub outcome: Outcome,
+}
+
+#[derive(Clone, Debug, PartialEq)]
+pub enum Outcome {
+    Bounded {
+        bound: Picos,
+        /// The formula used, in words and symbols.
+        formula: &'static str,
+        /// Where the method comes from.
+        source: &'static str,
+    },
+    Unbounded {
+        reason: String,
+    },
+}
+
+impl FlowBound {
+    pub fn bound(&self) -> Option<Picos> {
+        match self.outcome {
+            Outcome::Bounded { bound, .. } => Some(bound),
+            Outcome::Unbounded { .. } => None,
+        }
+    }
+}
+
+/// The bounds of every flow of the scenario.
+pub fn bounds(spec: &Spec, line: &LineModel) -> Vec<FlowBound> {
+    let flows = flows(spec);
+    let common = common_reason(spec);
+    let out: Vec<Outcome> = match (&common, &spec.access) {
+        (Some(r), _) => flows.iter().map(|_| Outcome::Unbounded { reason: r.clone() }).collect(),
+        (None, crate::spec::AccessSpec::Polling(p)) => polling::bounds(spec, line, p, &flows),
+        (None, crate::spec::AccessSpec::Arbitration(a)) => arbitration::bounds(spec, line, a, &flows),
+        (None, a) => flows
+            .iter()
+            .map(|_| Outcome::Unbounded {
+                reason: format!("no worst-case analysis of {} is implemented here yet", a.name()),
+            })
+            .collect(),
+    };
+    flows.iter().zip(out).map(|(f, outcome)| FlowBound { name: f.name.clone(), node: f.node, outcome }).collect()
+}
+
+/// A traffic source, with what the analyses need of it.
+#[derive(Clone, Debug)]
+pub(crate) struct Flow {
+    pub name: String,
+    pub node: NodeId,
+    pub traffic: TrafficSpec,
+}
+
+impl Flow {
+    /// Most arrivals in any closed window of length `t`; `None` for a source
+    /// without a bound (Poisson without `min_interval`).
+    pub fn arrivals_within(&self, t: u128) -> Option<u128> {
+        match self.traffic.pattern {
+            Pattern::Periodic { period, jitter, .. } => Some((t + u128::from(jitter.0)) / u128::from(period.0) + 1),
+            Pattern::Poisson { min_interval, .. } if min_interval.0 > 0 => Some(t / u128::from(min_interval.0) + 1),
+            Pattern::Poisson { .. } => None,
+        }
+    }
+
+    /// Its minimum inter-arrival time (the period, or `min_interval`) and release jitter.
+    pub fn interval_and_jitter(&self) -> Option<(u128, u128)> {
+        match self.traffic.pattern {
+            Pattern::Periodic { period, jitter, .. } => Some((u128::from(period.0), u128::from(jitter.0))),
+            Pattern::Poisson { min_interval, .. } if min_interval.0 > 0 => Some((u128::from(min_interval.0), 0)),
+            Pattern::Poisson { .. } => None,
+        }
+    }
+}
+
+/// Every traffic source, named.
+pub(crate) fn flows(spec: &Spec) -> Vec<Flow> {
+    let mut out = Vec::new();
+    for (i, n) in spec.nodes.iter().enumerate() {
+        for (k, t) in n.traffic.iter().enumerate() {
+            let name = match t.id {
+                Some(id) => format!("{id:#06x}"),
+                None if n.traffic.len() == 1 => n.name.clone(),
+                None => format!("{}[{k}]", n.name),
+            };
+            out.push(Flow { name, node: i, traffic: t.clone() });
+        }
+    }
+    out
+}
+
+/// Why no flow of the scenario has a bound, if one reason covers them all.
+fn common_reason(spec: &Spec) -> Option<String> {
+    if crate::line::noise::modelled(spec) {
+        return Some(
+            "bit errors (line.noise or line.bit_error_rate) can corrupt any frame, so no latency is certain".into(),
+        );
+    }
+    if !spec.access.node_faults().is_empty() {
+        return Some("node faults (access.faults) are outside the analysis".into());
+    }
+    if spec.nodes.iter().any(|n| n.external) {
+        return Some("a node driven by an external process (co-simulation) is outside the analysis".into());
+    }
+    None
+}
+
+/// The longest a firmware latency can be; `None` when it has no upper end.
+pub(crate) fn latency_max(l: &Latency) -> Option<u128> {
+    match *l {
+        Latency::Fixed(t) => Some(u128::from(t.0)),
+        Latency::Uniform { max, .. } => Some(u128::from(max.0)),
+        Latency::Normal { sd, mean } if sd.0 == 0 => Some(u128::from(mean.0)),
+        Latency::Normal { .. } | Latency::Exponential { .. } => None,
+    }
+}
+
+/// Worst-case transceiver times of a node (the tops of its ranges).
+pub(crate) struct Worst {
+    pub enable: u128,
+    pub lead: u128,
+    pub disable: u128,
+    pub receiver: u128,
+    pub react: u128,
+}
+
+pub(crate) fn worst(spec: &Spec, node: NodeId) -> Worst {
+    let t = &spec.nodes[node].transceiver;
+    let enable = u128::from(t.enable_range.max.0);
+    // The lead is the enable time unless given.
+    let lead = t.enable_lead.map_or(enable, |l| u128::from(l.0));
+    Worst {
+        enable,
+        lead,
+        disable: u128::from(t.disable_range.max.0),
+        receiver: u128::from(t.receiver_range.max.0),
+        react: u128::from(t.react_offset(&spec.frame).0),
+    }
+}
+
+/// A bound past the range of time is no bound.
+pub(crate) fn finite(ps: u128, what: &str) -> Result<Picos, String> {
+    if ps > u128::from(crate::scenario::check::MAX_TIME.0) {
+        return Err(format!("{what} exceeds 10^6 s: the bus does not keep up"));
+    }
+    Ok(Picos(ps as u64))
+}

@@ -1,0 +1,169 @@
+//! Polling: the longest poll cycle, and what it gives a message that
+//! arrives just after its slave's reply was assembled.
+//!
+//! With every time at its worst, an exchange with slave j that carries k
+//! data frames lasts, from the master's enable to its next enable,
+//!
+//! ```text
+//! X_j(k) = e_M + P + d(M,j) + r_j − ρ_j + T_j + λ + e_j + F_j(k) + d(j,M) + r_M − ρ_M + T_M + λ
+//! ```
+//!
+//! (e enable lead, P the poll, d wire delay, r receiver delay, ρ a UART's
+//! reaction offset, T turnaround, λ the longest response latency, F_j(k) k
+//! longest data frames with their gaps, or an empty reply). A slave sends at
+//! most min(max_per_poll, A_j(C)) frames per poll, A_j(t) its most arrivals
+//! in a window of t, so the cycle is the least fixed point of
+//! C = Σ_j X_j(min(max_per_poll, A_j(C))), iterated from the zero-load
+//! cycle. A message of slave s arriving just after s's reaction to a poll
+//! waits one cycle, then goes out last among at most A_s(C) frames:
+//!
+//! ```text
+//! bound = C + T_s + λ + e_s + F_s(A_s(C)) + d(s,dest) + r_dest − ρ_dest
+//! ```
+//!
+//! The analysis needs replies that always begin before `reply_timeout`, no
+//! slave polled twice in a row, and A_s(C) ≤ max_per_poll (no backlog
+//! carried from cycle to cycle); otherwise the flow is "unbounded" here.
+//! (Method: the cyclic-executive argument of common practice, from the
+//! documented timing model; README, "Timing model".)
+
+use super::{finite, latency_max, worst, Flow, Outcome};
+use crate::line::LineModel;
+use crate::spec::{NodeId, PollingSpec, Spec};
+
+const FORMULA: &str = "C + T_s + λ + e_s + F_s(A_s(C)) + d(s,dest) + r_dest, C = Σ_j X_j(min(max_per_poll, A_j(C)))";
+const SOURCE: &str = "worst-case poll cycle from the documented timing model (common practice)";
+
+pub(crate) fn bounds(spec: &Spec, line: &LineModel, p: &PollingSpec, flows: &[Flow]) -> Vec<Outcome> {
+    match analyse(spec, line, p, flows) {
+        Ok(per_flow) => per_flow,
+        Err(reason) => flows.iter().map(|_| Outcome::Unbounded { reason: reason.clone() }).collect(),
+    }
+}
+
+fn analyse(spec: &Spec, line: &LineModel, p: &PollingSpec, flows: &[Flow]) -> Result<Vec<Outcome>, String> {
+    if p.retries > 0 || p.dead_after.is_some() || p.backup_master.is_some() {
+        return Err("retries, skipped slaves and master failover are outside this analysis".into());
+    }
+    let lat = latency_max(&p.response_latency)
+        .ok_or("the response latency has no upper end (normal or exponential): no exchange time is certain")?;
+    let n = p.order.len();
+    for k in 0..n {
+        if p.order[k] == p.order[(k + 1) % n] {
+            return Err(format!(
+                "\"{}\" is polled twice in a row: its second poll can find it still busy",
+                spec.nodes[p.order[k]].name
+            ));
+        }
+    }
+    let m = p.master;
+    let wm = worst(spec, m);
+    let frame = &spec.frame;
+    let ifg = u128::from(frame.interframe_gap.0);
+    let poll = u128::from(frame.control_time(p.request_bits).0);
+    let empty = u128::from(frame.control_time(p.empty_reply_bits).0);
+    let d = |a: NodeId, b: NodeId| u128::from(line.delay_ps(a, b));
+    let longest = |j: NodeId| u128::from(frame.data_time(spec.nodes[j].longest_payload_bits()).0);
+    let burst = |j: NodeId, k: u128| if k == 0 { empty } else { k * longest(j) + (k - 1) * ifg };
+    let limit = if p.max_per_poll == 0 { None } else { Some(u128::from(p.max_per_poll)) };
+    // Most arrivals at slave j in a window of t; None if unbounded.
+    let mut by_node: Vec<Vec<&Flow>> = vec![Vec::new(); spec.nodes.len()];
+    for f in flows {
+        by_node[f.node].push(f);
+    }
+    let arrivals = |j: NodeId, t: u128| -> Option<u128> { by_node[j].iter().map(|f| f.arrivals_within(t)).sum() };
+    let frames_at = |j: NodeId, c: u128| -> Result<u128, String> {
+        if spec.nodes[j].traffic.is_empty() {
+            return Ok(0);
+        }
+        match (arrivals(j, c), limit) {
+            (Some(a), Some(l)) => Ok(a.min(l)),
+            (Some(a), None) => Ok(a),
+            (None, Some(l)) => Ok(l),
+            (None, None) => Err(format!(
+                "\"{}\" has a source without a bound (Poisson without min_interval) and max_per_poll = 0",
+                spec.nodes[j].name
+            )),
+        }
+    };
+    // The reply must begin at the master before the timeout, at worst.
+    for &j in &p.order {
+        let wj = worst(spec, j);
+        let start = d(m, j) + wj.receiver + p.turnaround[j].0 as u128 + lat + wj.lead + d(j, m) + wm.receiver;
+        if start - wj.react.min(start) > u128::from(p.reply_timeout.0) {
+            return Err(format!(
+                "a reply of \"{}\" can begin after reply_timeout at the master: the exchange then times out",
+                spec.nodes[j].name
+            ));
+        }
+    }
+    let exchange = |j: NodeId, k: u128| -> u128 {
+        let wj = worst(spec, j);
+        let x = wm.lead
+            + poll
+            + d(m, j)
+            + wj.receiver
+            + u128::from(p.turnaround[j].0)
+            + lat
+            + wj.lead
+            + burst(j, k)
+            + d(j, m)
+            + wm.receiver
+            + u128::from(p.turnaround[m].0)
+            + lat;
+        let x = x - (wj.react + wm.react).min(x);
+        // The master never enables before its poll is off plus the gap.
+        x.max(wm.lead + poll + wm.disable + ifg)
+    };
+    let limit_ps = u128::from(crate::scenario::check::MAX_TIME.0);
+    let mut c: u128 = p.order.iter().map(|&j| exchange(j, 0)).sum();
+    for _ in 0..10_000 {
+        let mut next = 0u128;
+        for &j in &p.order {
+            next += exchange(j, frames_at(j, c)?);
+        }
+        if next == c {
+            break;
+        }
+        if next > limit_ps {
+            return Err("the worst-case poll cycle grows past 10^6 s: the bus does not keep up".into());
+        }
+        c = next;
+    }
+    let mut out = Vec::with_capacity(flows.len());
+    for f in flows {
+        let s = f.node;
+        let Some(a) = arrivals(s, c) else {
+            out.push(Outcome::Unbounded {
+                reason: format!(
+                    "\"{}\" has a source without a bound (Poisson without min_interval)",
+                    spec.nodes[s].name
+                ),
+            });
+            continue;
+        };
+        if f.arrivals_within(c).is_none() {
+            out.push(Outcome::Unbounded { reason: "a Poisson source without min_interval has no worst case".into() });
+            continue;
+        }
+        if limit.is_some_and(|l| a > l) {
+            out.push(Outcome::Unbounded {
+                reason: format!(
+                    "up to {a} messages can arrive at \"{}\" in one worst-case cycle, more than max_per_poll: a backlog can build",
+                    spec.nodes[s].name
+                ),
+            });
+            continue;
+        }
+        let ws = worst(spec, s);
+        let dest = f.traffic.to.unwrap_or(m);
+        let wd = worst(spec, dest);
+        let tail = u128::from(p.turnaround[s].0) + lat + ws.lead + burst(s, a) + d(s, dest) + wd.receiver;
+        let bound = c + tail - wd.react.min(tail);
+        out.push(match finite(bound, "the bound") {
+            Ok(bound) => Outcome::Bounded { bound, formula: FORMULA, source: SOURCE },
+            Err(reason) => Outcome::Unbounded { reason },
+        });
+    }
+    Ok(out)
+}

@@ -1,0 +1,254 @@
+//! Worst-case bounds against the simulation: on random periodic flow sets
+//! no simulated latency exceeds its bound. References: the response-time
+//! analysis of Davis, Burns, Bril & Lukkien (2007), Real-Time Systems 35(3)
+//! for arbitration; the worst-case poll cycle of the documented timing model
+//! for polling. The simulation is the independent side of each check: it
+//! does not use the analysis.
+
+use halfwire::bound::{bounds, Outcome};
+use rand::{Rng, SeedableRng};
+use rand_chacha::ChaCha8Rng;
+
+/// Simulated maximum latency of each flow (by its bound's name) and its bound.
+fn compare(toml: &str) -> Vec<(String, f64, Option<f64>)> {
+    let spec = halfwire::scenario::parse_str(toml, "bounds.toml").unwrap_or_else(|e| panic!("{e}\n{toml}"));
+    let line = halfwire::line::LineModel::new(&spec);
+    let b = bounds(&spec, &line);
+    let report = serde_json::to_value(halfwire::simulate(&spec)).unwrap();
+    b.iter()
+        .map(|f| {
+            let by_id = &report["latency_s"]["ids"][&f.name]["max"];
+            let by_node = &report["latency_s"]["nodes"][&spec.nodes[f.node].name]["max"];
+            let max = by_id.as_f64().or(by_node.as_f64()).unwrap_or(0.0);
+            let bound = match &f.outcome {
+                Outcome::Bounded { bound, .. } => Some(bound.as_secs_f64()),
+                Outcome::Unbounded { .. } => None,
+            };
+            (f.name.clone(), max, bound)
+        })
+        .collect()
+}
+
+fn arbitration_set(rng: &mut ChaCha8Rng, seed: u64) -> String {
+    let nodes = rng.random_range(2..6);
+    let mut s = format!(
+        r#"
+seed = {seed}
+duration = "300 ms"
+[line]
+length = "40 m"
+impedance = "120 ohm"
+velocity_factor = 0.66
+[transceiver]
+drive_current = "11.3 mA"
+enable_time = "60 ns"
+disable_time = "60 ns"
+receiver_delay = "50 ns"
+load = "30 pF"
+receiver = "type2"
+[frame]
+bit_rate = "250 kbit/s"
+overhead_bits = 36
+[access]
+scheme = "arbitration"
+id_bits = 11
+idle_bits = 11
+sample_point = 0.8
+"#
+    );
+    let mut id = 1u32;
+    for n in 0..nodes {
+        let flows = rng.random_range(1..3);
+        s += &format!("[[node]]\nname = \"n{n}\"\nposition = \"{} m\"\ntraffic = [\n", n * 9);
+        for _ in 0..flows {
+            id += rng.random_range(1..40);
+            let period_ms = rng.random_range(3..40);
+            let jitter_us = rng.random_range(0..(period_ms * 500));
+            let phase_us = rng.random_range(0..(period_ms * 1000));
+            let bytes = rng.random_range(1..9);
+            s += &format!(
+                "  {{ pattern = \"periodic\", period = \"{period_ms} ms\", phase = \"{phase_us} us\", jitter = \"{jitter_us} us\", payload = \"{bytes} B\", id = {id} }},\n"
+            );
+        }
+        s += "]\n";
+    }
+    s
+}
+
+#[test]
+fn no_arbitration_latency_exceeds_its_bound_on_200_random_flow_sets() {
+    let mut rng = ChaCha8Rng::seed_from_u64(2007);
+    let sets: Vec<String> = (0..200).map(|k| arbitration_set(&mut rng, k)).collect();
+    let results = crate::common::par_map(&sets, |t| compare(t));
+    let (mut bounded, mut tightest) = (0, 0.0f64);
+    for (set, flows) in sets.iter().zip(&results) {
+        for (name, max, bound) in flows {
+            if let Some(b) = bound {
+                bounded += 1;
+                assert!(max <= b, "flow {name}: simulated {max} s above its bound {b} s in\n{set}");
+                tightest = tightest.max(max / b);
+            }
+        }
+    }
+    assert!(bounded > 400, "{bounded} flows bounded");
+    // The bounds are not vacuous: some flow comes close to its bound.
+    assert!(tightest > 0.5, "the closest simulated maximum reached {tightest} of its bound");
+    eprintln!("arbitration: {bounded} flows bounded; the closest simulated maximum reached {tightest:.3} of its bound");
+}
+
+fn polling_set(rng: &mut ChaCha8Rng, seed: u64) -> String {
+    let slaves = rng.random_range(2..7);
+    let mpp = rng.random_range(0..3);
+    let mut s = format!(
+        r#"
+seed = {seed}
+duration = "200 ms"
+[line]
+length = "30 m"
+impedance = "120 ohm"
+velocity_factor = 0.66
+[transceiver]
+family = "tia485"
+enable_time = "{en} ns"
+disable_time = "{dis} ns"
+receiver_delay = "{rx} ns"
+load = "30 pF"
+[frame]
+bit_rate = "1 Mbit/s"
+overhead_bits = 32
+interframe_gap = "{ifg} us"
+[access]
+scheme = "polling"
+master = "m"
+max_per_poll = {mpp}
+request_bits = 24
+empty_reply_bits = 16
+turnaround = "{turn} us"
+response_latency = {{ min = "0 us", max = "{lat} us" }}
+reply_timeout = "200 us"
+[[node]]
+name = "m"
+position = "0 m"
+"#,
+        en = rng.random_range(50..500),
+        dis = rng.random_range(50..500),
+        rx = rng.random_range(20..200),
+        ifg = rng.random_range(0..20),
+        turn = rng.random_range(2..30),
+        lat = rng.random_range(0..40),
+    );
+    for n in 0..slaves {
+        let period_ms = rng.random_range(2..20);
+        let jitter_us = rng.random_range(0..(period_ms * 500));
+        let phase_us = rng.random_range(0..(period_ms * 1000));
+        let bytes = rng.random_range(1..40);
+        s += &format!(
+            "[[node]]\nname = \"s{n}\"\nposition = \"{} m\"\ntraffic = {{ pattern = \"periodic\", period = \"{period_ms} ms\", phase = \"{phase_us} us\", jitter = \"{jitter_us} us\", payload = \"{bytes} B\" }}\n",
+            n * 5 + 2
+        );
+    }
+    s
+}
+
+#[test]
+fn no_polling_latency_exceeds_its_bound_on_200_random_buses() {
+    let mut rng = ChaCha8Rng::seed_from_u64(1994);
+    let sets: Vec<String> = (0..200).map(|k| polling_set(&mut rng, k)).collect();
+    let results = crate::common::par_map(&sets, |t| compare(t));
+    let (mut bounded, mut tightest) = (0, 0.0f64);
+    for (set, flows) in sets.iter().zip(&results) {
+        for (name, max, bound) in flows {
+            if let Some(b) = bound {
+                bounded += 1;
+                assert!(max <= b, "flow {name}: simulated {max} s above its bound {b} s in\n{set}");
+                tightest = tightest.max(max / b);
+            }
+        }
+    }
+    assert!(bounded > 300, "{bounded} flows bounded");
+    assert!(tightest > 0.5, "the closest simulated maximum reached {tightest} of its bound");
+    eprintln!("polling: {bounded} flows bounded; the closest simulated maximum reached {tightest:.3} of its bound");
+}
+
+#[test]
+fn bound_prints_each_flow_and_refuses_what_it_cannot_bound() {
+    use crate::common::halfwire;
+    let out = halfwire(&["bound", "scenarios/irrigation-valves.toml", "--format", "json"]);
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let j: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let flows = j["flows"].as_array().unwrap();
+    assert_eq!(flows.len(), 24);
+    assert!(flows.iter().all(|f| f["bound_s"].as_f64().is_some() && f["source"].is_string()), "{j}");
+    // Poisson flows without min_interval, and a random-access scheme: reasons, never numbers.
+    let text = String::from_utf8_lossy(&halfwire(&["bound", "scenarios/fruit-grader.toml"]).stdout).into_owned();
+    assert!(text.contains("unbounded: ") && text.contains("min_interval"), "{text}");
+    let text = String::from_utf8_lossy(&halfwire(&["bound", "scenarios/greenhouse-csma.toml"]).stdout).into_owned();
+    assert!(text.contains("unbounded: no worst-case analysis of csma"), "{text}");
+    // A bound is a metric an expectation can gate on; an unbounded flow's bound fails with the reason.
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("gate.toml");
+    let base = std::fs::read_to_string("scenarios/irrigation-valves.toml").unwrap();
+    let base = base[..base.find("[[expect]]").unwrap()].to_owned();
+    std::fs::write(
+        &path,
+        format!("{base}\n[[expect]]\nmetric = \"bound_s.flows.valve01\"\nop = \"<=\"\nvalue = \"600 ms\"\n"),
+    )
+    .unwrap();
+    let out = halfwire(&["check", path.to_str().unwrap(), "--duration", "3 s"]);
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}{}",
+        String::from_utf8_lossy(&out.stdout),
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let base = base.replace(
+        "pattern = \"periodic\", period = \"2 s\", jitter = \"1 s\"",
+        "pattern = \"poisson\", rate = \"0.5/s\"",
+    );
+    std::fs::write(
+        &path,
+        format!("{base}\n[[expect]]\nmetric = \"bound_s.flows.valve01\"\nop = \"<=\"\nvalue = \"600 ms\"\n"),
+    )
+    .unwrap();
+    let out = halfwire(&["check", path.to_str().unwrap(), "--duration", "3 s"]);
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert_eq!(out.status.code(), Some(1), "{text}");
+    assert!(text.contains("no worst-case bound"), "{text}");
+    // A sporadic source gets a bound once it has a minimum gap.
+    let sporadic = base.replace("rate = \"0.5/s\"", "rate = \"0.5/s\", min_interval = \"1 s\"");
+    std::fs::write(&path, &sporadic).unwrap();
+    let j: serde_json::Value =
+        serde_json::from_slice(&halfwire(&["bound", path.to_str().unwrap(), "--format", "json"]).stdout).unwrap();
+    assert!(j["flows"][0]["bound_s"].as_f64().is_some(), "{j}");
+    // min_interval must lie below the mean gap.
+    std::fs::write(&path, base.replace("rate = \"0.5/s\"", "rate = \"0.5/s\", min_interval = \"3 s\"")).unwrap();
+    let out = halfwire(&["bound", path.to_str().unwrap()]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("min_interval"));
+}
+
+#[test]
+fn the_bounds_of_64_flows_take_under_100_ms() {
+    let mut rng = ChaCha8Rng::seed_from_u64(64);
+    let mut set = arbitration_set(&mut rng, 1);
+    set = set[..set.find("[[node]]").unwrap()].to_owned();
+    for n in 0..32 {
+        set += &format!(
+            "[[node]]\nname = \"n{n}\"\nposition = \"{} m\"\ntraffic = [ {{ pattern = \"periodic\", period = \"{} ms\", payload = \"4 B\", id = {} }}, {{ pattern = \"periodic\", period = \"{} ms\", payload = \"8 B\", id = {} }} ]\n",
+            n,
+            20 + n,
+            2 * n + 1,
+            40 + n,
+            2 * n + 2
+        );
+    }
+    let spec = halfwire::scenario::parse_str(&set, "64.toml").unwrap();
+    let line = halfwire::line::LineModel::new(&spec);
+    let start = std::time::Instant::now();
+    let b = bounds(&spec, &line);
+    let took = start.elapsed();
+    assert_eq!(b.len(), 64);
+    assert!(b.iter().all(|f| f.bound().is_some()), "{b:?}");
+    assert!(took.as_millis() < 100, "took {took:?}");
+}
