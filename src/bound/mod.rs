@@ -12,6 +12,7 @@
 
 mod arbitration;
 mod polling;
+mod tdma;
 
 use crate::line::LineModel;
 use crate::spec::{Latency, NodeId, Pattern, Spec, TrafficSpec};
@@ -58,6 +59,7 @@ pub fn bounds(spec: &Spec, line: &LineModel) -> Vec<FlowBound> {
         (Some(r), _) => flows.iter().map(|_| Outcome::Unbounded { reason: r.clone() }).collect(),
         (None, crate::spec::AccessSpec::Polling(p)) => polling::bounds(spec, line, p, &flows),
         (None, crate::spec::AccessSpec::Arbitration(a)) => arbitration::bounds(spec, line, a, &flows),
+        (None, crate::spec::AccessSpec::Tdma(t)) => tdma::bounds(spec, line, t, &flows),
         (None, a) => flows
             .iter()
             .map(|_| Outcome::Unbounded {

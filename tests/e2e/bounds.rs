@@ -252,3 +252,76 @@ fn the_bounds_of_64_flows_take_under_100_ms() {
     assert!(b.iter().all(|f| f.bound().is_some()), "{b:?}");
     assert!(took.as_millis() < 100, "took {took:?}");
 }
+
+fn tdma_set(rng: &mut ChaCha8Rng, seed: u64) -> String {
+    let nodes = rng.random_range(2..6);
+    let slot_us = rng.random_range(60..200);
+    let mut s = format!(
+        r#"
+seed = {seed}
+duration = "200 ms"
+[line]
+length = "30 m"
+impedance = "100 ohm"
+delay = "5 ns/m"
+[transceiver]
+drive_current = "11.3 mA"
+enable_time = "{en} ns"
+disable_time = "{dis} ns"
+receiver_delay = "{rx} ns"
+load = "10 pF"
+receiver = "type2"
+[frame]
+bit_rate = "10 Mbit/s"
+overhead_bits = 48
+interframe_gap = "{ifg} ns"
+[access]
+scheme = "tdma"
+timekeeper = "tk"
+beacon_bits = 32
+slot_length = "{slot_us} us"
+guard = "{guard} ns"
+compensate = {comp}
+[[node]]
+name = "tk"
+position = "0 m"
+"#,
+        en = rng.random_range(10..100),
+        dis = rng.random_range(10..100),
+        rx = rng.random_range(5..50),
+        ifg = rng.random_range(0..400),
+        guard = rng.random_range(200..1000),
+        comp = rng.random_bool(0.5),
+    );
+    for n in 0..nodes {
+        let period_us = rng.random_range(200..3000);
+        let jitter_us = rng.random_range(0..period_us / 2);
+        let phase_us = rng.random_range(0..period_us);
+        let bytes = rng.random_range(1..40);
+        s += &format!(
+            "[[node]]\nname = \"n{n}\"\nposition = \"{} m\"\ntraffic = {{ pattern = \"periodic\", period = \"{period_us} us\", phase = \"{phase_us} us\", jitter = \"{jitter_us} us\", payload = \"{bytes} B\", to = \"tk\" }}\n",
+            n * 6 + 3
+        );
+    }
+    s
+}
+
+#[test]
+fn no_tdma_latency_exceeds_its_bound_on_200_random_schedules() {
+    let mut rng = ChaCha8Rng::seed_from_u64(1981);
+    let sets: Vec<String> = (0..200).map(|k| tdma_set(&mut rng, k)).collect();
+    let results = crate::common::par_map(&sets, |t| compare(t));
+    let (mut bounded, mut tightest) = (0, 0.0f64);
+    for (set, flows) in sets.iter().zip(&results) {
+        for (name, max, bound) in flows {
+            if let Some(b) = bound {
+                bounded += 1;
+                assert!(max <= b, "flow {name}: simulated {max} s above its bound {b} s in\n{set}");
+                tightest = tightest.max(max / b);
+            }
+        }
+    }
+    assert!(bounded > 200, "{bounded} flows bounded");
+    assert!(tightest > 0.5, "the closest simulated maximum reached {tightest} of its bound");
+    eprintln!("tdma: {bounded} flows bounded; the closest simulated maximum reached {tightest:.3} of its bound");
+}

@@ -1,0 +1,104 @@
+//! TDMA: a message waits at most the gap between the starts of two of its
+//! node's slots, then goes out among the frames that fit.
+//!
+//! With exact clocks every node's slots recur with the timekeeper's cycle.
+//! A message arriving just after its node's slot began (the slot takes what
+//! is queued at its start) waits G, the longest gap from one of the node's
+//! slot starts to its next, and goes out last among at most A_i(G) frames,
+//! A_i(t) the node's most arrivals in a window of t, provided every slot of
+//! the node holds that many of its longest frames (so no backlog builds):
+//!
+//! ```text
+//! bound = G + e_i + A·F_i + (A − 1)·ifg + d(i,dest) + r_dest − ρ_dest
+//! ```
+//!
+//! (Method: the slot schedule of the documented timing model, common
+//! practice; clock drift is outside this analysis.)
+
+use super::{finite, worst, Flow, Outcome};
+use crate::line::LineModel;
+use crate::spec::{Drift, Spec, TdmaSpec};
+
+const FORMULA: &str =
+    "G + e_i + A·F_i + (A − 1)·ifg + d(i,dest) + r_dest, G the longest gap between the node's slot starts";
+const SOURCE: &str = "the TDMA slot schedule of the documented timing model (common practice)";
+
+pub(crate) fn bounds(spec: &Spec, line: &LineModel, t: &TdmaSpec, flows: &[Flow]) -> Vec<Outcome> {
+    let drift = t.drift.iter().any(|d| match *d {
+        Drift::Fixed(ppm) | Drift::Within(ppm) => ppm != 0.0,
+    });
+    if drift {
+        return flows
+            .iter()
+            .map(|_| Outcome::Unbounded {
+                reason: "clock drift moves the slots from cycle to cycle; this analysis takes exact clocks".into(),
+            })
+            .collect();
+    }
+    let frame = &spec.frame;
+    let ifg = u128::from(frame.interframe_gap.0);
+    let tk = t.timekeeper;
+    let cycle = u128::from(t.cycle(frame, spec.nodes[tk].transceiver.enable_time).0);
+    // Each slot's start offset within the cycle.
+    let mut offsets = Vec::with_capacity(t.slots.len());
+    let mut o = 0u128;
+    for s in &t.slots {
+        offsets.push(o);
+        o += u128::from(s.length.0);
+    }
+    flows
+        .iter()
+        .map(|f| {
+            let i = f.node;
+            let mine: Vec<usize> = (0..t.slots.len()).filter(|&k| t.slots[k].owner == i).collect();
+            if mine.is_empty() {
+                return Outcome::Unbounded { reason: format!("\"{}\" owns no slot", spec.nodes[i].name) };
+            }
+            // Longest gap between consecutive slot starts of the node, cyclically.
+            let starts: Vec<u128> = mine.iter().map(|&k| offsets[k]).collect();
+            let gap = (0..starts.len())
+                .map(|n| {
+                    let next = if n + 1 < starts.len() { starts[n + 1] } else { starts[0] + cycle };
+                    next - starts[n]
+                })
+                .max()
+                .unwrap_or(cycle);
+            let wi = worst(spec, i);
+            // A node's driver may not enable again before its previous output
+            // is off plus the gap: after its own previous slot, that can come
+            // later than the next slot's start.
+            let shift = (wi.disable + ifg).saturating_sub(u128::from(t.guard.0));
+            let longest = u128::from(frame.data_time(spec.nodes[i].longest_payload_bits()).0);
+            // Frames of the node's longest size that fit in its smallest slot.
+            let room = mine
+                .iter()
+                .map(|&k| {
+                    let usable = u128::from(t.slots[k].length.0).saturating_sub(u128::from(t.guard.0) + wi.lead + shift);
+                    (usable + ifg) / (longest + ifg)
+                })
+                .min()
+                .unwrap_or(0);
+            let arrivals: Option<u128> = flows.iter().filter(|g| g.node == i).map(|g| g.arrivals_within(gap)).sum();
+            let Some(a) = arrivals else {
+                return Outcome::Unbounded {
+                    reason: format!("\"{}\" has a source without a bound (Poisson without min_interval)", spec.nodes[i].name),
+                };
+            };
+            if a > room {
+                return Outcome::Unbounded {
+                    reason: format!(
+                        "up to {a} messages can arrive at \"{}\" between its slots, and a slot holds {room} of its longest frames: a backlog can build",
+                        spec.nodes[i].name
+                    ),
+                };
+            }
+            let dest = f.traffic.to.unwrap_or(if i == tk { crate::scheme::first_other_node(i) } else { tk });
+            let wd = worst(spec, dest);
+            let tail = shift + wi.lead + a * longest + (a - 1) * ifg + u128::from(line.delay_ps(i, dest)) + wd.receiver;
+            match finite(gap + tail - wd.react.min(tail), "the bound") {
+                Ok(bound) => Outcome::Bounded { bound, formula: FORMULA, source: SOURCE },
+                Err(reason) => Outcome::Unbounded { reason },
+            }
+        })
+        .collect()
+}
