@@ -13,6 +13,7 @@
 mod arbitration;
 mod polling;
 mod tdma;
+mod token;
 
 use crate::line::LineModel;
 use crate::spec::{Latency, NodeId, Pattern, Spec, TrafficSpec};
@@ -60,10 +61,14 @@ pub fn bounds(spec: &Spec, line: &LineModel) -> Vec<FlowBound> {
         (None, crate::spec::AccessSpec::Polling(p)) => polling::bounds(spec, line, p, &flows),
         (None, crate::spec::AccessSpec::Arbitration(a)) => arbitration::bounds(spec, line, a, &flows),
         (None, crate::spec::AccessSpec::Tdma(t)) => tdma::bounds(spec, line, t, &flows),
+        (None, crate::spec::AccessSpec::Token(t)) => token::bounds(spec, line, t, &flows),
         (None, a) => flows
             .iter()
             .map(|_| Outcome::Unbounded {
-                reason: format!("no worst-case analysis of {} is implemented here yet", a.name()),
+                reason: format!(
+                    "{} is random access: a message can lose every contention, so it has no worst case",
+                    a.name()
+                ),
             })
             .collect(),
     };

@@ -183,7 +183,7 @@ fn bound_prints_each_flow_and_refuses_what_it_cannot_bound() {
     let text = String::from_utf8_lossy(&halfwire(&["bound", "scenarios/fruit-grader.toml"]).stdout).into_owned();
     assert!(text.contains("unbounded: ") && text.contains("min_interval"), "{text}");
     let text = String::from_utf8_lossy(&halfwire(&["bound", "scenarios/greenhouse-csma.toml"]).stdout).into_owned();
-    assert!(text.contains("unbounded: no worst-case analysis of csma"), "{text}");
+    assert!(text.contains("unbounded: csma is random access"), "{text}");
     // A bound is a metric an expectation can gate on; an unbounded flow's bound fails with the reason.
     let dir = tempfile::tempdir().unwrap();
     let path = dir.path().join("gate.toml");
@@ -324,4 +324,76 @@ fn no_tdma_latency_exceeds_its_bound_on_200_random_schedules() {
     assert!(bounded > 200, "{bounded} flows bounded");
     assert!(tightest > 0.5, "the closest simulated maximum reached {tightest} of its bound");
     eprintln!("tdma: {bounded} flows bounded; the closest simulated maximum reached {tightest:.3} of its bound");
+}
+
+fn token_set(rng: &mut ChaCha8Rng, seed: u64) -> String {
+    let nodes = rng.random_range(2..7);
+    let per = rng.random_range(0..3);
+    let hold =
+        if rng.random_bool(0.5) { format!("token_hold = \"{} us\"", rng.random_range(50..400)) } else { String::new() };
+    let mut s = format!(
+        r#"
+seed = {seed}
+duration = "200 ms"
+[line]
+length = "30 m"
+impedance = "120 ohm"
+velocity_factor = 0.66
+[transceiver]
+family = "tia485"
+enable_time = "{en} ns"
+disable_time = "{dis} ns"
+receiver_delay = "{rx} ns"
+load = "30 pF"
+[frame]
+bit_rate = "1 Mbit/s"
+overhead_bits = 32
+interframe_gap = "{ifg} us"
+[access]
+scheme = "token"
+token_bits = 24
+max_per_token = {per}
+{hold}
+turnaround = "{turn} us"
+response_latency = {{ min = "0 us", max = "{lat} us" }}
+token_timeout = "5 ms"
+"#,
+        en = rng.random_range(50..500),
+        dis = rng.random_range(50..500),
+        rx = rng.random_range(20..200),
+        ifg = rng.random_range(0..20),
+        turn = rng.random_range(2..30),
+        lat = rng.random_range(0..40),
+    );
+    for n in 0..nodes {
+        let period_ms = rng.random_range(2..20);
+        let jitter_us = rng.random_range(0..(period_ms * 500));
+        let phase_us = rng.random_range(0..(period_ms * 1000));
+        let bytes = rng.random_range(1..40);
+        s += &format!(
+            "[[node]]\nname = \"t{n}\"\nposition = \"{} m\"\ntraffic = {{ pattern = \"periodic\", period = \"{period_ms} ms\", phase = \"{phase_us} us\", jitter = \"{jitter_us} us\", payload = \"{bytes} B\" }}\n",
+            n * 5 + 1
+        );
+    }
+    s
+}
+
+#[test]
+fn no_token_latency_exceeds_its_bound_on_200_random_rings() {
+    let mut rng = ChaCha8Rng::seed_from_u64(1985);
+    let sets: Vec<String> = (0..200).map(|k| token_set(&mut rng, k)).collect();
+    let results = crate::common::par_map(&sets, |t| compare(t));
+    let (mut bounded, mut tightest) = (0, 0.0f64);
+    for (set, flows) in sets.iter().zip(&results) {
+        for (name, max, bound) in flows {
+            if let Some(b) = bound {
+                bounded += 1;
+                assert!(max <= b, "flow {name}: simulated {max} s above its bound {b} s in\n{set}");
+                tightest = tightest.max(max / b);
+            }
+        }
+    }
+    assert!(bounded > 300, "{bounded} flows bounded");
+    assert!(tightest > 0.5, "the closest simulated maximum reached {tightest} of its bound");
+    eprintln!("token: {bounded} flows bounded; the closest simulated maximum reached {tightest:.3} of its bound");
 }
