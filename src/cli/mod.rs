@@ -11,6 +11,7 @@ mod output;
 mod overrides;
 mod rows;
 mod run;
+mod size;
 mod sweep;
 mod waves;
 
@@ -34,6 +35,8 @@ enum Command {
     Budget(budget::BudgetArgs),
     /// Worst-case latency bound of every flow with bounded arrivals, from the timing model.
     Bound(bound::BoundArgs),
+    /// The largest (or smallest) value of one scenario key at which every [[expect]] holds.
+    Size(size::SizeArgs),
     /// Run scenario files and check their [[expect]] requirements (exit 1 if any fails).
     Check(check::CheckArgs),
     /// Compare two JSON reports metric by metric (exit 1 on a regression beyond tolerance).
@@ -132,6 +135,7 @@ fn run() -> ExitCode {
         Command::Run(args) => run::run(args),
         Command::Budget(args) => budget::budget(args),
         Command::Bound(args) => bound::bound(args),
+        Command::Size(args) => size::size(args),
         Command::Check(args) => check::check(args),
         Command::Diff(args) => diff::diff(args),
         Command::Sweep(args) => sweep::sweep(args),

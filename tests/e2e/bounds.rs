@@ -397,3 +397,82 @@ fn no_token_latency_exceeds_its_bound_on_200_random_rings() {
     assert!(tightest > 0.5, "the closest simulated maximum reached {tightest} of its bound");
     eprintln!("token: {bounded} flows bounded; the closest simulated maximum reached {tightest:.3} of its bound");
 }
+
+/// `size` over nodes.count on the irrigation demo (shorter, valves 10 m apart).
+fn size_args(extra: &[&str]) -> Vec<String> {
+    let mut v: Vec<String> =
+        ["size", "scenarios/irrigation-valves.toml", "--duration", "10 s", "--set", "nodes.spacing=\"10 m\""]
+            .iter()
+            .map(|s| s.to_string())
+            .collect();
+    v.extend(extra.iter().map(|s| s.to_string()));
+    v
+}
+
+#[test]
+fn size_finds_the_boundary_a_check_confirms() {
+    use crate::common::halfwire;
+    let args = size_args(&["--key", "nodes.count", "--range", "2..64", "--replications", "2", "--format", "json"]);
+    let args: Vec<&str> = args.iter().map(String::as_str).collect();
+    let out = halfwire(&args);
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    let j: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let answer: u64 = j["answer"].as_str().unwrap().parse().unwrap();
+    assert!((3..64).contains(&answer), "{j}");
+    // No more points than the bracket ends and a bisection of 62 values: 2 + ⌈log2 62⌉ = 8.
+    assert!(j["points"].as_array().unwrap().len() <= 8, "{j}");
+    assert_eq!(j["monotone_over_points"], true);
+    // The boundary as check sees it, at the same replications: the answer passes, the next value fails.
+    let check = |n: u64| {
+        let set = format!("nodes.count={n}");
+        halfwire(&[
+            "check",
+            "scenarios/irrigation-valves.toml",
+            "--duration",
+            "10 s",
+            "--set",
+            "nodes.spacing=\"10 m\"",
+            "--set",
+            &set,
+            "--replications",
+            "2",
+        ])
+        .status
+        .code()
+    };
+    assert_eq!(check(answer), Some(0), "the answer {answer} meets every requirement");
+    assert_eq!(check(answer + 1), Some(1), "the next value {} fails one", answer + 1);
+}
+
+#[test]
+fn size_refuses_bad_questions() {
+    use crate::common::halfwire;
+    let run = |extra: &[&str]| {
+        let args = size_args(extra);
+        let args: Vec<&str> = args.iter().map(String::as_str).collect();
+        let out = halfwire(&args);
+        (out.status.code(), String::from_utf8_lossy(&out.stderr).into_owned())
+    };
+    let (code, err) = run(&["--key", "nodes.cuont", "--range", "2..8"]);
+    assert_eq!(code, Some(2), "{err}");
+    assert!(err.contains("cuont"), "{err}");
+    let (code, err) = run(&["--key", "nodes.count", "--range", "8..8"]);
+    assert_eq!(code, Some(2), "{err}");
+    assert!(err.contains("more than one point"), "{err}");
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("free.toml");
+    let text = std::fs::read_to_string("scenarios/irrigation-valves.toml").unwrap();
+    std::fs::write(&path, &text[..text.find("[[expect]]").unwrap()]).unwrap();
+    let out = halfwire(&[
+        "size",
+        path.to_str().unwrap(),
+        "--key",
+        "nodes.count",
+        "--range",
+        "2..8",
+        "--set",
+        "nodes.spacing=\"10 m\"",
+    ]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("no [[expect]]"));
+}

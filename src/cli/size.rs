@@ -1,0 +1,260 @@
+//! `halfwire size`: the largest (or smallest) value of one scenario key at
+//! which every `[[expect]]` of the scenario holds, by bracketing and bisection.
+
+use std::fmt::Write as _;
+use std::path::PathBuf;
+
+use clap::{Args, ValueEnum};
+use halfwire::check::{self, Outcome};
+use halfwire::scenario::edit::Literal;
+use halfwire::spec::Spec;
+
+use super::output::print_stdout;
+use super::overrides::ScenarioOverrides;
+use super::run::Format;
+use super::Failure;
+
+#[derive(Debug, Args)]
+pub struct SizeArgs {
+    /// Scenario file (TOML) with the requirements as [[expect]] entries.
+    pub file: PathBuf,
+    /// The scenario key to size, e.g. nodes.count or frame.bit_rate.
+    #[arg(long, value_name = "KEY")]
+    pub key: String,
+    /// The values to search: A..B, integers (2..64) or quantities in one unit
+    /// ("9600 bit/s..1 Mbit/s" is refused; write "9.6 kbit/s..1000 kbit/s").
+    #[arg(long, value_name = "A..B")]
+    pub range: String,
+    /// Find the largest value that meets every requirement, or the smallest.
+    #[arg(long, value_enum, default_value_t = Find::Max)]
+    pub find: Find,
+    /// Stop when the passing and failing values are this close (a number in
+    /// the range's unit; default: a thousandth of the range). Integer keys
+    /// stop at adjacent values.
+    #[arg(long, value_name = "STEP")]
+    pub resolution: Option<f64>,
+    /// Run each point N times with independent seeds and judge it as
+    /// `check --replications N` does (means; `confidence = true` at the unfavourable limit).
+    #[arg(long, value_name = "N")]
+    pub replications: Option<u64>,
+    /// Replications run at once (default: the number of cores).
+    #[arg(long, value_name = "N")]
+    pub jobs: Option<usize>,
+    /// Output format on stdout.
+    #[arg(long, value_enum, default_value_t = Format::Text)]
+    pub format: Format,
+    #[command(flatten)]
+    pub overrides: ScenarioOverrides,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum, serde::Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Find {
+    Max,
+    Min,
+}
+
+/// The searched values: integers, or numbers in one unit.
+#[derive(Debug, Clone)]
+struct Range {
+    lo: f64,
+    hi: f64,
+    unit: Option<String>,
+    integer: bool,
+}
+
+impl Range {
+    fn parse(s: &str) -> Result<Range, String> {
+        let (a, b) = s.split_once("..").ok_or_else(|| format!("--range {s:?}: write A..B, e.g. 2..64"))?;
+        let (a, b) = (a.trim(), b.trim());
+        if let (Ok(x), Ok(y)) = (a.parse::<i64>(), b.parse::<i64>()) {
+            return Ok(Range { lo: x as f64, hi: y as f64, unit: None, integer: true });
+        }
+        let split = |t: &str| -> Result<(f64, String), String> {
+            let at = t.find(|c: char| c.is_alphabetic()).unwrap_or(t.len());
+            let x: f64 = t[..at].trim().parse().map_err(|_| format!("--range: {t:?} is not a number with a unit"))?;
+            Ok((x, t[at..].trim().to_owned()))
+        };
+        let ((x, u), (y, v)) = (split(a)?, split(b)?);
+        if u != v {
+            return Err(format!("--range: give both ends in one unit ({u:?} and {v:?})"));
+        }
+        Ok(Range { lo: x, hi: y, unit: (!u.is_empty()).then_some(u), integer: false })
+    }
+
+    fn literal(&self, x: f64) -> Literal {
+        match (&self.unit, self.integer) {
+            (_, true) => Literal::Int(x as i64),
+            (Some(u), false) => Literal::Text(format!("{x} {u}")),
+            (None, false) => Literal::Float(x),
+        }
+    }
+
+    fn show(&self, x: f64) -> String {
+        match &self.unit {
+            Some(u) => format!("{x} {u}"),
+            None => format!("{x}"),
+        }
+    }
+}
+
+#[derive(Debug, serde::Serialize)]
+struct Point {
+    value: String,
+    #[serde(skip)]
+    x: f64,
+    pass: bool,
+    outcomes: Vec<Outcome>,
+}
+
+pub fn size(args: SizeArgs) -> Result<u8, Failure> {
+    let range = Range::parse(&args.range).map_err(Failure::input)?;
+    if !(range.lo.is_finite() && range.hi.is_finite()) || range.lo >= range.hi {
+        return Err(Failure::input(format!(
+            "--range {}: the range must run from a smaller to a larger value, with more than one point",
+            args.range
+        )));
+    }
+    if args.replications == Some(0) {
+        return Err(Failure::input("--replications must be at least 1"));
+    }
+    let step = if range.integer {
+        1.0
+    } else {
+        let s = args.resolution.unwrap_or((range.hi - range.lo) / 1000.0);
+        if !(s > 0.0 && s.is_finite()) {
+            return Err(Failure::input("--resolution must be a positive number"));
+        }
+        s
+    };
+    let text = halfwire::scenario::read_text(&args.file)?;
+    let file = args.file.display().to_string();
+    let jobs = args.jobs.unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |n| n.get())).max(1);
+    let mut resolved: Option<Vec<check::Resolved>> = None;
+    let mut points: Vec<Point> = Vec::new();
+    let mut eval = |x: f64| -> Result<bool, Failure> {
+        eprintln!("halfwire size: trying {} = {}", args.key, range.show(x));
+        let mut o = args.overrides.get();
+        o.set.push((args.key.clone(), range.literal(x)));
+        let spec: Spec = halfwire::scenario::parse_with(&text, &file, &o)?;
+        if spec.expect.is_empty() {
+            return Err(Failure::input(format!("{file}: no [[expect]] entries: size needs requirements to meet")));
+        }
+        if resolved.is_none() {
+            let mut probe = spec.clone();
+            probe.warmup = halfwire::units::Picos::ZERO;
+            probe.duration = halfwire::units::Picos(1);
+            let metrics = check::flatten(&serde_json::to_value(halfwire::simulate(&probe)).expect("serializable"));
+            resolved = Some(check::resolve(&file, &spec.expect, &metrics)?);
+        }
+        let rs = resolved.as_ref().expect("resolved above");
+        let outcomes: Vec<Outcome> = match args.replications {
+            None | Some(1) => {
+                let metrics = check::flatten(&serde_json::to_value(halfwire::simulate(&spec)).expect("serializable"));
+                rs.iter().map(|r| check::evaluate(r, &metrics, None)).collect()
+            }
+            Some(n) => {
+                let flat: Vec<_> = halfwire::replicate(&spec, n, jobs)
+                    .iter()
+                    .map(|r| check::flatten(&serde_json::to_value(r).expect("serializable")))
+                    .collect();
+                let summary = halfwire::stats::replication::summarize(&flat);
+                let means = summary.iter().map(|(k, m)| (k.clone(), m.mean)).collect();
+                let intervals = summary.iter().map(|(k, m)| (k.clone(), (m.ci95_low, m.ci95_high))).collect();
+                rs.iter().map(|r| check::evaluate(r, &means, Some(&intervals))).collect()
+            }
+        };
+        let pass = outcomes.iter().all(|o| o.pass);
+        points.push(Point { value: range.show(x), x, pass, outcomes });
+        Ok(pass)
+    };
+    // The good end is where the requirements are expected to hold.
+    let (good, bad) = match args.find {
+        Find::Max => (range.lo, range.hi),
+        Find::Min => (range.hi, range.lo),
+    };
+    let good_ok = eval(good)?;
+    let bad_ok = eval(bad)?;
+    let answer = match (good_ok, bad_ok) {
+        (_, true) => Some(bad), // the whole range meets them (at least at its far end)
+        (false, false) => None,
+        (true, false) => {
+            let (mut g, mut b) = (good, bad);
+            while (b - g).abs() > step * (1.0 + 1e-9) {
+                let mut mid = (g + b) / 2.0;
+                if range.integer {
+                    mid = if b > g { mid.floor() } else { mid.ceil() };
+                }
+                if eval(mid)? {
+                    g = mid;
+                } else {
+                    b = mid;
+                }
+            }
+            Some(g)
+        }
+    };
+    // Monotone over the points tried? A passing value beyond a failing one says no.
+    let beyond = |a: f64, b: f64| if args.find == Find::Max { a > b } else { a < b };
+    let monotone = !points.iter().any(|p| p.pass && points.iter().any(|q| !q.pass && beyond(p.x, q.x)));
+    let out = match args.format {
+        Format::Json => {
+            let v = serde_json::json!({
+                "key": args.key,
+                "find": args.find,
+                "answer": answer.map(|x| range.show(x)),
+                "monotone_over_points": monotone,
+                "points": points,
+            });
+            format!("{}\n", serde_json::to_string_pretty(&v).expect("plain data"))
+        }
+        _ => {
+            let mut o = String::new();
+            let _ = writeln!(
+                o,
+                "halfwire size: {} ({} of {} over {})",
+                file,
+                match args.find {
+                    Find::Max => "largest",
+                    Find::Min => "smallest",
+                },
+                args.key,
+                args.range
+            );
+            let _ = writeln!(o);
+            for p in &points {
+                let failed: Vec<&str> = p.outcomes.iter().filter(|x| !x.pass).map(|x| x.metric.as_str()).collect();
+                let _ = writeln!(
+                    o,
+                    "  {} = {:<14} {}",
+                    args.key,
+                    p.value,
+                    if p.pass { "meets every requirement".to_owned() } else { format!("fails: {}", failed.join(", ")) }
+                );
+            }
+            let _ = writeln!(o);
+            match answer {
+                Some(x) if x == bad => {
+                    let _ = writeln!(
+                        o,
+                        "  every requirement holds at both ends: {} = {} (the end of the range)",
+                        args.key,
+                        range.show(x)
+                    );
+                }
+                Some(x) => {
+                    let _ = writeln!(o, "  answer: {} = {}  ({} points run)", args.key, range.show(x), points.len());
+                }
+                None => {
+                    let _ = writeln!(o, "  no value in the range meets every requirement (both ends fail)");
+                }
+            }
+            if !monotone {
+                let _ = writeln!(o, "  warning: the outcome is not monotone over the points tried; the answer is one boundary, not necessarily the only one");
+            }
+            o
+        }
+    };
+    print_stdout(&out)?;
+    Ok(if answer.is_some() { 0 } else { super::status::FAILED })
+}
