@@ -61,6 +61,9 @@ struct Range {
     hi: f64,
     unit: Option<String>,
     integer: bool,
+    /// Decimals kept for a continuous value (from the resolution), so every
+    /// value tried is a short decimal that `check --set` reproduces exactly.
+    decimals: usize,
 }
 
 impl Range {
@@ -68,7 +71,7 @@ impl Range {
         let (a, b) = s.split_once("..").ok_or_else(|| format!("--range {s:?}: write A..B, e.g. 2..64"))?;
         let (a, b) = (a.trim(), b.trim());
         if let (Ok(x), Ok(y)) = (a.parse::<i64>(), b.parse::<i64>()) {
-            return Ok(Range { lo: x as f64, hi: y as f64, unit: None, integer: true });
+            return Ok(Range { lo: x as f64, hi: y as f64, unit: None, integer: true, decimals: 0 });
         }
         let split = |t: &str| -> Result<(f64, String), String> {
             let at = t.find(|c: char| c.is_alphabetic()).unwrap_or(t.len());
@@ -79,21 +82,27 @@ impl Range {
         if u != v {
             return Err(format!("--range: give both ends in one unit ({u:?} and {v:?})"));
         }
-        Ok(Range { lo: x, hi: y, unit: (!u.is_empty()).then_some(u), integer: false })
+        Ok(Range { lo: x, hi: y, unit: (!u.is_empty()).then_some(u), integer: false, decimals: 6 })
     }
 
     fn literal(&self, x: f64) -> Literal {
         match (&self.unit, self.integer) {
             (_, true) => Literal::Int(x as i64),
-            (Some(u), false) => Literal::Text(format!("{x} {u}")),
-            (None, false) => Literal::Float(x),
+            (Some(u), false) => Literal::Text(format!("{} {u}", self.round(x))),
+            (None, false) => Literal::Float(self.round(x)),
         }
     }
 
+    /// `x` rounded to the decimals kept.
+    fn round(&self, x: f64) -> f64 {
+        format!("{x:.*}", self.decimals).parse().expect("a formatted number")
+    }
+
     fn show(&self, x: f64) -> String {
+        let n = if self.integer { format!("{x}") } else { format!("{}", self.round(x)) };
         match &self.unit {
-            Some(u) => format!("{x} {u}"),
-            None => format!("{x}"),
+            Some(u) => format!("{n} {u}"),
+            None => n,
         }
     }
 }
@@ -108,7 +117,7 @@ struct Point {
 }
 
 pub fn size(args: SizeArgs) -> Result<u8, Failure> {
-    let range = Range::parse(&args.range).map_err(Failure::input)?;
+    let mut range = Range::parse(&args.range).map_err(Failure::input)?;
     if !(range.lo.is_finite() && range.hi.is_finite()) || range.lo >= range.hi {
         return Err(Failure::input(format!(
             "--range {}: the range must run from a smaller to a larger value, with more than one point",
@@ -125,6 +134,8 @@ pub fn size(args: SizeArgs) -> Result<u8, Failure> {
         if !(s > 0.0 && s.is_finite()) {
             return Err(Failure::input("--resolution must be a positive number"));
         }
+        // One decimal finer than the resolution.
+        range.decimals = (1.0 - s.log10().floor()).clamp(0.0, 15.0) as usize;
         s
     };
     let text = halfwire::scenario::read_text(&args.file)?;
@@ -184,6 +195,8 @@ pub fn size(args: SizeArgs) -> Result<u8, Failure> {
                 let mut mid = (g + b) / 2.0;
                 if range.integer {
                     mid = if b > g { mid.floor() } else { mid.ceil() };
+                } else {
+                    mid = range.round(mid);
                 }
                 if eval(mid)? {
                     g = mid;
