@@ -43,6 +43,10 @@ pub struct SizeArgs {
     /// Output format on stdout.
     #[arg(long, value_enum, default_value_t = Format::Text)]
     pub format: Format,
+    /// Draw the binding requirement's metric against the key (SVG), with the
+    /// requirement as a line and the failing values marked.
+    #[arg(long, value_name = "FILE")]
+    pub plot: Option<PathBuf>,
     #[command(flatten)]
     pub overrides: ScenarioOverrides,
 }
@@ -123,6 +127,9 @@ pub fn size(args: SizeArgs) -> Result<u8, Failure> {
             "--range {}: the range must run from a smaller to a larger value, with more than one point",
             args.range
         )));
+    }
+    if let Some(p) = &args.plot {
+        super::output::check_writable(p, &[args.file.as_path()])?;
     }
     if args.replications == Some(0) {
         return Err(Failure::input("--replications must be at least 1"));
@@ -268,6 +275,26 @@ pub fn size(args: SizeArgs) -> Result<u8, Failure> {
             o
         }
     };
+    if let Some(path) = &args.plot {
+        // The binding requirement: the first that fails at a failing value
+        // (the nearest to the answer), else the first.
+        let binding = points
+            .iter()
+            .filter(|p| !p.pass)
+            .min_by(|a, b| (a.x - answer.unwrap_or(a.x)).abs().total_cmp(&(b.x - answer.unwrap_or(b.x)).abs()))
+            .and_then(|p| p.outcomes.iter().position(|o| !o.pass))
+            .unwrap_or(0);
+        let first = &points[0].outcomes[binding];
+        let tried: Vec<halfwire::plot::size::Tried> = points
+            .iter()
+            .map(|p| halfwire::plot::size::Tried { x: p.x, y: p.outcomes[binding].measured, pass: p.pass })
+            .collect();
+        let chart =
+            halfwire::plot::size::chart(&args.key, range.unit.clone(), &first.metric, first.op, first.required, &tried);
+        let mut f = super::output::AtomicFile::create(path)?;
+        f.write(chart.render().as_bytes())?;
+        f.commit()?;
+    }
     print_stdout(&out)?;
     Ok(if answer.is_some() { 0 } else { super::status::FAILED })
 }

@@ -4,6 +4,7 @@
 pub mod axis;
 pub mod chart;
 pub mod latency;
+pub mod size;
 pub mod sweep;
 pub mod timing;
 

@@ -445,6 +445,23 @@ fn size_finds_the_boundary_a_check_confirms() {
 }
 
 #[test]
+fn size_draws_the_binding_requirement() {
+    use crate::common::halfwire;
+    let dir = tempfile::tempdir().unwrap();
+    let svg = dir.path().join("size.svg");
+    let args = size_args(&["--key", "nodes.count", "--range", "2..64", "--plot", svg.to_str().unwrap()]);
+    let args: Vec<&str> = args.iter().map(String::as_str).collect();
+    assert_eq!(halfwire(&args).status.code(), Some(0));
+    let text = std::fs::read_to_string(&svg).unwrap();
+    let doc = roxmltree::Document::parse(&text).expect("well-formed SVG");
+    let texts: Vec<String> =
+        doc.descendants().filter(|n| n.has_tag_name("text")).filter_map(|n| n.text().map(str::to_owned)).collect();
+    assert!(texts.iter().any(|t| t.contains("latency_s.all.p99 against nodes.count")), "{texts:?}");
+    assert!(texts.iter().any(|t| t.starts_with("requirement: <= 1 s")), "{texts:?}");
+    assert!(texts.iter().any(|t| t.contains("some requirement fails")), "{texts:?}");
+}
+
+#[test]
 fn size_refuses_bad_questions() {
     use crate::common::halfwire;
     let run = |extra: &[&str]| {
