@@ -104,6 +104,57 @@ impl Flow {
     }
 }
 
+/// The flows of each node, for the most arrivals at a node in a window.
+pub(crate) struct Arrivals<'a> {
+    by_node: Vec<Vec<&'a Flow>>,
+}
+
+impl<'a> Arrivals<'a> {
+    pub fn new(spec: &Spec, flows: &'a [Flow]) -> Self {
+        let mut by_node: Vec<Vec<&Flow>> = vec![Vec::new(); spec.nodes.len()];
+        for f in flows {
+            by_node[f.node].push(f);
+        }
+        Arrivals { by_node }
+    }
+
+    /// Most arrivals at `node`, over all its sources, in a closed window of
+    /// length `t`; `None` if one of its sources has no bound.
+    pub fn within(&self, node: NodeId, t: u128) -> Option<u128> {
+        self.by_node[node].iter().map(|f| f.arrivals_within(t)).sum()
+    }
+}
+
+/// A node with a source without a bound: its flows have none either.
+pub(crate) fn unbounded_source(spec: &Spec, node: NodeId) -> Outcome {
+    Outcome::Unbounded {
+        reason: format!("\"{}\" has a source without a bound (Poisson without min_interval)", spec.nodes[node].name),
+    }
+}
+
+/// The least fixed point of a non-decreasing `step`, iterated from
+/// `start`: a worst-case cycle or rotation. An error when it grows past
+/// 10^6 s or has not settled after many steps (never a value short of it).
+pub(crate) fn least_fixed_point(
+    start: u128,
+    what: &str,
+    mut step: impl FnMut(u128) -> Result<u128, String>,
+) -> Result<u128, String> {
+    let cap = u128::from(crate::scenario::check::MAX_TIME.0);
+    let mut x = start;
+    for _ in 0..100_000 {
+        let next = step(x)?;
+        if next == x {
+            return Ok(x);
+        }
+        if next > cap {
+            return Err(format!("the worst-case {what} grows past 10^6 s: the bus does not keep up"));
+        }
+        x = next;
+    }
+    Err(format!("the worst-case {what} did not settle within 100 000 steps of the analysis"))
+}
+
 /// Every traffic source, named.
 pub(crate) fn flows(spec: &Spec) -> Vec<Flow> {
     let mut out = Vec::new();

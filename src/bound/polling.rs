@@ -27,7 +27,7 @@
 //! (Method: the cyclic-executive argument of common practice, from the
 //! documented timing model; README, "Timing model".)
 
-use super::{finite, latency_max, worst, Flow, Outcome};
+use super::{finite, latency_max, least_fixed_point, unbounded_source, worst, Arrivals, Flow, Outcome};
 use crate::line::LineModel;
 use crate::spec::{NodeId, PollingSpec, Spec};
 
@@ -66,17 +66,12 @@ fn analyse(spec: &Spec, line: &LineModel, p: &PollingSpec, flows: &[Flow]) -> Re
     let longest = |j: NodeId| u128::from(frame.data_time(spec.nodes[j].longest_payload_bits()).0);
     let burst = |j: NodeId, k: u128| if k == 0 { empty } else { k * longest(j) + (k - 1) * ifg };
     let limit = if p.max_per_poll == 0 { None } else { Some(u128::from(p.max_per_poll)) };
-    // Most arrivals at slave j in a window of t; None if unbounded.
-    let mut by_node: Vec<Vec<&Flow>> = vec![Vec::new(); spec.nodes.len()];
-    for f in flows {
-        by_node[f.node].push(f);
-    }
-    let arrivals = |j: NodeId, t: u128| -> Option<u128> { by_node[j].iter().map(|f| f.arrivals_within(t)).sum() };
+    let arrivals = Arrivals::new(spec, flows);
     let frames_at = |j: NodeId, c: u128| -> Result<u128, String> {
         if spec.nodes[j].traffic.is_empty() {
             return Ok(0);
         }
-        match (arrivals(j, c), limit) {
+        match (arrivals.within(j, c), limit) {
             (Some(a), Some(l)) => Ok(a.min(l)),
             (Some(a), None) => Ok(a),
             (None, Some(l)) => Ok(l),
@@ -115,37 +110,17 @@ fn analyse(spec: &Spec, line: &LineModel, p: &PollingSpec, flows: &[Flow]) -> Re
         // The master never enables before its poll is off plus the gap.
         x.max(wm.lead + poll + wm.disable + ifg)
     };
-    let limit_ps = u128::from(crate::scenario::check::MAX_TIME.0);
-    let mut c: u128 = p.order.iter().map(|&j| exchange(j, 0)).sum();
-    for _ in 0..10_000 {
-        let mut next = 0u128;
-        for &j in &p.order {
-            next += exchange(j, frames_at(j, c)?);
-        }
-        if next == c {
-            break;
-        }
-        if next > limit_ps {
-            return Err("the worst-case poll cycle grows past 10^6 s: the bus does not keep up".into());
-        }
-        c = next;
-    }
+    let zero_load = p.order.iter().map(|&j| exchange(j, 0)).sum();
+    let c = least_fixed_point(zero_load, "poll cycle", |c| {
+        p.order.iter().map(|&j| Ok(exchange(j, frames_at(j, c)?))).sum()
+    })?;
     let mut out = Vec::with_capacity(flows.len());
     for f in flows {
         let s = f.node;
-        let Some(a) = arrivals(s, c) else {
-            out.push(Outcome::Unbounded {
-                reason: format!(
-                    "\"{}\" has a source without a bound (Poisson without min_interval)",
-                    spec.nodes[s].name
-                ),
-            });
+        let Some(a) = arrivals.within(s, c) else {
+            out.push(unbounded_source(spec, s));
             continue;
         };
-        if f.arrivals_within(c).is_none() {
-            out.push(Outcome::Unbounded { reason: "a Poisson source without min_interval has no worst case".into() });
-            continue;
-        }
         if limit.is_some_and(|l| a > l) {
             out.push(Outcome::Unbounded {
                 reason: format!(

@@ -15,7 +15,7 @@
 //! (Method: the slot schedule of the documented timing model, common
 //! practice; clock drift is outside this analysis.)
 
-use super::{finite, worst, Flow, Outcome};
+use super::{finite, unbounded_source, worst, Arrivals, Flow, Outcome};
 use crate::line::LineModel;
 use crate::spec::{Drift, Spec, TdmaSpec};
 
@@ -46,6 +46,7 @@ pub(crate) fn bounds(spec: &Spec, line: &LineModel, t: &TdmaSpec, flows: &[Flow]
         offsets.push(o);
         o += u128::from(s.length.0);
     }
+    let arrivals = Arrivals::new(spec, flows);
     flows
         .iter()
         .map(|f| {
@@ -78,11 +79,8 @@ pub(crate) fn bounds(spec: &Spec, line: &LineModel, t: &TdmaSpec, flows: &[Flow]
                 })
                 .min()
                 .unwrap_or(0);
-            let arrivals: Option<u128> = flows.iter().filter(|g| g.node == i).map(|g| g.arrivals_within(gap)).sum();
-            let Some(a) = arrivals else {
-                return Outcome::Unbounded {
-                    reason: format!("\"{}\" has a source without a bound (Poisson without min_interval)", spec.nodes[i].name),
-                };
+            let Some(a) = arrivals.within(i, gap) else {
+                return unbounded_source(spec, i);
             };
             if a > room {
                 return Outcome::Unbounded {

@@ -22,7 +22,7 @@
 //! (Method: the worst-case token rotation of the documented timing model,
 //! common practice.)
 
-use super::{finite, latency_max, worst, Flow, Outcome};
+use super::{finite, latency_max, least_fixed_point, unbounded_source, worst, Arrivals, Flow, Outcome};
 use crate::line::LineModel;
 use crate::spec::{NodeId, Spec, TokenSpec};
 
@@ -68,16 +68,12 @@ fn analyse(spec: &Spec, line: &LineModel, t: &TokenSpec, flows: &[Flow]) -> Resu
             (a, b) => a.or(b),
         }
     };
-    let mut by_node: Vec<Vec<&Flow>> = vec![Vec::new(); spec.nodes.len()];
-    for f in flows {
-        by_node[f.node].push(f);
-    }
-    let arrivals = |j: NodeId, w: u128| -> Option<u128> { by_node[j].iter().map(|f| f.arrivals_within(w)).sum() };
+    let arrivals = Arrivals::new(spec, flows);
     let frames_at = |j: NodeId, r: u128| -> Result<u128, String> {
         if spec.nodes[j].traffic.is_empty() {
             return Ok(0);
         }
-        match (arrivals(j, r), limit(j)) {
+        match (arrivals.within(j, r), limit(j)) {
             (Some(a), Some(l)) => Ok(a.min(l)),
             (Some(a), None) => Ok(a),
             (None, Some(l)) => Ok(l),
@@ -111,31 +107,13 @@ fn analyse(spec: &Spec, line: &LineModel, t: &TokenSpec, flows: &[Flow]) -> Resu
             );
         }
     }
-    let cap = u128::from(crate::scenario::check::MAX_TIME.0);
-    let mut r: u128 = (0..n).map(|k| turn(k, 0)).sum();
-    for _ in 0..10_000 {
-        let mut next_r = 0u128;
-        for k in 0..n {
-            next_r += turn(k, frames_at(t.order[k], r)?);
-        }
-        if next_r == r {
-            break;
-        }
-        if next_r > cap {
-            return Err("the worst-case rotation grows past 10^6 s: the ring does not keep up".into());
-        }
-        r = next_r;
-    }
+    let zero_load = (0..n).map(|k| turn(k, 0)).sum();
+    let r = least_fixed_point(zero_load, "rotation", |r| (0..n).map(|k| Ok(turn(k, frames_at(t.order[k], r)?))).sum())?;
     let mut out = Vec::with_capacity(flows.len());
     for f in flows {
         let s = f.node;
-        let Some(a) = arrivals(s, r) else {
-            out.push(Outcome::Unbounded {
-                reason: format!(
-                    "\"{}\" has a source without a bound (Poisson without min_interval)",
-                    spec.nodes[s].name
-                ),
-            });
+        let Some(a) = arrivals.within(s, r) else {
+            out.push(unbounded_source(spec, s));
             continue;
         };
         if limit(s).is_some_and(|l| a > l) {

@@ -345,34 +345,8 @@ impl Simulation {
         let (f, cause) = resolve_delivery(w, idx, to);
         let corrupted = cause.corrupted();
         let now = w.now;
-        if w.down[to] {
-            // Nobody listens at a down node: its frames are lost there.
-            if w.in_window(now) {
-                if f.kind == FrameKind::Data {
-                    w.stats.frames.attempts += 1;
-                    w.stats.data_frames_sent += 1;
-                    w.stats.data_wire_ps += u128::from(f.e - f.s);
-                    w.stats.frames.unheard += 1;
-                    if f.message.is_some() && !self.scheme.resends_corrupted() {
-                        // Sent once: lost with its receiver.
-                        w.stats.frames.given_up += 1;
-                    }
-                } else {
-                    w.stats.frames.control_frames += 1;
-                }
-            }
-            let rx = Reception {
-                kind: f.kind,
-                from: f.src,
-                at: to,
-                corrupted,
-                message: f.message,
-                sent_end: Picos(f.e),
-                occupancy: f.occupancy,
-            };
-            self.scheme.on_unheard(&mut self.world, &rx);
-            return;
-        }
+        // Nobody listens at a down node: its frames are lost there (unheard).
+        let down = w.down[to];
         if w.in_window(now) {
             if f.kind == FrameKind::Data {
                 // The frame's time on the wire inside the measured window.
@@ -381,9 +355,13 @@ impl Simulation {
                 st.frames.attempts += 1;
                 st.data_frames_sent += 1;
                 st.data_wire_ps += u128::from(f.e - f.s);
-                if corrupted {
-                    st.frames.corrupted += 1;
-                    st.frames.corrupted_by.count(cause);
+                if down || corrupted {
+                    if down {
+                        st.frames.unheard += 1;
+                    } else {
+                        st.frames.corrupted += 1;
+                        st.frames.corrupted_by.count(cause);
+                    }
                     if f.message.is_some() && !f.aborted && !self.scheme.resends_corrupted() {
                         // Sent once: the message is lost, and counted so.
                         st.frames.given_up += 1;
@@ -401,7 +379,7 @@ impl Simulation {
                 }
             } else {
                 w.stats.frames.control_frames += 1;
-                if corrupted {
+                if corrupted && !down {
                     w.stats.frames.control_corrupted += 1;
                 }
             }
@@ -415,6 +393,10 @@ impl Simulation {
             sent_end: Picos(f.e),
             occupancy: f.occupancy,
         };
+        if down {
+            self.scheme.on_unheard(&mut self.world, &rx);
+            return;
+        }
         if self.is_external(to) {
             let done = self.world.frames[idx as usize].remaining == 0;
             let notice = external::Notice::Frame {

@@ -29,6 +29,26 @@ fn compare(toml: &str) -> Vec<(String, f64, Option<f64>)> {
         .collect()
 }
 
+/// Every simulated maximum of every set at most its bound; more than
+/// `min_bounded` flows bounded, and the bounds not vacuous (some flow comes
+/// within half of its bound).
+fn assert_bounds_hold(scheme: &str, sets: &[String], min_bounded: usize) {
+    let results = crate::common::par_map(sets, |t| compare(t));
+    let (mut bounded, mut tightest) = (0, 0.0f64);
+    for (set, flows) in sets.iter().zip(&results) {
+        for (name, max, bound) in flows {
+            if let Some(b) = bound {
+                bounded += 1;
+                assert!(max <= b, "flow {name}: simulated {max} s above its bound {b} s in\n{set}");
+                tightest = tightest.max(max / b);
+            }
+        }
+    }
+    assert!(bounded > min_bounded, "{bounded} flows bounded");
+    assert!(tightest > 0.5, "the closest simulated maximum reached {tightest} of its bound");
+    eprintln!("{scheme}: {bounded} flows bounded; the closest simulated maximum reached {tightest:.3} of its bound");
+}
+
 fn arbitration_set(rng: &mut ChaCha8Rng, seed: u64) -> String {
     let nodes = rng.random_range(2..6);
     let mut s = format!(
@@ -79,21 +99,7 @@ sample_point = 0.8
 fn no_arbitration_latency_exceeds_its_bound_on_200_random_flow_sets() {
     let mut rng = ChaCha8Rng::seed_from_u64(2007);
     let sets: Vec<String> = (0..200).map(|k| arbitration_set(&mut rng, k)).collect();
-    let results = crate::common::par_map(&sets, |t| compare(t));
-    let (mut bounded, mut tightest) = (0, 0.0f64);
-    for (set, flows) in sets.iter().zip(&results) {
-        for (name, max, bound) in flows {
-            if let Some(b) = bound {
-                bounded += 1;
-                assert!(max <= b, "flow {name}: simulated {max} s above its bound {b} s in\n{set}");
-                tightest = tightest.max(max / b);
-            }
-        }
-    }
-    assert!(bounded > 400, "{bounded} flows bounded");
-    // The bounds are not vacuous: some flow comes close to its bound.
-    assert!(tightest > 0.5, "the closest simulated maximum reached {tightest} of its bound");
-    eprintln!("arbitration: {bounded} flows bounded; the closest simulated maximum reached {tightest:.3} of its bound");
+    assert_bounds_hold("arbitration", &sets, 400);
 }
 
 fn polling_set(rng: &mut ChaCha8Rng, seed: u64) -> String {
@@ -154,20 +160,7 @@ position = "0 m"
 fn no_polling_latency_exceeds_its_bound_on_200_random_buses() {
     let mut rng = ChaCha8Rng::seed_from_u64(1994);
     let sets: Vec<String> = (0..200).map(|k| polling_set(&mut rng, k)).collect();
-    let results = crate::common::par_map(&sets, |t| compare(t));
-    let (mut bounded, mut tightest) = (0, 0.0f64);
-    for (set, flows) in sets.iter().zip(&results) {
-        for (name, max, bound) in flows {
-            if let Some(b) = bound {
-                bounded += 1;
-                assert!(max <= b, "flow {name}: simulated {max} s above its bound {b} s in\n{set}");
-                tightest = tightest.max(max / b);
-            }
-        }
-    }
-    assert!(bounded > 300, "{bounded} flows bounded");
-    assert!(tightest > 0.5, "the closest simulated maximum reached {tightest} of its bound");
-    eprintln!("polling: {bounded} flows bounded; the closest simulated maximum reached {tightest:.3} of its bound");
+    assert_bounds_hold("polling", &sets, 300);
 }
 
 #[test]
@@ -310,20 +303,7 @@ position = "0 m"
 fn no_tdma_latency_exceeds_its_bound_on_200_random_schedules() {
     let mut rng = ChaCha8Rng::seed_from_u64(1981);
     let sets: Vec<String> = (0..200).map(|k| tdma_set(&mut rng, k)).collect();
-    let results = crate::common::par_map(&sets, |t| compare(t));
-    let (mut bounded, mut tightest) = (0, 0.0f64);
-    for (set, flows) in sets.iter().zip(&results) {
-        for (name, max, bound) in flows {
-            if let Some(b) = bound {
-                bounded += 1;
-                assert!(max <= b, "flow {name}: simulated {max} s above its bound {b} s in\n{set}");
-                tightest = tightest.max(max / b);
-            }
-        }
-    }
-    assert!(bounded > 200, "{bounded} flows bounded");
-    assert!(tightest > 0.5, "the closest simulated maximum reached {tightest} of its bound");
-    eprintln!("tdma: {bounded} flows bounded; the closest simulated maximum reached {tightest:.3} of its bound");
+    assert_bounds_hold("tdma", &sets, 200);
 }
 
 fn token_set(rng: &mut ChaCha8Rng, seed: u64) -> String {
@@ -382,20 +362,7 @@ token_timeout = "5 ms"
 fn no_token_latency_exceeds_its_bound_on_200_random_rings() {
     let mut rng = ChaCha8Rng::seed_from_u64(1985);
     let sets: Vec<String> = (0..200).map(|k| token_set(&mut rng, k)).collect();
-    let results = crate::common::par_map(&sets, |t| compare(t));
-    let (mut bounded, mut tightest) = (0, 0.0f64);
-    for (set, flows) in sets.iter().zip(&results) {
-        for (name, max, bound) in flows {
-            if let Some(b) = bound {
-                bounded += 1;
-                assert!(max <= b, "flow {name}: simulated {max} s above its bound {b} s in\n{set}");
-                tightest = tightest.max(max / b);
-            }
-        }
-    }
-    assert!(bounded > 300, "{bounded} flows bounded");
-    assert!(tightest > 0.5, "the closest simulated maximum reached {tightest} of its bound");
-    eprintln!("token: {bounded} flows bounded; the closest simulated maximum reached {tightest:.3} of its bound");
+    assert_bounds_hold("token", &sets, 300);
 }
 
 /// `size` over nodes.count on the irrigation demo (shorter, valves 10 m apart).
