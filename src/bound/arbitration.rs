@@ -13,7 +13,9 @@
 //! (e the longest enable time, d the longest wire delay, r the longest
 //! receiver delay, F_k its frame, dis its sender's disable time). With B_i
 //! the longest C_k of a lower priority (a round that began just before i
-//! could join it), T_k and J_k each flow's minimum inter-arrival time and
+//! could join it), and at least idle_bits·tb (the bus must show that much
+//! idle before its first round, so a busy period that opens the run starts
+//! that late), T_k and J_k each flow's minimum inter-arrival time and
 //! release jitter, and τ = 1 ps (a message must be queued by a round's start
 //! to take part in it):
 //!
@@ -74,48 +76,95 @@ pub(crate) fn bounds(spec: &Spec, line: &LineModel, a: &ArbitrationSpec, flows: 
     }
     let cap = u128::from(crate::scenario::check::MAX_TIME.0);
     let mut out = Vec::with_capacity(flows.len());
-    for (i, &(c_i, e_i, t_i, j_i, p_i)) in params.iter().enumerate() {
-        let b_i = params.iter().filter(|x| x.4 > p_i).map(|x| x.0).max().unwrap_or(0);
-        let hp: Vec<_> = params.iter().enumerate().filter(|&(k, x)| k != i && x.4 < p_i).map(|(_, x)| *x).collect();
-        // Busy period, including i itself and equal priorities.
-        let hep: Vec<_> = params.iter().filter(|x| x.4 <= p_i).copied().collect();
-        let mut t = b_i + c_i;
-        let mut ok = true;
-        loop {
-            let next = b_i + hep.iter().map(|x| (t + x.3).div_ceil(x.2) * x.0).sum::<u128>();
-            if next == t {
-                break;
-            }
-            if next > cap {
-                ok = false;
-                break;
-            }
-            t = next;
-        }
-        if !ok {
-            out.push(Outcome::Unbounded {
+    for (i, &(_, e_i, _, _, p_i)) in params.iter().enumerate() {
+        let b_i = params.iter().filter(|x| x.4 > p_i).map(|x| x.0).max().unwrap_or(0).max(idle);
+        let task = |x: &(u128, u128, u128, u128, u64)| Task { c: x.0, t: x.2, j: x.3 };
+        let hp: Vec<Task> =
+            params.iter().enumerate().filter(|&(k, x)| k != i && x.4 < p_i).map(|(_, x)| task(x)).collect();
+        // Equal priorities (another flow with the same id) count in the busy period.
+        let same: Vec<Task> =
+            params.iter().enumerate().filter(|&(k, x)| k != i && x.4 == p_i).map(|(_, x)| task(x)).collect();
+        out.push(match queueing_window(b_i, task(&params[i]), &hp, &same, 1, cap) {
+            None => Outcome::Unbounded {
                 reason: "the busy period of this priority level does not end: the bus is loaded past 100 %".into(),
-            });
-            continue;
-        }
-        let instances = (t + j_i).div_ceil(t_i);
-        let mut worst_q = 0u128;
-        for q in 0..instances {
-            let mut w = b_i + q * c_i;
-            loop {
-                let next = b_i + q * c_i + hp.iter().map(|x| (w + x.3 + 1).div_ceil(x.2) * x.0).sum::<u128>();
-                if next == w || next > cap {
-                    w = next;
-                    break;
-                }
-                w = next;
-            }
-            worst_q = worst_q.max(w.saturating_sub(q * t_i));
-        }
-        out.push(match finite(worst_q + e_i, "the bound") {
-            Ok(bound) => Outcome::Bounded { bound, formula: FORMULA, source: SOURCE },
-            Err(reason) => Outcome::Unbounded { reason },
+            },
+            Some(w) => match finite(w + e_i, "the bound") {
+                Ok(bound) => Outcome::Bounded { bound, formula: FORMULA, source: SOURCE },
+                Err(reason) => Outcome::Unbounded { reason },
+            },
         });
     }
     out
+}
+
+/// One message stream: its line time C, minimum interval T and release jitter J.
+#[derive(Clone, Copy, Debug)]
+struct Task {
+    c: u128,
+    t: u128,
+    j: u128,
+}
+
+/// The longest time from a message's release to the start of its own round,
+/// max_q (w(q) − q·T), over the instances q of the level's busy period (the
+/// published method's eqs. for t, Q and w); `None` if the busy period
+/// passes `cap` (load past 100 %). The published response time is this
+/// plus C.
+fn queueing_window(b: u128, me: Task, hp: &[Task], same: &[Task], tau: u128, cap: u128) -> Option<u128> {
+    let mut t = b + me.c;
+    loop {
+        let next =
+            b + hp.iter().chain(same).chain(std::iter::once(&me)).map(|x| (t + x.j).div_ceil(x.t) * x.c).sum::<u128>();
+        if next == t {
+            break;
+        }
+        if next > cap {
+            return None;
+        }
+        t = next;
+    }
+    let instances = (t + me.j).div_ceil(me.t);
+    let mut worst = 0u128;
+    for q in 0..instances {
+        let mut w = b + q * me.c;
+        loop {
+            let next = b + q * me.c + hp.iter().map(|x| (w + x.j + tau).div_ceil(x.t) * x.c).sum::<u128>();
+            if next == w || next > cap {
+                w = next;
+                break;
+            }
+            w = next;
+        }
+        worst = worst.max(w.saturating_sub(q * me.t));
+    }
+    Some(worst)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The three-message example of Davis, Burns, Bril & Lukkien (2007),
+    /// section 3 (values from memory): 125 kbit/s (τ_bit = 8 µs), every frame
+    /// 1 ms long, periods 2.5, 3.5 and 3.5 ms, priorities A > B > C. The
+    /// revised analysis gives response times 2, 3 and 3.5 ms; the original
+    /// 1994 analysis, which looks only at the first instance, gave 3 ms for C.
+    #[test]
+    fn the_published_three_message_example() {
+        const MS: u128 = 1_000_000_000;
+        let tau = 8_000_000;
+        let a = Task { c: MS, t: 2_500_000_000, j: 0 };
+        let b = Task { c: MS, t: 3_500_000_000, j: 0 };
+        let c = Task { c: MS, t: 3_500_000_000, j: 0 };
+        let cap = u128::MAX / 4;
+        // B_i: the longest lower-priority frame; none below C.
+        let r = |blocking, me: Task, hp: &[Task]| queueing_window(blocking, me, hp, &[], tau, cap).unwrap() + me.c;
+        assert_eq!(r(MS, a, &[]), 2 * MS);
+        assert_eq!(r(MS, b, &[a]), 3 * MS);
+        assert_eq!(r(0, c, &[a, b]), 3 * MS + MS / 2);
+        // The first instance alone gives the original analysis' 3 ms: the
+        // second instance, released at 3.5 ms, is the worst.
+        let first_only = 2 * MS + MS;
+        assert!(r(0, c, &[a, b]) > first_only);
+    }
 }

@@ -14,12 +14,18 @@
 //! most min(max_per_poll, A_j(C)) frames per poll, A_j(t) its most arrivals
 //! in a window of t, so the cycle is the least fixed point of
 //! C = Σ_j X_j(min(max_per_poll, A_j(C))), iterated from the zero-load
-//! cycle. A message of slave s arriving just after s's reaction to a poll
-//! waits one cycle, then goes out last among at most A_s(C) frames:
+//! cycle. A slave takes what is queued when its receiver shows the poll's
+//! end (its reaction). A message of slave s arriving x after a reaction
+//! waits for the next, last among the a ≤ A_s(x) messages that came since;
+//! the n messages s sent at that reaction came in the cycle before, so
+//! n + a ≤ A_s(C + x) ([`super::served_latency`]):
 //!
 //! ```text
-//! bound = C + T_s + λ + e_s + F_s(A_s(C)) + d(s,dest) + r_dest − ρ_dest
+//! bound = max_{x,a} C − X_s(n̂) + X_s(n) − x + T_s + λ + e_s + F_s(a) + d(s,dest) + r_dest − ρ_dest
 //! ```
+//!
+//! (n̂ = min(max_per_poll, A_s(C)), n = min(n̂, A_s(C + x) − a); x = 0 and
+//! the steps of A_s are the only candidates.)
 //!
 //! The analysis needs replies that always begin before `reply_timeout`, no
 //! slave polled twice in a row, and A_s(C) ≤ max_per_poll (no backlog
@@ -31,7 +37,7 @@ use super::{finite, latency_max, least_fixed_point, unbounded_source, worst, Arr
 use crate::line::LineModel;
 use crate::spec::{NodeId, PollingSpec, Spec};
 
-const FORMULA: &str = "C + T_s + λ + e_s + F_s(A_s(C)) + d(s,dest) + r_dest, C = Σ_j X_j(min(max_per_poll, A_j(C)))";
+const FORMULA: &str = "max over x, a of C − X_s(n̂) + X_s(n) − x + T_s + λ + e_s + F_s(a) + d(s,dest) + r_dest, a ≤ A_s(x), n = min(n̂, A_s(C + x) − a), C = Σ_j X_j(min(max_per_poll, A_j(C)))";
 const SOURCE: &str = "worst-case poll cycle from the documented timing model (common practice)";
 
 pub(crate) fn bounds(spec: &Spec, line: &LineModel, p: &PollingSpec, flows: &[Flow]) -> Vec<Outcome> {
@@ -133,8 +139,14 @@ fn analyse(spec: &Spec, line: &LineModel, p: &PollingSpec, flows: &[Flow]) -> Re
         let ws = worst(spec, s);
         let dest = f.traffic.to.unwrap_or(m);
         let wd = worst(spec, dest);
-        let tail = u128::from(p.turnaround[s].0) + lat + ws.lead + burst(s, a) + d(s, dest) + wd.receiver;
-        let bound = c + tail - wd.react.min(tail);
+        let deliver = |a: u128| {
+            let tail = u128::from(p.turnaround[s].0) + lat + ws.lead + burst(s, a) + d(s, dest) + wd.receiver;
+            tail - wd.react.min(tail)
+        };
+        let n_max = frames_at(s, c)?;
+        let rest = c - exchange(s, n_max);
+        let bound = super::served_latency(&arrivals, s, c, n_max, rest, |n| exchange(s, n), deliver)
+            .expect("bounded: checked above");
         out.push(match finite(bound, "the bound") {
             Ok(bound) => Outcome::Bounded { bound, formula: FORMULA, source: SOURCE },
             Err(reason) => Outcome::Unbounded { reason },

@@ -2,15 +2,19 @@
 //! node's slots, then goes out among the frames that fit.
 //!
 //! With exact clocks every node's slots recur with the timekeeper's cycle.
-//! A message arriving just after its node's slot began (the slot takes what
-//! is queued at its start) waits G, the longest gap from one of the node's
-//! slot starts to its next, and goes out last among at most A_i(G) frames,
-//! A_i(t) the node's most arrivals in a window of t, provided every slot of
-//! the node holds that many of its longest frames (so no backlog builds):
+//! A slot takes what is queued at its start. A message arriving x after one
+//! of its node's slot starts waits for the next, at most G − x (G the
+//! longest gap from one of the node's slot starts to its next), and goes
+//! out last among the a ≤ A_i(x) messages that came since, A_i(t) the
+//! node's most arrivals in a window of t, provided every slot of the node
+//! holds A_i(G) of its longest frames (so no backlog builds):
 //!
 //! ```text
-//! bound = G + e_i + A·F_i + (A − 1)·ifg + d(i,dest) + r_dest − ρ_dest
+//! bound = max_{x,a} G − x + s + e_i + a·F_i + (a − 1)·ifg + d(i,dest) + r_dest − ρ_dest
 //! ```
+//!
+//! (s: how much later than the slot's start the node may enable, when its
+//! own previous slot ends less than disable + ifg − guard before.)
 //!
 //! (Method: the slot schedule of the documented timing model, common
 //! practice; clock drift is outside this analysis.)
@@ -20,7 +24,7 @@ use crate::line::LineModel;
 use crate::spec::{Drift, Spec, TdmaSpec};
 
 const FORMULA: &str =
-    "G + e_i + A·F_i + (A − 1)·ifg + d(i,dest) + r_dest, G the longest gap between the node's slot starts";
+    "max over x, a ≤ A_i(x) of G − x + e_i + a·F_i + (a − 1)·ifg + d(i,dest) + r_dest, G the longest gap between the node's slot starts";
 const SOURCE: &str = "the TDMA slot schedule of the documented timing model (common practice)";
 
 pub(crate) fn bounds(spec: &Spec, line: &LineModel, t: &TdmaSpec, flows: &[Flow]) -> Vec<Outcome> {
@@ -66,9 +70,19 @@ pub(crate) fn bounds(spec: &Spec, line: &LineModel, t: &TdmaSpec, flows: &[Flow]
                 .unwrap_or(cycle);
             let wi = worst(spec, i);
             // A node's driver may not enable again before its previous output
-            // is off plus the gap: after its own previous slot, that can come
-            // later than the next slot's start.
-            let shift = (wi.disable + ifg).saturating_sub(u128::from(t.guard.0));
+            // is off plus the gap. Its output ends by the end of its previous
+            // slot, so that can come later than a slot's start only when the
+            // node's previous slot ends less than disable + gap − guard before.
+            let free_before = (0..mine.len())
+                .map(|n| {
+                    let prev = if n == 0 { mine.len() - 1 } else { n - 1 };
+                    let prev_end = offsets[mine[prev]] + u128::from(t.slots[mine[prev]].length.0);
+                    let start = if n == 0 { offsets[mine[0]] + cycle } else { offsets[mine[n]] };
+                    start.saturating_sub(prev_end)
+                })
+                .min()
+                .unwrap_or(0);
+            let shift = (wi.disable + ifg).saturating_sub(u128::from(t.guard.0) + free_before);
             let longest = u128::from(frame.data_time(spec.nodes[i].longest_payload_bits()).0);
             // Frames of the node's longest size that fit in its smallest slot.
             let room = mine
@@ -92,8 +106,14 @@ pub(crate) fn bounds(spec: &Spec, line: &LineModel, t: &TdmaSpec, flows: &[Flow]
             }
             let dest = f.traffic.to.unwrap_or(if i == tk { crate::scheme::first_other_node(i) } else { tk });
             let wd = worst(spec, dest);
-            let tail = shift + wi.lead + a * longest + (a - 1) * ifg + u128::from(line.delay_ps(i, dest)) + wd.receiver;
-            match finite(gap + tail - wd.react.min(tail), "the bound") {
+            let deliver = |a: u128| {
+                let tail =
+                    shift + wi.lead + a * longest + (a - 1) * ifg + u128::from(line.delay_ps(i, dest)) + wd.receiver;
+                tail - wd.react.min(tail)
+            };
+            // The slots are fixed: the node's own use of one does not move the next.
+            let bound = super::served_latency(&arrivals, i, gap, a, gap, |_| 0, deliver).expect("bounded: checked above");
+            match finite(bound, "the bound") {
                 Ok(bound) => Outcome::Bounded { bound, formula: FORMULA, source: SOURCE },
                 Err(reason) => Outcome::Unbounded { reason },
             }

@@ -10,14 +10,18 @@
 //! ```
 //!
 //! (P the token frame; k ≤ max_per_token and within token_hold). The
-//! rotation is the least fixed point of R = Σ_j H_j(min(limit_j, A_j(R))). A
-//! message arriving just after its node took the token (the node sends what
-//! was queued then) waits one rotation and goes out last among at most
-//! A_s(R) frames, provided A_s(R) ≤ limit_s (no backlog builds):
+//! rotation is the least fixed point of R = Σ_j H_j(min(limit_j, A_j(R))).
+//! The holder sends what was queued when it took the token. A message
+//! arriving x after its node took the token waits for the next take, last
+//! among the a ≤ A_s(x) messages that came since, provided A_s(R) ≤ limit_s
+//! (no backlog builds); the n the node sent at that take came in the
+//! rotation before, so n + a ≤ A_s(R + x) ([`super::served_latency`]):
 //!
 //! ```text
-//! bound = R + T_s + λ + e_s + A·F_s + (A − 1)·ifg + d(s,dest) + r_dest − ρ_dest
+//! bound = max_{x,a} R − H_s(n̂) + H_s(n) − x + T_s + λ + e_s + a·F_s + (a − 1)·ifg + d(s,dest) + r_dest − ρ_dest
 //! ```
+//!
+//! (n̂ = min(limit_s, A_s(R)), n = min(n̂, A_s(R + x) − a).)
 //!
 //! (Method: the worst-case token rotation of the documented timing model,
 //! common practice.)
@@ -26,7 +30,7 @@ use super::{finite, latency_max, least_fixed_point, unbounded_source, worst, Arr
 use crate::line::LineModel;
 use crate::spec::{NodeId, Spec, TokenSpec};
 
-const FORMULA: &str = "R + T_s + λ + e_s + A·F_s + (A − 1)·ifg + d(s,dest) + r_dest, R = Σ_j H_j(min(limit_j, A_j(R)))";
+const FORMULA: &str = "max over x, a of R − H_s(n̂) + H_s(n) − x + T_s + λ + e_s + a·F_s + (a − 1)·ifg + d(s,dest) + r_dest, a ≤ A_s(x), n = min(n̂, A_s(R + x) − a), R = Σ_j H_j(min(limit_j, A_j(R)))";
 const SOURCE: &str = "worst-case token rotation from the documented timing model (common practice)";
 
 pub(crate) fn bounds(spec: &Spec, line: &LineModel, t: &TokenSpec, flows: &[Flow]) -> Vec<Outcome> {
@@ -127,9 +131,25 @@ fn analyse(spec: &Spec, line: &LineModel, t: &TokenSpec, flows: &[Flow]) -> Resu
         }
         let (ws, dest) = (worst(spec, s), f.traffic.to.unwrap_or(crate::scheme::first_other_node(s)));
         let wd = worst(spec, dest);
-        let tail =
-            u128::from(t.turnaround[s].0) + lat + ws.lead + a * longest(s) + (a - 1) * ifg + d(s, dest) + wd.receiver;
-        out.push(match finite(r + tail - wd.react.min(tail), "the bound") {
+        let deliver = |a: u128| {
+            let tail = u128::from(t.turnaround[s].0)
+                + lat
+                + ws.lead
+                + a * longest(s)
+                + (a - 1) * ifg
+                + d(s, dest)
+                + wd.receiver;
+            tail - wd.react.min(tail)
+        };
+        let Some(k) = t.order.iter().position(|&j| j == s) else {
+            out.push(Outcome::Unbounded { reason: format!("\"{}\" is not in the ring", spec.nodes[s].name) });
+            continue;
+        };
+        let n_max = frames_at(s, r)?;
+        let rest = r - turn(k, n_max);
+        let bound = super::served_latency(&arrivals, s, r, n_max, rest, |n| turn(k, n), deliver)
+            .expect("bounded: checked above");
+        out.push(match finite(bound, "the bound") {
             Ok(bound) => Outcome::Bounded { bound, formula: FORMULA, source: SOURCE },
             Err(reason) => Outcome::Unbounded { reason },
         });

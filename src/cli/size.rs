@@ -8,6 +8,11 @@ use clap::{Args, ValueEnum};
 use halfwire::check::{self, Outcome};
 use halfwire::scenario::edit::Literal;
 use halfwire::spec::Spec;
+use halfwire::sweep::axis::{Axis, AxisValue};
+use halfwire::sweep::row::Row;
+use halfwire::sweep::runner::Observer;
+use halfwire::sweep::{Mode, Plan, RunId};
+use std::sync::Arc;
 
 use super::output::print_stdout;
 use super::overrides::ScenarioOverrides;
@@ -111,6 +116,29 @@ impl Range {
     }
 }
 
+/// Keeps the rows of one value's replications.
+struct Collect {
+    rows: Vec<Row>,
+    bar: Option<indicatif::ProgressBar>,
+    what: String,
+}
+
+impl Observer for Collect {
+    fn started(&mut self, run: RunId) {
+        if let Some(b) = &self.bar {
+            b.set_message(format!("{} #{}", self.what, run.replication));
+        }
+    }
+
+    fn finished(&mut self, row: Row) -> Result<(), String> {
+        if let Some(b) = &self.bar {
+            b.inc(1);
+        }
+        self.rows.push(row);
+        Ok(())
+    }
+}
+
 #[derive(Debug, serde::Serialize)]
 struct Point {
     value: String,
@@ -148,13 +176,26 @@ pub fn size(args: SizeArgs) -> Result<u8, Failure> {
     let text = halfwire::scenario::read_text(&args.file)?;
     let file = args.file.display().to_string();
     let jobs = args.jobs.unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |n| n.get())).max(1);
+    let reps = args.replications.unwrap_or(1);
+    // The sweep's worker pool: the same --jobs, progress bar and Ctrl-C.
+    let pool = super::sweep::Pool::new(jobs)?;
+    // Bisection needs at most ⌈log2(span/step)⌉ points after the two bracket ends.
+    let most = 2 + ((range.hi - range.lo) / step).log2().ceil().max(0.0) as u64;
+    let bar = super::sweep::progress_bar(most * reps);
     let mut resolved: Option<Vec<check::Resolved>> = None;
     let mut points: Vec<Point> = Vec::new();
     let mut eval = |x: f64| -> Result<bool, Failure> {
-        eprintln!("halfwire size: trying {} = {}", args.key, range.show(x));
-        let mut o = args.overrides.get();
-        o.set.push((args.key.clone(), range.literal(x)));
-        let spec: Spec = halfwire::scenario::parse_with(&text, &file, &o)?;
+        if bar.is_none() {
+            eprintln!("halfwire size: trying {} = {}", args.key, range.show(x));
+        }
+        let axis =
+            Axis { key: args.key.clone(), values: vec![AxisValue { value: range.literal(x), si: None, unit: None }] };
+        let plan = Plan::new(&file, &text, vec![axis], Mode::Grid, reps, args.overrides.get()).map_err(|e| {
+            let mut f = super::sweep::plan_failure(e);
+            f.message = f.message.replacen("--vary ", "--key ", 1);
+            f
+        })?;
+        let spec: Spec = plan.spec(0).map_err(super::sweep::plan_failure)?;
         if spec.expect.is_empty() {
             return Err(Failure::input(format!("{file}: no [[expect]] entries: size needs requirements to meet")));
         }
@@ -166,21 +207,29 @@ pub fn size(args: SizeArgs) -> Result<u8, Failure> {
             resolved = Some(check::resolve(&file, &spec.expect, &metrics)?);
         }
         let rs = resolved.as_ref().expect("resolved above");
-        let outcomes: Vec<Outcome> = match args.replications {
-            None | Some(1) => {
-                let metrics = check::flatten(&serde_json::to_value(halfwire::simulate(&spec)).expect("serializable"));
-                rs.iter().map(|r| check::evaluate(r, &metrics, None)).collect()
-            }
-            Some(n) => {
-                let flat: Vec<_> = halfwire::replicate(&spec, n, jobs)
-                    .iter()
-                    .map(|r| check::flatten(&serde_json::to_value(r).expect("serializable")))
-                    .collect();
-                let summary = halfwire::stats::replication::summarize(&flat);
-                let means = summary.iter().map(|(k, m)| (k.clone(), m.mean)).collect();
-                let intervals = summary.iter().map(|(k, m)| (k.clone(), (m.ci95_low, m.ci95_high))).collect();
-                rs.iter().map(|r| check::evaluate(r, &means, Some(&intervals))).collect()
-            }
+        let mut collect =
+            Collect { rows: Vec::new(), bar: bar.clone(), what: format!("{} = {}", args.key, range.show(x)) };
+        pool.run(Arc::new(plan), (0..reps).map(|r| RunId { point: 0, replication: r }), &mut collect)?;
+        if pool.control.stopped() {
+            return Err(Failure {
+                code: super::status::INTERRUPTED,
+                message: format!(
+                    "size: interrupted at {} = {}, after {} values; no answer",
+                    args.key,
+                    range.show(x),
+                    points.len()
+                ),
+            });
+        }
+        collect.rows.sort_by_key(|r| r.replications[0]);
+        let flat: Vec<_> = collect.rows.iter().map(|r| check::flatten(&r.report)).collect();
+        let outcomes: Vec<Outcome> = if reps == 1 {
+            rs.iter().map(|r| check::evaluate(r, &flat[0], None)).collect()
+        } else {
+            let summary = halfwire::stats::replication::summarize(&flat);
+            let means = summary.iter().map(|(k, m)| (k.clone(), m.mean)).collect();
+            let intervals = summary.iter().map(|(k, m)| (k.clone(), (m.ci95_low, m.ci95_high))).collect();
+            rs.iter().map(|r| check::evaluate(r, &means, Some(&intervals))).collect()
         };
         let pass = outcomes.iter().all(|o| o.pass);
         points.push(Point { value: range.show(x), x, pass, outcomes });
@@ -214,6 +263,9 @@ pub fn size(args: SizeArgs) -> Result<u8, Failure> {
             Some(g)
         }
     };
+    if let Some(b) = &bar {
+        b.finish_and_clear();
+    }
     // Monotone over the points tried? A passing value beyond a failing one says no.
     let beyond = |a: f64, b: f64| if args.find == Find::Max { a > b } else { a < b };
     let monotone = !points.iter().any(|p| p.pass && points.iter().any(|q| !q.pass && beyond(p.x, q.x)));

@@ -85,7 +85,7 @@ impl PlotArgs {
     }
 }
 
-fn plan_failure(e: PlanError) -> Failure {
+pub(super) fn plan_failure(e: PlanError) -> Failure {
     Failure::input(e.to_string())
 }
 
@@ -220,39 +220,16 @@ pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
     // A plot of a sweep printed to stdout needs the rows kept; with a file they are read back.
     let keep = args.plot.plot.is_some() && out_path.is_none();
     let mut observer = Writer { sink, csv, bar: progress_bar(total), plan: plan.clone(), kept: keep.then(Vec::new) };
-    let control = Arc::new(Control::default());
+    let pool = Pool::new(jobs)?;
     let started = Instant::now();
-    let runtime = tokio::runtime::Builder::new_current_thread()
-        .enable_all()
-        .max_blocking_threads(jobs)
-        .build()
-        .map_err(|e| Failure::internal(format!("cannot start the worker pool: {e}")))?;
-    let outcome = runtime.block_on(async {
-        let c = control.clone();
-        let signals = tokio::spawn(async move {
-            if tokio::signal::ctrl_c().await.is_ok() {
-                eprintln!("\ninterrupted: no new runs; waiting for the running ones (Ctrl-C again abandons them)");
-                c.stop();
-                if tokio::signal::ctrl_c().await.is_ok() {
-                    eprintln!("abandoning the running runs; the rows written so far are complete");
-                    c.abandon();
-                }
-            }
-        });
-        let runs = share().filter(|r| !done.contains(r));
-        let outcome = runner::execute(plan.clone(), runs, jobs, control.clone(), &mut observer).await;
-        signals.abort();
-        outcome
-    });
+    let runs = share().filter(|r| !done.contains(r));
+    let outcome = pool.run(plan.clone(), runs, &mut observer);
     if let Some(b) = &observer.bar {
         b.finish_and_clear();
     }
-    // A worker that failed is a bug; a point that stalls or a row that cannot be written is the input's.
-    let outcome =
-        outcome
-            .map_err(|e| if e.starts_with(runner::WORKER_FAILED) { Failure::internal(e) } else { Failure::input(e) })?;
+    let outcome = outcome?;
     let wall = started.elapsed().as_secs_f64();
-    if control.stopped() {
+    if pool.control.stopped() {
         eprintln!(
             "halfwire sweep: stopped after {} runs ({} abandoned, {} not started); continue with --resume",
             outcome.finished, outcome.abandoned, outcome.not_started
@@ -271,7 +248,53 @@ pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
     Ok(0)
 }
 
-fn progress_bar(total: u64) -> Option<indicatif::ProgressBar> {
+/// The sweep's worker pool, shared with `size`: at most `jobs` runs at a
+/// time; the first Ctrl-C launches no new runs and waits for the running
+/// ones, a second abandons them.
+pub(super) struct Pool {
+    runtime: tokio::runtime::Runtime,
+    jobs: usize,
+    pub control: Arc<Control>,
+}
+
+impl Pool {
+    pub fn new(jobs: usize) -> Result<Pool, Failure> {
+        let runtime = tokio::runtime::Builder::new_current_thread()
+            .enable_all()
+            .max_blocking_threads(jobs.max(1))
+            .build()
+            .map_err(|e| Failure::internal(format!("cannot start the worker pool: {e}")))?;
+        let control = Arc::new(Control::default());
+        let c = control.clone();
+        runtime.spawn(async move {
+            if tokio::signal::ctrl_c().await.is_ok() {
+                eprintln!("\ninterrupted: no new runs; waiting for the running ones (Ctrl-C again abandons them)");
+                c.stop();
+                if tokio::signal::ctrl_c().await.is_ok() {
+                    eprintln!("abandoning the running runs; the results so far are complete");
+                    c.abandon();
+                }
+            }
+        });
+        // Let the handler start listening before any run does.
+        runtime.block_on(tokio::task::yield_now());
+        Ok(Pool { runtime, jobs: jobs.max(1), control })
+    }
+
+    /// Run `runs` of `plan`, handing each finished row to `observer`.
+    pub fn run(
+        &self,
+        plan: Arc<Plan>,
+        runs: impl IntoIterator<Item = RunId>,
+        observer: &mut dyn Observer,
+    ) -> Result<runner::Outcome, Failure> {
+        let outcome = self.runtime.block_on(runner::execute(plan, runs, self.jobs, self.control.clone(), observer));
+        // A worker that failed is a bug; a point that stalls or a row that cannot be written is the input's.
+        outcome.map_err(|e| if e.starts_with(runner::WORKER_FAILED) { Failure::internal(e) } else { Failure::input(e) })
+    }
+}
+
+pub(super) fn progress_bar(total: u64) -> Option<indicatif::ProgressBar> {
     if !std::io::stderr().is_terminal() {
         return None;
     }

@@ -3,8 +3,8 @@
 //! The master polls the slaves in `order`, one poll per slave per cycle. A
 //! slave whose receiver output shows the end of an intact poll waits its
 //! turnaround plus a response latency, then asserts its enable and sends what
-//! was queued at that instant (up to `max_per_poll` data frames, back to
-//! back), or an empty reply. The master, once its receiver shows the end of
+//! was queued when its receiver showed the poll's end (up to `max_per_poll`
+//! data frames, back to back), or an empty reply. The master, once its receiver shows the end of
 //! the reply, waits its own turnaround plus a response latency and polls the
 //! next slave. If no reply has begun at the master's receiver by
 //! `reply_timeout` after the end of its poll, the master polls the next slave

@@ -102,6 +102,196 @@ fn no_arbitration_latency_exceeds_its_bound_on_200_random_flow_sets() {
     assert_bounds_hold("arbitration", &sets, 400);
 }
 
+/// The three-message example of Davis, Burns, Bril & Lukkien (2007),
+/// section 3 (values from memory), on this bus: 125 kbit/s (τ_bit = 8 µs),
+/// transceivers and wire with no delay, and every round 125 bit times = 1 ms
+/// (12 bits of start edge and identifier, a 110-bit frame, 3 idle bits).
+/// Periods 2.5, 3.5 and 3.5 ms, priorities A > B > C; published response
+/// times 2, 3 and 3.5 ms (the 1994 analysis gave 3 ms for C).
+const THREE_MESSAGES: &str = r#"
+name = "three messages"
+seed = 1
+duration = "70 ms"
+[line]
+length = "1 m"
+impedance = "120 ohm"
+velocity_factor = 0.66
+[transceiver]
+drive_current = "11.3 mA"
+enable_time = "0 ns"
+disable_time = "0 ns"
+receiver_delay = "0 ns"
+load = "30 pF"
+receiver = "type2"
+[frame]
+bit_rate = "125 kbit/s"
+overhead_bits = 46
+[access]
+scheme = "arbitration"
+id_bits = 11
+idle_bits = 3
+sample_point = 0.8
+[[node]]
+name = "a"
+position = "0 m"
+traffic = { pattern = "periodic", period = "2.5 ms", payload = "8 B", id = 1 }
+[[node]]
+name = "b"
+position = "0 m"
+traffic = { pattern = "periodic", period = "3.5 ms", payload = "8 B", id = 2 }
+[[node]]
+name = "c"
+position = "0 m"
+traffic = { pattern = "periodic", period = "3.5 ms", payload = "8 B", id = 3 }
+"#;
+
+#[test]
+fn arbitration_gives_the_published_response_times_and_c_reaches_its_bound_exactly() {
+    let ps = |s: f64| (s * 1e12).round() as u64;
+    let got = compare(THREE_MESSAGES);
+    let bound = |i: usize| ps(got[i].2.expect("bounded"));
+    // This bus delivers at the frame's end, 3 idle bits (24 µs) before the
+    // end of the published C, so A and B are the published 2 and 3 ms less
+    // 24 µs. C is the lowest priority: nothing lower blocks it, but the bus
+    // must show 3 idle bits before its first round, which costs those 24 µs
+    // back, so C's bound is the published 3.5 ms itself.
+    assert_eq!(bound(0), 2_000_000_000 - 24_000_000);
+    assert_eq!(bound(1), 3_000_000_000 - 24_000_000);
+    assert_eq!(bound(2), 3_500_000_000);
+    // The simulation meets C's bound to the picosecond: its second instance,
+    // released at 3.5 ms with B, waits behind B and then A's third instance
+    // (released at 5 ms, as B's round ends), the case the 1994 analysis missed.
+    assert_eq!(ps(got[2].1), bound(2), "{got:?}");
+    for (name, max, b) in &got {
+        assert!(ps(*max) <= ps(b.unwrap()), "{name}: {max} s above its bound");
+    }
+}
+
+/// Three fixed-timing buses (every time a single value, so the worst case
+/// is the case): the node under test, "x", sends one 24-byte message every
+/// 3 ms; the two others always have a message waiting, so every cycle is
+/// its longest. The bound is the supremum over messages arriving just after
+/// x's service instant (its receiver showing the poll's or the token's end,
+/// or its slot's start), with x's previous service empty.
+const FIXED_BUSES: [(&str, &str); 3] = [
+    (
+        "polling",
+        r#"
+[access]
+scheme = "polling"
+master = "m"
+max_per_poll = 1
+request_bits = 24
+empty_reply_bits = 16
+turnaround = "10 us"
+response_latency = "3 us"
+reply_timeout = "200 us"
+[[node]]
+name = "m"
+position = "0 m"
+"#,
+    ),
+    (
+        "token",
+        r#"
+[access]
+scheme = "token"
+token_bits = 24
+max_per_token = 1
+turnaround = "10 us"
+response_latency = "3 us"
+token_timeout = "5 ms"
+"#,
+    ),
+    (
+        "tdma",
+        r#"
+[access]
+scheme = "tdma"
+timekeeper = "m"
+beacon_bits = 32
+slot_length = "300 us"
+guard = "500 ns"
+[[node]]
+name = "m"
+position = "0 m"
+"#,
+    ),
+];
+
+fn fixed_bus(access: &str, x_traffic: &str) -> String {
+    format!(
+        r#"
+name = "fixed timing"
+seed = 1
+duration = "5 ms"
+[line]
+length = "30 m"
+impedance = "120 ohm"
+velocity_factor = 0.66
+[transceiver]
+family = "tia485"
+enable_time = "200 ns"
+disable_time = "150 ns"
+receiver_delay = "60 ns"
+load = "30 pF"
+[frame]
+bit_rate = "1 Mbit/s"
+overhead_bits = 32
+interframe_gap = "5 us"
+{access}
+[[node]]
+name = "a"
+position = "10 m"
+traffic = {{ pattern = "periodic", period = "100 us", payload = "16 B", to = "x" }}
+[[node]]
+name = "b"
+position = "20 m"
+traffic = {{ pattern = "periodic", period = "100 us", payload = "8 B", to = "x" }}
+[[node]]
+name = "x"
+position = "30 m"
+{x_traffic}
+"#
+    )
+}
+
+#[test]
+fn polling_token_and_tdma_bounds_are_reached_to_the_picosecond() {
+    use crate::common::halfwire;
+    let dir = tempfile::tempdir().unwrap();
+    for (scheme, access) in FIXED_BUSES {
+        // x's first service instant, from a run where x always has a message:
+        // its first enable, less its turnaround and response latency (the
+        // poll and the token are taken when they end at x's receiver; a slot
+        // at its start, where x enables). What x sends does not move it.
+        let quiet = dir.path().join(format!("{scheme}-probe.toml"));
+        let busy = "traffic = { pattern = \"periodic\", period = \"100 us\", payload = \"24 B\", to = \"a\" }";
+        std::fs::write(&quiet, fixed_bus(access, busy)).unwrap();
+        let events = dir.path().join(format!("{scheme}.jsonl"));
+        let out =
+            halfwire(&["run", quiet.to_str().unwrap(), "--duration", "1 ms", "--events", events.to_str().unwrap()]);
+        assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+        let enable = std::fs::read_to_string(&events)
+            .unwrap()
+            .lines()
+            .map(|l| serde_json::from_str::<serde_json::Value>(l).unwrap())
+            .find(|e| e["event"] == "driver_enable" && e["node"] == "x")
+            .map(|e| e["t_ps"].as_u64().unwrap())
+            .expect("x enables");
+        let service = if scheme == "tdma" { enable } else { enable - 13_000_000 };
+        // The worst arrival the engine's 1 ps clock allows: 1 ps after it.
+        let traffic = format!(
+            "traffic = {{ pattern = \"periodic\", period = \"3 ms\", phase = \"{} ps\", payload = \"24 B\", to = \"a\" }}",
+            service + 1
+        );
+        let flows = compare(&fixed_bus(access, &traffic));
+        let (_, max, bound) = flows.iter().find(|f| f.0 == "x").expect("x's flow");
+        let (max, bound) = ((max * 1e12).round() as u64, (bound.expect("x is bounded") * 1e12).round() as u64);
+        assert_eq!(max, bound - 1, "{scheme}: simulated {max} ps against the bound {bound} ps");
+    }
+}
+
 fn polling_set(rng: &mut ChaCha8Rng, seed: u64) -> String {
     let slaves = rng.random_range(2..7);
     let mpp = rng.random_range(0..3);
@@ -286,6 +476,13 @@ position = "0 m"
         guard = rng.random_range(200..1000),
         comp = rng.random_bool(0.5),
     );
+    // Half the schedules are explicit, with n0 owning two adjacent slots
+    // (its second slot's start then waits for its own output to end).
+    if rng.random_bool(0.5) {
+        let mut slots = vec![format!("{{ node = \"n0\", length = \"{slot_us} us\" }}"); 2];
+        slots.extend((1..nodes).map(|n| format!("{{ node = \"n{n}\", length = \"{slot_us} us\" }}")));
+        s = s.replace(&format!("slot_length = \"{slot_us} us\""), &format!("slots = [{}]", slots.join(", ")));
+    }
     for n in 0..nodes {
         let period_us = rng.random_range(200..3000);
         let jitter_us = rng.random_range(0..period_us / 2);
@@ -459,4 +656,30 @@ fn size_refuses_bad_questions() {
     ]);
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("no [[expect]]"));
+}
+
+#[test]
+fn ctrl_c_stops_size_like_a_sweep() {
+    use std::io::{BufRead, BufReader};
+    use std::process::{Command, Stdio};
+    // Runs of about a second each, one at a time, so the signal lands mid-run.
+    let mut child = Command::new(crate::common::exe())
+        .args(["size", "scenarios/irrigation-valves.toml", "--set", "nodes.spacing=\"10 m\"", "--duration", "20000 s"])
+        .args(["--key", "nodes.count", "--range", "2..64", "--jobs", "1"])
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    let mut err = BufReader::new(child.stderr.take().unwrap());
+    let mut line = String::new();
+    err.read_line(&mut line).unwrap();
+    assert!(line.contains("trying nodes.count = 2"), "{line}");
+    // SIGINT, as Ctrl-C at a terminal sends: no new runs; the running one finishes.
+    assert!(Command::new("kill").args(["-INT", &child.id().to_string()]).status().unwrap().success());
+    let mut rest = String::new();
+    std::io::Read::read_to_string(&mut err, &mut rest).unwrap();
+    let status = child.wait().unwrap();
+    assert_eq!(status.code(), Some(130), "{rest}");
+    assert!(rest.contains("interrupted: no new runs"), "{rest}");
+    assert!(rest.contains("size: interrupted at nodes.count = 2, after 0 values; no answer"), "{rest}");
 }
