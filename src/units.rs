@@ -319,10 +319,14 @@ fn prefix_lists(p: Prefixes) -> &'static [&'static [Prefix]] {
 /// The multiplier and power of ten give the unit in SI base units.
 const UNITS: &[(Dimension, &str, u64, i32, Prefixes)] = &[
     (Dimension::Time, "s", 1, 0, Prefixes::Si),
+    (Dimension::Time, "sec", 1, 0, Prefixes::Si),
     (Dimension::Length, "m", 1, 0, Prefixes::SiCenti),
     (Dimension::Length, "in", 254, -4, Prefixes::Bare),
+    (Dimension::Length, "ft", 3048, -4, Prefixes::Bare),
     (Dimension::Resistance, "ohm", 1, 0, Prefixes::Si),
     (Dimension::Resistance, "ohms", 1, 0, Prefixes::Si),
+    (Dimension::Resistance, "Ohm", 1, 0, Prefixes::Si),
+    (Dimension::Resistance, "Ohms", 1, 0, Prefixes::Si),
     (Dimension::Resistance, "\u{2126}", 1, 0, Prefixes::Si),
     (Dimension::Resistance, "\u{3a9}", 1, 0, Prefixes::Si),
     (Dimension::Current, "A", 1, 0, Prefixes::Si),
@@ -330,17 +334,22 @@ const UNITS: &[(Dimension, &str, u64, i32, Prefixes)] = &[
     (Dimension::Voltage, "V", 1, 0, Prefixes::Si),
     (Dimension::BitRate, "bit/s", 1, 0, Prefixes::Si),
     (Dimension::BitRate, "bps", 1, 0, Prefixes::Si),
+    (Dimension::BitRate, "b/s", 1, 0, Prefixes::Si),
     (Dimension::Rate, "/s", 1, 0, Prefixes::Si),
     (Dimension::Rate, "Hz", 1, 0, Prefixes::Si),
     (Dimension::DataSize, "bit", 1, 0, Prefixes::Data),
     (Dimension::DataSize, "bits", 1, 0, Prefixes::Data),
     (Dimension::DataSize, "B", 8, 0, Prefixes::Data),
+    (Dimension::DataSize, "byte", 8, 0, Prefixes::Data),
+    (Dimension::DataSize, "bytes", 8, 0, Prefixes::Data),
     (Dimension::DelayPerLength, "s/m", 1, 0, Prefixes::Si),
     (Dimension::ResistancePerLength, "ohm/m", 1, 0, Prefixes::Si),
     (Dimension::ResistancePerLength, "ohms/m", 1, 0, Prefixes::Si),
     (Dimension::ResistancePerLength, "\u{2126}/m", 1, 0, Prefixes::Si),
     (Dimension::ResistancePerLength, "\u{3a9}/m", 1, 0, Prefixes::Si),
     (Dimension::ResistancePerLength, "ohm/km", 1, -3, Prefixes::Si),
+    (Dimension::ResistancePerLength, "Ohm/m", 1, 0, Prefixes::Si),
+    (Dimension::ResistancePerLength, "Ohm/km", 1, -3, Prefixes::Si),
     (Dimension::ResistancePerLength, "\u{2126}/km", 1, -3, Prefixes::Si),
     (Dimension::ResistancePerLength, "\u{3a9}/km", 1, -3, Prefixes::Si),
 ];
@@ -544,22 +553,26 @@ mod tests {
         Time: 2.5 fs=2.5e-15|2.5 ps=2.5e-12|2.5 ns=2.5e-9|2.5 us=2.5e-6|2.5 µs=2.5e-6
         Time: 2.5 μs=2.5e-6|2.5 ms=2.5e-3|2.5 s=2.5|2.5 ks=2.5e3|2.5 Ms=2.5e6|2.5 Ts=2.5e12
         Length: 2.4 m=2.4|25 mm=0.025|2.5 cm=0.025|3 km=3e3|40 um=40e-6|40 µm=40e-6
-        Length: 40 μm=40e-6|7 nm=7e-9|2 in=0.0508|2in=0.0508|1e-3 Mm=1e3
+        Length: 40 μm=40e-6|7 nm=7e-9|2 in=0.0508|2in=0.0508|1e-3 Mm=1e3|10 ft=3.048|1ft=0.3048
         Resistance: 100 ohm=100|100 ohms=100|100 Ω=100|100 Ω=100|12 kohm=12e3
         Resistance: 12 kohms=12e3|12 kΩ=12e3|12 kΩ=12e3|1 MΩ=1e6|50 mohm=0.05|1e+3 ohm=1e3
+        Resistance: 120 Ohm=120|120 Ohms=120|4.7 kOhm=4.7e3
         Current: 11.3 mA=11.3e-3|3.5 mA=3.5e-3|2 A=2|5 µA=5e-6|-1.5e-3 A=-1.5e-3|7 nA=7e-9
         Capacitance: 6 pF=6e-12|10 nF=10e-9|4.7 uF=4.7e-6|100 fF=100e-15|1 F=1
         Voltage: -200 mV=-0.2|1.5 V=1.5|+1.5V=1.5|2 kV=2e3|2.5E-3 V=2.5e-3|.5 V=0.5|5. V=5
         Voltage: 000001.50000 V=1.5|0.1 V=0.1|1 GV=1e9|1 TV=1e12|-0 V=0
         BitRate: 100 Mbit/s=1e8|115.2 kbit/s=115200|10 Mbps=1e7|1 Gbps=1e9|9600 bps=9600
-        BitRate: 9600bit/s=9600|1 Tbit/s=1e12
+        BitRate: 9600bit/s=9600|1 Tbit/s=1e12|10 Mb/s=1e7|115.2 kb/s=115200|9600 b/s=9600
         Rate: 2000/s=2000|2 k/s=2000|1k/s=1000|1M/s=1e6|50 Hz=50|1 kHz=1e3|2.5 MHz=2.5e6
         Rate: 2 /s=2|1 mHz=1e-3|3 G/s=3e9
         DataSize: 64 B=512|1 kB=8000|1 KiB=8192|2 MiB=16777216|1 GiB=8589934592|1 MB=8e6
         DataSize: 1 GB=8e9|1 bit=1|3 bits=3|12 kbit=12000|1 Mbit=1e6|1 Gbits=1e9|1 Kibit=1024
         DataSize: 0.125 B=1|1.5 kbit=1500|0 B=0|11bits=11|1 Gibit=1073741824|2 Mibits=2097152
+        DataSize: 32 bytes=256|1 byte=8|2 kbytes=16000
+        Time: 10 usec=10e-6|3 msec=3e-3|2 sec=2|50 nsec=50e-9
         DelayPerLength: 5 ns/m=5e-9|5.5 ns/m=5.5e-9|4800 ps/m=4.8e-9|0.005 us/m=5e-9
-        ResistancePerLength: 0.084 ohm/m=0.084|84 mohm/m=0.084|84 ohm/km=0.084|0.2 Ω/m=0.2|84 Ω/km=0.084";
+        ResistancePerLength: 0.084 ohm/m=0.084|84 mohm/m=0.084|84 ohm/km=0.084|0.2 Ω/m=0.2|84 Ω/km=0.084
+        ResistancePerLength: 0.084 Ohm/m=0.084|84 Ohm/km=0.084";
 
     /// `Dimension | input | part of the error message`.
     const BAD: &str = r#"
@@ -730,5 +743,14 @@ mod tests {
         assert_eq!(format_seconds(5000.0), "5000 s");
         assert_eq!(format_seconds(1.2e-6), "1.2 µs");
         assert_eq!(format_seconds(0.0), "0 s");
+    }
+}
+
+/// A count with its noun: "1 scenario", "2 scenarios" (nouns with a plain plural "s").
+pub fn count(n: u64, singular: &str) -> String {
+    if n == 1 {
+        format!("1 {singular}")
+    } else {
+        format!("{n} {singular}s")
     }
 }

@@ -135,11 +135,11 @@ pub fn cycle(spec: &Spec, line: &LineModel) -> Option<Cycle> {
         }
         _ => return None,
     };
-    let sat_s = saturated as f64 * 1e-12;
+    let sat_s = saturated as f64 / 1e12;
     let rate = if sat_s > 0.0 { bits as f64 / sat_s } else { 0.0 };
     Some(Cycle {
         kind,
-        zero_load_s: zero as f64 * 1e-12,
+        zero_load_s: zero as f64 / 1e12,
         saturated_s: sat_s,
         payload_bit_s: rate,
         line_fraction: rate / f.bit_rate,

@@ -28,7 +28,7 @@ pub fn warnings(spec: &Spec, line: &LineModel, out: &mut Vec<BudgetWarning>) {
                     format!(
                         "enable_lead {} is {} shorter than the enable time ({}): the output turns valid after the first bit's sample point, so every frame it sends is received wrong",
                         format_seconds(lead.as_secs_f64()),
-                        format_seconds(late as f64 * 1e-12),
+                        format_seconds(late as f64 / 1e12),
                         format_seconds(t.enable_range.max.as_secs_f64())
                     ),
                 );
@@ -41,8 +41,8 @@ pub fn warnings(spec: &Spec, line: &LineModel, out: &mut Vec<BudgetWarning>) {
                 Some(&node.name),
                 format!(
                     "release_after_stop {} releases the enable {} before the last stop bit ends (half a bit is {}): every frame it sends ends in a framing error at every receiver; release at the end of transmission, not when the transmit register empties",
-                    format_seconds(t.release_after_stop as f64 * 1e-12),
-                    format_seconds(t.release_after_stop.unsigned_abs() as f64 * 1e-12),
+                    format_seconds(t.release_after_stop as f64 / 1e12),
+                    format_seconds(t.release_after_stop.unsigned_abs() as f64 / 1e12),
                     format_seconds(half.as_secs_f64())
                 ),
             );

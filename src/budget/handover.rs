@@ -181,7 +181,7 @@ pub fn handovers(spec: &Spec, line: &LineModel, float_limit: Option<Picos>) -> V
     }
     for h in &mut out {
         // Exact in picoseconds, then in seconds.
-        h.slack_s = (i128::from(h.set.0) - h.raw_min) as f64 * 1e-12;
+        h.slack_s = (i128::from(h.set.0) - h.raw_min) as f64 / 1e12;
     }
     out.sort_by_key(|h| std::cmp::Reverse(h.min));
     out

@@ -23,8 +23,8 @@ pub struct CheckArgs {
     /// Also write JUnit XML (one test case per expectation, one suite per scenario).
     #[arg(long, value_name = "FILE")]
     pub junit: Option<PathBuf>,
-    /// Scenarios run at once (default: the number of cores).
-    #[arg(long)]
+    /// Scenarios run at once; 0 or absent: one per core.
+    #[arg(long, value_name = "N")]
     pub jobs: Option<usize>,
     /// Run each scenario N times with independent seeds: expectations compare
     /// the mean, and `confidence = true` ones the 95 % confidence limit.
@@ -51,6 +51,10 @@ fn collect(paths: &[PathBuf]) -> (Vec<PathBuf>, Vec<String>) {
     let mut files = Vec::new();
     let mut bad = Vec::new();
     for p in paths {
+        if halfwire::scenario::is_stdin(p) {
+            files.push(p.clone());
+            continue;
+        }
         match std::fs::metadata(p) {
             Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
                 bad.push(format!("{}: no such file or folder", p.display()))
@@ -103,7 +107,7 @@ fn prepare(path: &Path, overrides: &ScenarioOverrides) -> Result<(Spec, Vec<chec
     probe.warmup = halfwire::units::Picos::ZERO;
     probe.duration = halfwire::units::Picos(1);
     let metrics = check::flatten(&serde_json::to_value(halfwire::simulate(&probe)).expect("serializable"));
-    let resolved = check::resolve(&path.display().to_string(), &spec.expect, &metrics)?;
+    let resolved = check::resolve(&halfwire::scenario::source_name(path), &spec.expect, &metrics)?;
     Ok((spec, resolved))
 }
 
@@ -114,9 +118,18 @@ pub fn check(args: CheckArgs) -> Result<u8, Failure> {
     }
     // Validate everything before running anything, and name every bad file.
     let mut work = Vec::new();
+    let replicated = args.replications.is_some_and(|n| n >= 2);
     for f in &files {
         match prepare(f, &args.overrides) {
-            Ok((spec, resolved)) => work.push((f.clone(), spec, resolved)),
+            Ok((spec, resolved)) => {
+                if !replicated {
+                    if let Some(e) = spec.expect.iter().find(|e| e.confidence) {
+                        bad.push(confidence_without_replications(&halfwire::scenario::source_name(f), e));
+                        continue;
+                    }
+                }
+                work.push((f.clone(), spec, resolved))
+            }
             Err(e) => bad.push(e.message),
         }
     }
@@ -128,7 +141,7 @@ pub fn check(args: CheckArgs) -> Result<u8, Failure> {
             if n == 1 { "path" } else { "paths" }
         )));
     }
-    let jobs = args.jobs.unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |n| n.get())).max(1);
+    let jobs = super::output::jobs(args.jobs);
     if let Some(n) = args.replications {
         if !(2..=10_000).contains(&n) {
             return Err(Failure::input("--replications takes 2 to 10000 (an interval needs at least two)"));
@@ -227,9 +240,9 @@ fn render(results: &[ScenarioResult], total: usize, failed: usize) -> String {
     let _ = writeln!(o);
     let _ = writeln!(
         o,
-        "{} scenarios, {} expectations: {} passed, {} failed",
-        results.len(),
-        total,
+        "{}, {}: {} passed, {} failed",
+        super::output::count(results.len() as u64, "scenario"),
+        super::output::count(total as u64, "expectation"),
         total - failed,
         failed
     );
@@ -287,4 +300,13 @@ fn junit(results: &[ScenarioResult]) -> String {
     let mut s = String::from_utf8(w.into_inner()).expect("XML is UTF-8");
     s.push('\n');
     s
+}
+
+/// `confidence = true` compares a confidence limit, which needs replications.
+pub fn confidence_without_replications(file: &str, e: &halfwire::spec::Expectation) -> String {
+    format!(
+        "{file}:{}:{}: [[expect]] {}: confidence = true compares the 95 % confidence limit, which needs \
+         --replications N (N ≥ 2); without replications there is no interval",
+        e.metric_at.0, e.metric_at.1, e.metric
+    )
 }

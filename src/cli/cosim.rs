@@ -14,6 +14,7 @@ use halfwire::report::{json, text, Report, Warning};
 use halfwire::spec::Spec;
 use tokio::net::TcpListener;
 
+use super::output::say;
 use super::gateway::{self, Client, Outgoing, TcpGateway, Writers};
 use super::output::print_stdout;
 use super::run::Format;
@@ -37,12 +38,12 @@ pub struct CosimArgs {
     /// Accept a non-loopback listen address (clients from other machines).
     #[arg(long)]
     pub allow_remote: bool,
-    /// Wall-clock seconds to wait for every external node to connect and say hello.
-    #[arg(long, value_name = "SECONDS", default_value_t = 30.0)]
-    pub connect_timeout: f64,
-    /// Wall-clock seconds a node may take to answer one batch of events.
-    #[arg(long, value_name = "SECONDS", default_value_t = 10.0)]
-    pub answer_timeout: f64,
+    /// Wall-clock time to wait for every external node to connect and say hello (a time with a unit, e.g. "30 s").
+    #[arg(long, value_name = "TIME", default_value = "30 s")]
+    pub connect_timeout: String,
+    /// Wall-clock time a node may take to answer one batch of events (a time with a unit).
+    #[arg(long, value_name = "TIME", default_value = "10 s")]
+    pub answer_timeout: String,
     /// What a client fault does to the run.
     #[arg(long, value_enum, default_value_t = OnFault::Abort)]
     pub on_client_fault: OnFault,
@@ -53,11 +54,13 @@ pub struct CosimArgs {
     pub overrides: super::overrides::ScenarioOverrides,
 }
 
-fn seconds(what: &str, s: f64) -> Result<Duration, Failure> {
-    if !(s.is_finite() && s > 0.0 && s <= 86_400.0) {
-        return Err(Failure::input(format!("{what} takes 0 to 86400 seconds, not {s}")));
+/// A wall-clock timeout: a time with a unit, more than 0 and at most a day.
+fn seconds(what: &str, text: &str) -> Result<Duration, Failure> {
+    let t = halfwire::units::parse_time(text).map_err(|e| Failure::input(format!("{what}: {e}")))?;
+    if t.0 == 0 || t.as_secs_f64() > 86_400.0 {
+        return Err(Failure::input(format!("{what} takes more than 0 s and at most 1 day (86400 s), not {t}")));
     }
-    Ok(Duration::from_secs_f64(s))
+    Ok(Duration::from_nanos(t.0 / 1000))
 }
 
 pub fn cosim(args: CosimArgs) -> Result<u8, Failure> {
@@ -81,8 +84,8 @@ pub fn cosim(args: CosimArgs) -> Result<u8, Failure> {
         }
         eprintln!("warning: listening on {addr}, reachable from other machines; the protocol has no authentication");
     }
-    let connect = seconds("--connect-timeout", args.connect_timeout)?;
-    let answer = seconds("--answer-timeout", args.answer_timeout)?;
+    let connect = seconds("--connect-timeout", &args.connect_timeout)?;
+    let answer = seconds("--answer-timeout", &args.answer_timeout)?;
     let runtime = tokio::runtime::Builder::new_current_thread()
         .enable_all()
         .build()
@@ -108,7 +111,10 @@ async fn session(
     let listener =
         TcpListener::bind(addr).await.map_err(|e| Failure::input(format!("--listen {addr}: cannot listen: {e}")))?;
     let local = listener.local_addr().map_err(|e| Failure::internal(e.to_string()))?;
-    eprintln!("halfwire cosim: listening on {local}; waiting for {} external node(s)", external.len());
+    say!(
+        "halfwire cosim: listening on {local}; waiting for {}",
+        super::output::count(external.len() as u64, "external node")
+    );
     let interrupt = Arc::new(AtomicBool::new(false));
     let flag = interrupt.clone();
     tokio::spawn(async move {
@@ -152,7 +158,7 @@ async fn session(
         match outcome {
             Ok(n) => {
                 let _ = client.out.send(Outgoing::Line(cosim::line(&cosim::welcome_message(&spec, n))));
-                eprintln!("halfwire cosim: {} connected from {peer}", spec.nodes[n].name);
+                say!("halfwire cosim: {} connected from {peer}", spec.nodes[n].name);
                 clients[n] = Some(client);
             }
             Err(message) => {
@@ -277,8 +283,8 @@ fn finish(
     }
     if faults + early_count > 0 {
         eprintln!(
-            "halfwire cosim: {} client fault(s); the faulty nodes went quiet (--on-client-fault silence)",
-            faults + early_count
+            "halfwire cosim: {}; the faulty nodes went quiet (--on-client-fault silence)",
+            super::output::count((faults + early_count) as u64, "client fault")
         );
     }
     Ok(0)

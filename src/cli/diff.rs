@@ -44,23 +44,31 @@ fn percent(s: &str, what: &str) -> Result<f64, Failure> {
 }
 
 fn load(path: &PathBuf) -> Result<Value, Failure> {
-    let text =
-        std::fs::read_to_string(path).map_err(|e| Failure::input(format!("{}: cannot read: {e}", path.display())))?;
+    let name = halfwire::scenario::source_name(path);
+    let text = if halfwire::scenario::is_stdin(path) {
+        std::io::read_to_string(std::io::stdin().lock())
+    } else {
+        std::fs::read_to_string(path)
+    }
+    .map_err(|e| Failure::input(format!("{name}: cannot read: {e}")))?;
     let v: Value = serde_json::from_str(&text).map_err(|e| {
-        Failure::input(format!("{}:{}:{}: not a JSON report: {e}", path.display(), e.line(), e.column()))
+        Failure::input(format!("{}:{}:{}: not a JSON report: {e}", name, e.line(), e.column()))
     })?;
     match v.get("schema").and_then(Value::as_str) {
         Some(s) if s == halfwire::report::SCHEMA => Ok(v),
         Some(s) => Err(Failure::input(format!(
             "{}: a report of schema \"{s}\"; this halfwire reads \"{}\"",
-            path.display(),
+            name,
             halfwire::report::SCHEMA
         ))),
-        None => Err(Failure::input(format!("{}: not a halfwire report (no \"schema\")", path.display()))),
+        None => Err(Failure::input(format!("{}: not a halfwire report (no \"schema\")", name))),
     }
 }
 
 pub fn diff(args: DiffArgs) -> Result<u8, Failure> {
+    if halfwire::scenario::is_stdin(&args.base) && halfwire::scenario::is_stdin(&args.new) {
+        return Err(Failure::input("only one of the two reports can come from standard input (-)"));
+    }
     let base = load(&args.base)?;
     let new = load(&args.new)?;
     let name = |v: &Value| v["scenario"]["name"].as_str().unwrap_or_default().to_owned();

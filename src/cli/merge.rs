@@ -6,8 +6,9 @@ use std::path::PathBuf;
 use clap::Args;
 use halfwire::sweep::row;
 
+use super::output::say;
 use super::output::{check_writable, print_stdout, AtomicFile};
-use super::rows::{self, Csv};
+use super::rows::{self, Csv, RowFormat};
 use super::Failure;
 
 #[derive(Debug, Args)]
@@ -21,6 +22,9 @@ pub struct MergeArgs {
     /// Also write the merged rows as CSV.
     #[arg(long, value_name = "FILE")]
     pub csv: Option<PathBuf>,
+    /// Output format on stdout (or in --out): full rows as JSON lines, or CSV.
+    #[arg(long, value_enum, default_value_t = RowFormat::Json)]
+    pub format: RowFormat,
     #[command(flatten)]
     pub plot: super::sweep::PlotArgs,
 }
@@ -76,12 +80,30 @@ pub fn merge(args: MergeArgs) -> Result<u8, Failure> {
                 if short > 0 { format!("; {short} points lack some replications") } else { String::new() }
             );
         }
-        eprintln!("halfwire merge: {} points of sweep {} from {} files", merged.len(), r.sweep, args.files.len());
+        say!(
+            "halfwire merge: {} of sweep {} from {}",
+            super::output::count(merged.len() as u64, "point"),
+            r.sweep,
+            super::output::count(args.files.len() as u64, "file")
+        );
     }
     let mut text = String::new();
-    for r in &merged {
-        text.push_str(&serde_json::to_string(r).expect("a row serializes"));
-        text.push('\n');
+    match args.format {
+        RowFormat::Json => {
+            for r in &merged {
+                text.push_str(&serde_json::to_string(r).expect("a row serializes"));
+                text.push('\n');
+            }
+        }
+        RowFormat::Csv => {
+            let t = tempfile::NamedTempFile::new().map_err(|e| Failure::internal(format!("a temporary file: {e}")))?;
+            let mut c = Csv::append(t.path(), true)?;
+            for r in &merged {
+                c.write(r).map_err(Failure::input)?;
+            }
+            drop(c);
+            text = std::fs::read_to_string(t.path()).map_err(|e| Failure::internal(format!("a temporary file: {e}")))?;
+        }
     }
     match &args.out {
         Some(p) => {
@@ -96,7 +118,7 @@ pub fn merge(args: MergeArgs) -> Result<u8, Failure> {
         if p.exists() {
             std::fs::remove_file(p).map_err(|e| Failure::input(format!("{}: {e}", p.display())))?;
         }
-        let mut c = Csv::append(p)?;
+        let mut c = Csv::append(p, true)?;
         for r in &merged {
             c.write(r).map_err(Failure::input)?;
         }

@@ -19,12 +19,29 @@ use std::process::ExitCode;
 
 use clap::{Parser, Subcommand};
 
+/// `--version`: the package version, the commit it was built from and the target.
+const VERSION: &str =
+    concat!(env!("CARGO_PKG_VERSION"), " (commit ", env!("HALFWIRE_COMMIT"), ", ", env!("HALFWIRE_TARGET"), ")");
+
 /// Deterministic discrete-event simulator for shared half-duplex differential buses.
 #[derive(Debug, Parser)]
-#[command(name = "halfwire", version, about, long_about = None)]
-struct Cli {
+#[command(name = "halfwire", version = VERSION, about, long_about = None)]
+pub struct Cli {
     #[command(subcommand)]
     command: Command,
+    /// Print no status lines on stderr (warnings and errors still show).
+    #[arg(long, short, global = true)]
+    quiet: bool,
+    /// Colour in text output: auto (on a terminal, unless NO_COLOR is set), always or never.
+    #[arg(long, value_enum, value_name = "WHEN", default_value_t = ColorWhen::Auto, global = true)]
+    color: ColorWhen,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+enum ColorWhen {
+    Auto,
+    Always,
+    Never,
 }
 
 #[derive(Debug, Subcommand)]
@@ -47,6 +64,14 @@ enum Command {
     Merge(merge::MergeArgs),
     /// Run a scenario whose external nodes are driven by other processes over loopback TCP (lockstep).
     Cosim(cosim::CosimArgs),
+    /// Print a shell completion script (bash, zsh, fish, elvish, powershell) on stdout.
+    Completions {
+        /// The shell to complete for.
+        #[arg(value_enum, value_name = "SHELL")]
+        shell: clap_complete::Shell,
+    },
+    /// Print the manual page (roff) on stdout: `halfwire man > halfwire.1`.
+    Man,
 }
 
 /// A failure the command reports: a message and its exit status.
@@ -125,11 +150,18 @@ pub fn main() -> ExitCode {
 
 fn run() -> ExitCode {
     let cli = Cli::parse();
-    // Colour follows the usual conventions: only on a terminal, never with NO_COLOR.
-    if std::env::var_os("NO_COLOR").is_some_and(|v| !v.is_empty()) {
-        console::set_colors_enabled(false);
-        console::set_colors_enabled_stderr(false);
-    }
+    // Colour follows the usual conventions: only on a terminal, never with
+    // NO_COLOR, unless --color says otherwise.
+    let no_color = std::env::var_os("NO_COLOR").is_some_and(|v| !v.is_empty());
+    let (out, err) = match cli.color {
+        ColorWhen::Always => (true, true),
+        ColorWhen::Never => (false, false),
+        ColorWhen::Auto if no_color => (false, false),
+        ColorWhen::Auto => (console::colors_enabled(), console::colors_enabled_stderr()),
+    };
+    console::set_colors_enabled(out);
+    console::set_colors_enabled_stderr(err);
+    output::set_quiet(cli.quiet);
     init_tracing(console::colors_enabled_stderr());
     let result = match cli.command {
         Command::Run(args) => run::run(args),
@@ -141,6 +173,19 @@ fn run() -> ExitCode {
         Command::Sweep(args) => sweep::sweep(args),
         Command::Merge(args) => merge::merge(args),
         Command::Cosim(args) => cosim::cosim(args),
+        Command::Completions { shell } => {
+            let mut text = Vec::new();
+            clap_complete::generate(shell, &mut <Cli as clap::CommandFactory>::command(), "halfwire", &mut text);
+            output::print_stdout(&String::from_utf8_lossy(&text))
+                .map(|()| 0)
+        }
+        Command::Man => {
+            let mut text = Vec::new();
+            match clap_mangen::Man::new(<Cli as clap::CommandFactory>::command()).render(&mut text) {
+                Ok(()) => output::print_stdout(&String::from_utf8_lossy(&text)).map(|()| 0),
+                Err(e) => Err(Failure::internal(format!("cannot render the manual page: {e}"))),
+            }
+        }
     };
     match result {
         Ok(code) => ExitCode::from(code),

@@ -2,6 +2,7 @@
 
 use std::io::Write;
 use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicBool, Ordering};
 
 use super::Failure;
 
@@ -81,3 +82,34 @@ pub fn print_stdout(text: &str) -> Result<(), Failure> {
         Err(e) => Err(Failure::input(format!("cannot write to stdout: {e}"))),
     }
 }
+
+static QUIET: AtomicBool = AtomicBool::new(false);
+
+/// `--quiet`: status lines off.
+pub fn set_quiet(quiet: bool) {
+    QUIET.store(quiet, Ordering::Relaxed);
+}
+
+pub fn quiet() -> bool {
+    QUIET.load(Ordering::Relaxed)
+}
+
+/// A status line on stderr, unless `--quiet`.
+macro_rules! say {
+    ($($arg:tt)*) => {
+        if !$crate::cli::output::quiet() {
+            eprintln!($($arg)*);
+        }
+    };
+}
+pub(crate) use say;
+
+/// `--jobs N`: N at a time; 0 or absent, one per core.
+pub fn jobs(n: Option<usize>) -> usize {
+    match n {
+        None | Some(0) => std::thread::available_parallelism().map_or(1, |j| j.get()),
+        Some(n) => n,
+    }
+}
+
+pub use halfwire::units::count;

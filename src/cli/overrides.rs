@@ -31,6 +31,6 @@ impl ScenarioOverrides {
     /// Read a scenario file and validate it with these overrides written into it.
     pub fn load(&self, path: &Path) -> Result<Spec, Failure> {
         let text = halfwire::scenario::read_text(path)?;
-        Ok(halfwire::scenario::parse_with(&text, &path.display().to_string(), &self.get())?)
+        Ok(halfwire::scenario::parse_with(&text, &halfwire::scenario::source_name(path), &self.get())?)
     }
 }

@@ -37,8 +37,12 @@ pub struct ReadRows {
 /// Read a rows file. A last line without its newline is a row cut short by
 /// a crash: it is left out (and reported). Any other bad line is an error.
 pub fn read(path: &Path) -> Result<ReadRows, Failure> {
-    let file = File::open(path).map_err(|e| Failure::input(format!("{}: cannot read: {e}", path.display())))?;
-    let mut reader = BufReader::new(file);
+    let mut reader: Box<dyn BufRead> = if halfwire::scenario::is_stdin(path) {
+        Box::new(BufReader::new(std::io::stdin()))
+    } else {
+        let file = File::open(path).map_err(|e| Failure::input(format!("{}: cannot read: {e}", path.display())))?;
+        Box::new(BufReader::new(file))
+    };
     let mut rows = Vec::new();
     let mut line = String::new();
     let mut offset = 0u64;
@@ -115,57 +119,95 @@ impl Sink {
     }
 }
 
-/// The CSV beside the rows: one header, then one line per row.
+/// What `sweep` and `merge` print on stdout.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum RowFormat {
+    /// One JSON object per line: the full rows.
+    Json,
+    /// CSV: the headline columns of `--csv`.
+    Csv,
+}
+
+/// Rows as CSV: one header, then one line per row.
 pub struct Csv {
-    writer: csv::Writer<File>,
-    path: PathBuf,
+    writer: csv::Writer<Box<dyn Write>>,
+    name: String,
     header_done: bool,
+    merged: bool,
 }
 
 impl Csv {
-    pub fn append(path: &Path) -> Result<Csv, Failure> {
+    /// Append to a file (no header if it already holds lines). `merged`:
+    /// rows of `merge`, which count their replications, rather than a
+    /// sweep's rows of one replication each.
+    pub fn append(path: &Path, merged: bool) -> Result<Csv, Failure> {
         let mut f = OpenOptions::new()
             .create(true)
             .append(true)
             .open(path)
             .map_err(|e| Failure::input(format!("{}: cannot open for writing: {e}", path.display())))?;
         let empty = f.seek(SeekFrom::End(0)).map_err(|e| Failure::input(format!("{}: {e}", path.display())))? == 0;
-        Ok(Csv { writer: csv::Writer::from_writer(f), path: path.to_owned(), header_done: !empty })
+        Ok(Csv {
+            writer: csv::Writer::from_writer(Box::new(f)),
+            name: path.display().to_string(),
+            header_done: !empty,
+            merged,
+        })
+    }
+
+    /// To stdout.
+    pub fn stdout(merged: bool) -> Csv {
+        Csv {
+            writer: csv::Writer::from_writer(Box::new(std::io::stdout())),
+            name: "stdout".into(),
+            header_done: false,
+            merged,
+        }
     }
 
     pub fn write(&mut self, row: &Row) -> Result<(), String> {
-        let fail = |e: csv::Error| format!("{}: cannot write: {e}", self.path.display());
+        let fail = |e: csv::Error| format!("{}: cannot write: {e}", self.name);
         if !self.header_done {
-            let mut head = vec!["point".to_owned(), "replications".to_owned()];
+            let mut head = vec!["point".to_owned(), if self.merged { "replications" } else { "replication" }.to_owned()];
             for p in &row.params {
                 head.push(p.key.clone());
-                head.push(format!("{} [{}]", p.key, p.unit.as_deref().unwrap_or("1")));
+                if let Some(u) = &p.unit {
+                    head.push(format!("{} ({u})", p.key));
+                }
             }
             head.extend(CSV_METRICS.iter().map(|m| metric_header(m)));
             head.push("expectations_failed".into());
             self.writer.write_record(&head).map_err(fail)?;
             self.header_done = true;
         }
-        let mut rec =
-            vec![row.point.to_string(), row.replications.iter().map(u64::to_string).collect::<Vec<_>>().join(" ")];
+        let replication = if self.merged {
+            row.replications.len().to_string()
+        } else {
+            row.replications.iter().map(u64::to_string).collect::<Vec<_>>().join(" ")
+        };
+        let mut rec = vec![row.point.to_string(), replication];
         for p in &row.params {
             rec.push(p.value_text());
-            rec.push(p.si.map(|x| x.to_string()).unwrap_or_default());
+            if p.unit.is_some() {
+                rec.push(p.si.map(|x| x.to_string()).unwrap_or_default());
+            }
         }
         for m in CSV_METRICS {
             rec.push(row.metrics.get(m).map(|x| x.to_string()).unwrap_or_default());
         }
         rec.push(row.expectations.failed.join(" "));
         self.writer.write_record(&rec).map_err(fail)?;
-        self.writer.flush().map_err(|e| format!("{}: cannot write: {e}", self.path.display()))
+        match self.writer.flush() {
+            Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => Ok(()),
+            r => r.map_err(|e| format!("{}: cannot write: {e}", self.name)),
+        }
     }
 }
 
-/// `latency_s.all.p99 [s]`: the metric with its unit.
+/// `latency_s.all.p99 (s)`: the metric with its unit, when it has one.
 fn metric_header(m: &str) -> String {
-    let unit = match halfwire::check::dimension_of(m) {
-        Some(d) => halfwire::sweep::axis::base_unit(d),
-        None => "1",
-    };
-    format!("{m} [{unit}]")
+    match halfwire::check::dimension_of(m) {
+        Some(d) => format!("{m} ({})", halfwire::sweep::axis::base_unit(d)),
+        None => m.to_owned(),
+    }
 }

@@ -11,6 +11,7 @@ use halfwire::report::{json, text};
 use halfwire::spec::Spec;
 use halfwire::units::{self, Picos};
 
+use super::output::say;
 use super::output::{check_writable, print_stdout, AtomicFile};
 use super::overrides::ScenarioOverrides;
 use super::waves::Waves;
@@ -38,18 +39,22 @@ pub struct RunArgs {
     #[arg(long, value_name = "FILE")]
     pub vcd: Option<PathBuf>,
     /// Draw a timing diagram of --window as an SVG file.
-    #[arg(long, value_name = "FILE")]
-    pub svg: Option<PathBuf>,
-    /// Plot every node's latency percentiles (p50 to p99.99) as an SVG file.
-    #[arg(long, value_name = "FILE")]
+    #[arg(long, value_name = "FILE.svg", alias = "svg")]
+    pub plot_timing: Option<PathBuf>,
+    /// Draw how often a message is slower than each latency, per node or flow, as an SVG file.
+    #[arg(long, value_name = "FILE.svg")]
     pub plot_latency: Option<PathBuf>,
-    /// Simulated-time window for --events, --vcd and --svg, e.g. "0us..50us" (default: the whole run).
+    /// Simulated-time window for --events, --vcd and --plot-timing, e.g. "0us..50us" (default: the whole run).
     #[arg(long, value_name = "A..B")]
     pub window: Option<String>,
     /// Run N replications with independent seeds derived from the scenario's,
-    /// and add the mean, standard error and 95 % confidence interval of every metric.
-    #[arg(long, value_name = "N", conflicts_with_all = ["events", "vcd", "svg", "plot_latency"])]
+    /// and add the mean, standard error and 95 % confidence interval of every
+    /// metric (N ≥ 2; 1 is a plain run).
+    #[arg(long, value_name = "N", conflicts_with_all = ["events", "vcd", "plot_timing", "plot_latency"])]
     pub replications: Option<u64>,
+    /// Replications run at once; 0 or absent: one per core.
+    #[arg(long, value_name = "N")]
+    pub jobs: Option<usize>,
 }
 
 /// Parse "A..B" with units on both ends.
@@ -74,19 +79,20 @@ pub fn run(args: RunArgs) -> Result<u8, Failure> {
     let spec = args.overrides.load(&args.file)?;
     let external: Vec<&str> = spec.nodes.iter().filter(|n| n.external).map(|n| n.name.as_str()).collect();
     if !external.is_empty() {
-        eprintln!(
-            "note: run simulates the external node(s) {} with the built-in rules; `halfwire cosim` lets a process drive them",
+        say!(
+            "note: run simulates the external {} {} with the built-in rules; `halfwire cosim` lets a process drive them",
+            if external.len() == 1 { "node" } else { "nodes" },
             external.join(", ")
         );
     }
-    if let Some(n) = args.replications {
-        return replicated(&spec, n, args.format);
+    if let Some(n) = args.replications.filter(|&n| n != 1) {
+        return replicated(&spec, n, args.format, super::output::jobs(args.jobs));
     }
-    let wants_waves = args.vcd.is_some() || args.svg.is_some();
+    let wants_waves = args.vcd.is_some() || args.plot_timing.is_some();
     if args.window.is_some() && args.events.is_none() && !wants_waves {
-        return Err(Failure::input("--window needs an output that uses it: give --events, --vcd or --svg FILE"));
+        return Err(Failure::input("--window needs an output that uses it: give --events, --vcd or --plot-timing FILE"));
     }
-    for path in [&args.events, &args.vcd, &args.svg, &args.plot_latency].into_iter().flatten() {
+    for path in [&args.events, &args.vcd, &args.plot_timing, &args.plot_latency].into_iter().flatten() {
         check_writable(path, &[args.file.as_path()])?;
     }
     let window = match &args.window {
@@ -94,9 +100,9 @@ pub fn run(args: RunArgs) -> Result<u8, Failure> {
         None => (Picos::ZERO, spec.duration),
     };
     // Refuse outputs that cannot be drawn or would be huge before simulating anything.
-    if args.svg.is_some() && args.window.is_none() {
+    if args.plot_timing.is_some() && args.window.is_none() {
         return Err(Failure::input(
-            "--svg draws a timing diagram of a few hand-overs: give the part of the run to draw with --window A..B \
+            "--plot-timing draws a timing diagram of a few hand-overs: give the part of the run to draw with --window A..B \
              (e.g. --window 100us..120us)",
         ));
     }
@@ -125,7 +131,7 @@ pub fn run(args: RunArgs) -> Result<u8, Failure> {
         None => None,
     };
     let mut waves = if wants_waves {
-        Some(Waves::new(&spec, (window.0 .0, window.1 .0), args.vcd.as_ref(), args.svg.as_ref())?)
+        Some(Waves::new(&spec, (window.0 .0, window.1 .0), args.vcd.as_ref(), args.plot_timing.as_ref())?)
     } else {
         None
     };
@@ -261,47 +267,61 @@ fn drive(sim: &mut Simulation, spec: &Spec, max_step: Option<Picos>, mut after_s
 }
 
 fn render_events(spec: &Spec, events: &[BusEvent]) -> String {
-    use serde_json::json;
+    use serde_json::{json, Value};
     let name = |i: usize| spec.nodes[i].name.as_str();
     let mut out = String::new();
     for e in events.iter() {
-        let mut v = json!({ "t_ps": e.t, "t_s": e.t as f64 * 1e-12, "node": name(e.node) });
-        let m = v.as_object_mut().expect("object");
+        // Keys in a fixed order, time and kind first, so a line reads left to right.
+        let mut fields: Vec<(&str, Value)> = Vec::with_capacity(8);
         let kind = match e.kind {
             BusEventKind::DriverEnable { .. } => "driver_enable",
             BusEventKind::DriverRelease => "driver_release",
             BusEventKind::DriverOff => "driver_off",
+            BusEventKind::FrameStart { .. } => "frame_start",
+            BusEventKind::FrameEnd { .. } => "frame_end",
+            BusEventKind::Contention { .. } => "contention",
+        };
+        fields.push(("t_ps", json!(e.t)));
+        fields.push(("event", json!(kind)));
+        fields.push(("t_s", json!(Picos(e.t).as_secs_f64())));
+        fields.push(("node", json!(name(e.node))));
+        match e.kind {
             BusEventKind::FrameStart { frame, to, .. } => {
-                m.insert("frame".into(), json!(frame));
-                m.insert("to".into(), json!(name(to)));
-                "frame_start"
+                fields.push(("frame", json!(frame)));
+                fields.push(("to", json!(name(to))));
             }
             BusEventKind::FrameEnd { frame, to, corrupted } => {
-                m.insert("frame".into(), json!(frame));
-                m.insert("to".into(), json!(name(to)));
-                m.insert("corrupted".into(), json!(corrupted));
-                "frame_end"
+                fields.push(("frame", json!(frame)));
+                fields.push(("to", json!(name(to))));
+                fields.push(("corrupted", json!(corrupted)));
             }
             BusEventKind::Contention { other, position_m, overlap_ps } => {
-                m.insert("other".into(), json!(name(other)));
-                m.insert("position_m".into(), json!(position_m));
-                m.insert("overlap_s".into(), json!(overlap_ps as f64 * 1e-12));
-                "contention"
+                fields.push(("other", json!(name(other))));
+                fields.push(("position_m", json!(position_m)));
+                fields.push(("overlap_ps", json!(overlap_ps)));
+                fields.push(("overlap_s", json!(Picos(overlap_ps).as_secs_f64())));
             }
-        };
-        m.insert("event".into(), json!(kind));
-        out.push_str(&serde_json::to_string(&v).expect("serializable"));
-        out.push('\n');
+            _ => {}
+        }
+        out.push('{');
+        for (k, (key, v)) in fields.iter().enumerate() {
+            if k > 0 {
+                out.push(',');
+            }
+            out.push_str(&serde_json::to_string(key).expect("a key serializes"));
+            out.push(':');
+            out.push_str(&serde_json::to_string(v).expect("a value serializes"));
+        }
+        out.push_str("}\n");
     }
     out
 }
 
 /// `--replications N`: the first replication's report plus the interval of every metric.
-fn replicated(spec: &Spec, n: u64, format: Format) -> Result<u8, Failure> {
+fn replicated(spec: &Spec, n: u64, format: Format, jobs: usize) -> Result<u8, Failure> {
     if !(2..=10_000).contains(&n) {
-        return Err(Failure::input("--replications takes 2 to 10000 (an interval needs at least two)"));
+        return Err(Failure::input("--replications takes 1 to 10000 (an interval needs at least two; 1 is a plain run)"));
     }
-    let jobs = std::thread::available_parallelism().map_or(1, |j| j.get());
     let started = Instant::now();
     let reports = halfwire::replicate(spec, n, jobs);
     let wall = started.elapsed().as_secs_f64();

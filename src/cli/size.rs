@@ -14,6 +14,7 @@ use halfwire::sweep::runner::Observer;
 use halfwire::sweep::{Mode, Plan, RunId};
 use std::sync::Arc;
 
+use super::output::say;
 use super::output::print_stdout;
 use super::overrides::ScenarioOverrides;
 use super::run::Format;
@@ -42,7 +43,7 @@ pub struct SizeArgs {
     /// `check --replications N` does (means; `confidence = true` at the unfavourable limit).
     #[arg(long, value_name = "N")]
     pub replications: Option<u64>,
-    /// Replications run at once (default: the number of cores).
+    /// Runs at once; 0 or absent: one per core.
     #[arg(long, value_name = "N")]
     pub jobs: Option<usize>,
     /// Output format on stdout.
@@ -174,8 +175,8 @@ pub fn size(args: SizeArgs) -> Result<u8, Failure> {
         s
     };
     let text = halfwire::scenario::read_text(&args.file)?;
-    let file = args.file.display().to_string();
-    let jobs = args.jobs.unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |n| n.get())).max(1);
+    let file = halfwire::scenario::source_name(&args.file);
+    let jobs = super::output::jobs(args.jobs);
     let reps = args.replications.unwrap_or(1);
     // The sweep's worker pool: the same --jobs, progress bar and Ctrl-C.
     let pool = super::sweep::Pool::new(jobs)?;
@@ -186,7 +187,7 @@ pub fn size(args: SizeArgs) -> Result<u8, Failure> {
     let mut points: Vec<Point> = Vec::new();
     let mut eval = |x: f64| -> Result<bool, Failure> {
         if bar.is_none() {
-            eprintln!("halfwire size: trying {} = {}", args.key, range.show(x));
+            say!("halfwire size: trying {} = {}", args.key, range.show(x));
         }
         let axis =
             Axis { key: args.key.clone(), values: vec![AxisValue { value: range.literal(x), si: None, unit: None }] };
@@ -198,6 +199,11 @@ pub fn size(args: SizeArgs) -> Result<u8, Failure> {
         let spec: Spec = plan.spec(0).map_err(super::sweep::plan_failure)?;
         if spec.expect.is_empty() {
             return Err(Failure::input(format!("{file}: no [[expect]] entries: size needs requirements to meet")));
+        }
+        if reps < 2 {
+            if let Some(e) = spec.expect.iter().find(|e| e.confidence) {
+                return Err(Failure::input(super::check::confidence_without_replications(&file, e)));
+            }
         }
         if resolved.is_none() {
             let mut probe = spec.clone();
@@ -315,7 +321,11 @@ pub fn size(args: SizeArgs) -> Result<u8, Failure> {
                     );
                 }
                 Some(x) => {
-                    let _ = writeln!(o, "  answer: {} = {}  ({} points run)", args.key, range.show(x), points.len());
+                    let _ = writeln!(o, "  answer: {} = {}  ({} run)",
+                        args.key,
+                        range.show(x),
+                        super::output::count(points.len() as u64, "point")
+                    );
                 }
                 None => {
                     let _ = writeln!(o, "  no value in the range meets every requirement (both ends fail)");

@@ -15,9 +15,10 @@ use halfwire::sweep::shard::{self, Shard};
 use halfwire::sweep::{axis, Mode, Plan, PlanError, RunId};
 use halfwire::units;
 
+use super::output::say;
 use super::output::check_writable;
 use super::overrides::ScenarioOverrides;
-use super::rows::{self, Csv, Sink};
+use super::rows::{self, Csv, RowFormat, Sink};
 use super::Failure;
 
 #[derive(Debug, Args)]
@@ -34,12 +35,15 @@ pub struct SweepArgs {
     /// Replications per point, with independent seeds.
     #[arg(long, value_name = "N", default_value_t = 1)]
     pub replications: u64,
-    /// Runs at a time (default: the number of cores).
+    /// Runs at once; 0 or absent: one per core.
     #[arg(long, value_name = "N")]
     pub jobs: Option<usize>,
     /// Append rows (JSON lines) to this file instead of printing them.
     #[arg(long, value_name = "FILE", conflicts_with = "resume")]
     pub out: Option<PathBuf>,
+    /// Output format on stdout: full rows as JSON lines, or CSV (the rows of --out and --resume are always JSON).
+    #[arg(long, value_enum, default_value_t = RowFormat::Json)]
+    pub format: RowFormat,
     /// Continue a sweep whose rows are in FILE: skip the runs already there and append the rest.
     #[arg(long, value_name = "FILE")]
     pub resume: Option<PathBuf>,
@@ -80,7 +84,7 @@ impl PlotArgs {
         let (Some(path), Some(metric)) = (&self.plot, &self.y) else { return Ok(()) };
         let chart = halfwire::plot::sweep::chart(rows, metric, self.series.as_deref()).map_err(Failure::input)?;
         super::waves::write_text(path, &chart.render())?;
-        eprintln!("halfwire: plot of {metric} written to {}", path.display());
+        say!("halfwire: plot of {metric} written to {}", path.display());
         Ok(())
     }
 }
@@ -105,14 +109,10 @@ fn choose_shard(args: &SweepArgs) -> Result<(Shard, Option<String>), Failure> {
 }
 
 pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
-    let file = args.file.display().to_string();
+    let file = halfwire::scenario::source_name(&args.file);
     let text = halfwire::scenario::read_text(&args.file)?;
     let axes = args.vary.iter().map(|v| axis::parse_vary(v)).collect::<Result<Vec<_>, _>>().map_err(Failure::input)?;
-    let jobs = match args.jobs {
-        Some(0) => return Err(Failure::input("--jobs must be at least 1")),
-        Some(j) => j,
-        None => std::thread::available_parallelism().map_or(1, |j| j.get()),
-    };
+    let jobs = super::output::jobs(args.jobs);
     let (shard, shard_note) = choose_shard(&args)?;
     let mode = if args.zip { Mode::Zip } else { Mode::Grid };
     let overrides = args.overrides.get();
@@ -133,6 +133,11 @@ pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
     }
 
     let out_path = args.resume.as_ref().or(args.out.as_ref());
+    if args.format == RowFormat::Csv && out_path.is_some() {
+        return Err(Failure::input(
+            "--format csv is for stdout; the rows of --out and --resume are JSON lines (add --csv FILE for a CSV beside them)",
+        ));
+    }
     for p in out_path.into_iter().chain(args.csv.as_ref()).chain(args.plot.plot.as_ref()) {
         check_writable(p, &[args.file.as_path()])?;
     }
@@ -197,25 +202,25 @@ pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
     };
     let todo = share().filter(|r| !done.contains(r)).count();
     if let Some(note) = &shard_note {
-        eprintln!("halfwire sweep: {note}");
+        say!("halfwire sweep: {note}");
     }
     let skipped = done.len();
-    eprintln!(
-        "halfwire sweep {}: {} points × {} replication(s); {} runs in this share{}; {jobs} at a time",
+    say!(
+        "halfwire sweep {}: {} × {}; {} in this share{}; {jobs} at a time",
         plan.id(),
-        plan.points(),
-        plan.replications(),
-        todo,
+        super::output::count(plan.points(), "point"),
+        super::output::count(plan.replications(), "replication"),
+        super::output::count(todo as u64, "run"),
         if skipped > 0 { format!(" ({skipped} already done)") } else { String::new() }
     );
-    let sink = match out_path {
-        Some(p) => Sink::append(p)?,
-        None => Sink::Stdout,
+    let (sink, mut csv) = match (out_path, args.format) {
+        (Some(p), _) => (Some(Sink::append(p)?), Vec::new()),
+        (None, RowFormat::Json) => (Some(Sink::Stdout), Vec::new()),
+        (None, RowFormat::Csv) => (None, vec![Csv::stdout(false)]),
     };
-    let csv = match &args.csv {
-        Some(p) => Some(Csv::append(p)?),
-        None => None,
-    };
+    if let Some(p) = &args.csv {
+        csv.push(Csv::append(p, false)?);
+    }
     let total = todo as u64;
     // A plot of a sweep printed to stdout needs the rows kept; with a file they are read back.
     let keep = args.plot.plot.is_some() && out_path.is_none();
@@ -231,12 +236,12 @@ pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
     let wall = started.elapsed().as_secs_f64();
     if pool.control.stopped() {
         eprintln!(
-            "halfwire sweep: stopped after {} runs ({} abandoned, {} not started); continue with --resume",
-            outcome.finished, outcome.abandoned, outcome.not_started
+            "halfwire sweep: stopped after {} ({} abandoned, {} not started); continue with --resume",
+            super::output::count(outcome.finished, "run"), outcome.abandoned, outcome.not_started
         );
         return Ok(super::status::INTERRUPTED);
     }
-    eprintln!("halfwire sweep: {} runs in {}", outcome.finished, units::format_seconds(wall));
+    say!("halfwire sweep: {} in {}", super::output::count(outcome.finished, "run"), units::format_seconds(wall));
     if args.plot.plot.is_some() {
         let rows = match (out_path, observer.kept.take()) {
             (Some(p), _) => rows::read(p)?.rows,
@@ -308,8 +313,8 @@ pub(super) fn progress_bar(total: u64) -> Option<indicatif::ProgressBar> {
 }
 
 struct Writer {
-    sink: Sink,
-    csv: Option<Csv>,
+    sink: Option<Sink>,
+    csv: Vec<Csv>,
     bar: Option<indicatif::ProgressBar>,
     plan: Arc<Plan>,
     kept: Option<Vec<Row>>,
@@ -323,8 +328,10 @@ impl Observer for Writer {
     }
 
     fn finished(&mut self, row: Row) -> Result<(), String> {
-        self.sink.write(&row)?;
-        if let Some(c) = &mut self.csv {
+        if let Some(s) = &mut self.sink {
+            s.write(&row)?;
+        }
+        for c in &mut self.csv {
             c.write(&row)?;
         }
         if let Some(b) = &self.bar {

@@ -1,4 +1,4 @@
-//! `run --vcd`, `--svg` and `--plot-latency`: the pictures of one run.
+//! `run --vcd`, `--plot-timing` and `--plot-latency`: the pictures of one run.
 
 use std::fs::File;
 use std::io::BufWriter;
@@ -72,7 +72,7 @@ impl Waves {
         if let (Some(rec), Some(path)) = (recording, self.svg) {
             if rec.overflow {
                 return Err(Failure::input(format!(
-                    "--svg: the window holds more than {MAX_OCCUPANCIES} driver occupancies, too many for a legible \
+                    "--plot-timing: the window holds more than {MAX_OCCUPANCIES} driver occupancies, too many for a legible \
                      timing diagram: narrow it with --window A..B (e.g. a few hand-overs: --window 0us..50us)"
                 )));
             }

@@ -40,7 +40,7 @@ pub struct HandoverPair {
 }
 
 fn s(ps: i64) -> f64 {
-    ps as f64 * 1e-12
+    ps as f64 / 1e12
 }
 
 impl HandoverFigures {

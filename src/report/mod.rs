@@ -231,7 +231,7 @@ impl Report {
         let st = &w.stats;
         let frames = t.frames();
         let mean_wire_s =
-            if st.data_frames_sent > 0 { st.data_wire_ps as f64 / st.data_frames_sent as f64 * 1e-12 } else { 0.0 };
+            if st.data_frames_sent > 0 { st.data_wire_ps as f64 / st.data_frames_sent as f64 / 1e12 } else { 0.0 };
         let measured = t.measured_s();
         let throughput = Throughput {
             payload_bit_s: t.payload_bit_s(),
@@ -251,8 +251,8 @@ impl Report {
         let c = &w.bus.contention;
         let contention = Contention {
             events: t.contention_events,
-            overlap_total_s: t.overlap_total_ps as f64 * 1e-12,
-            overlap_max_s: t.overlap_max_ps as f64 * 1e-12,
+            overlap_total_s: t.overlap_total_ps as f64 / 1e12,
+            overlap_max_s: t.overlap_max_ps as f64 / 1e12,
             first: c
                 .listed
                 .iter()
@@ -272,8 +272,8 @@ impl Report {
             .collect();
         let floating = Floating {
             windows: t.floating_windows,
-            total_s: t.floating_total_ps as f64 * 1e-12,
-            longest_s: t.floating_longest_ps as f64 * 1e-12,
+            total_s: t.floating_total_ps as f64 / 1e12,
+            longest_s: t.floating_longest_ps as f64 / 1e12,
             hazard_receivers: hazard,
         };
         let utilization = t.utilization();

@@ -300,7 +300,7 @@ impl Tallies {
 
     /// On-wire time of delivered data frames / measured time.
     pub fn carried(&self) -> f64 {
-        self.per_s(self.carried_ps as f64 * 1e-12)
+        self.per_s(self.carried_ps as f64 / 1e12)
     }
 
     pub fn frames(&self) -> Frames {
@@ -337,7 +337,7 @@ impl Tallies {
     /// same functions the report uses, so one run's tallies give exactly its
     /// report's figures.
     pub fn metrics(&self) -> Result<BTreeMap<String, f64>, String> {
-        let ps = |x: u128| x as f64 * 1e-12;
+        let ps = |x: u128| x as f64 / 1e12;
         let figures = serde_json::json!({
             "simulated_s": self.measured_s(),
             "throughput": {
@@ -360,7 +360,7 @@ impl Tallies {
             "handover": {
                 "count": self.handovers,
                 "contended": self.handovers_contended,
-                "slack_min_s": self.handover_slack_min_ps.map(|x| x as f64 * 1e-12),
+                "slack_min_s": self.handover_slack_min_ps.map(|x| x as f64 / 1e12),
             },
             "uart": self.uart,
             "recovery": self.outages.map(|o| o.figures()),

@@ -31,10 +31,10 @@ impl Styles {
     }
 }
 
-fn latency_row(out: &mut String, label: &str, l: &LatencySummary) {
+fn latency_row(out: &mut String, width: usize, label: &str, l: &LatencySummary) {
     let _ = writeln!(
         out,
-        "  {:<14} {:>8} {:>11} {:>11} {:>11} {:>11} {:>11} {:>11}",
+        "  {:<width$} {:>8} {:>11} {:>11} {:>11} {:>11} {:>11} {:>11}",
         label,
         l.count,
         format_seconds(l.mean),
@@ -94,6 +94,22 @@ pub fn render_titled(r: &Report, title: &str, color: bool) -> String {
         l.worst_margin_node,
         format_seconds(l.bit_time_s)
     );
+    if l.idle_v != 0.0 {
+        let hazard = r.floating.hazard_receivers.len() as u64;
+        let _ = writeln!(
+            o,
+            "  failsafe bias: idle line at {} (its weakest point); {}",
+            format_si(l.idle_v, "V"),
+            if hazard == 0 {
+                "every receiver reads the idle line as a defined level".to_owned()
+            } else {
+                format!(
+                    "{} the idle level only once the line has settled after a release (floating line, below)",
+                    if hazard == 1 { "1 receiver reaches".to_owned() } else { format!("{hazard} receivers reach") }
+                )
+            }
+        );
+    }
     let _ = writeln!(o);
     let _ = writeln!(o, "{}", st.head.apply_to("Throughput"));
     let t = &r.throughput;
@@ -150,18 +166,28 @@ pub fn render_titled(r: &Report, title: &str, color: bool) -> String {
     );
     let _ = writeln!(o);
     let _ = writeln!(o, "{}", st.head.apply_to("Latency (arrival to delivery)"));
+    let shown = if r.latency_s.nodes.len() <= 40 { r.latency_s.nodes.len() } else { 0 };
+    let width = r.latency_s.nodes.keys().take(shown).map(|n| n.chars().count()).chain([6]).max().unwrap_or(6);
     let _ = writeln!(
         o,
         "{}",
         st.dim.apply_to(format!(
-            "  {:<14} {:>8} {:>11} {:>11} {:>11} {:>11} {:>11} {:>11}",
-            "source", "count", "mean", "p50", "p90", "p99", "p99.9", "max"
+            "  {:<width$} {:>8} {:>11} {:>11} {:>11} {:>11} {:>11} {:>11}",
+            "source",
+            "count",
+            "mean",
+            "p50",
+            "p90",
+            "p99",
+            "p99.9",
+            "max",
+            width = width
         ))
     );
-    latency_row(&mut o, "all", &r.latency_s.all);
+    latency_row(&mut o, width, "all", &r.latency_s.all);
     if r.latency_s.nodes.len() <= 40 {
         for (name, l) in &r.latency_s.nodes {
-            latency_row(&mut o, name, l);
+            latency_row(&mut o, width, name, l);
         }
     } else {
         let _ = writeln!(o, "  ({} sources; per-node figures in --format json)", r.latency_s.nodes.len());
@@ -170,7 +196,11 @@ pub fn render_titled(r: &Report, title: &str, color: bool) -> String {
     if !bounded.is_empty() {
         let closest =
             bounded.iter().filter(|b| b.ratio.is_some()).max_by(|a, b| a.ratio.partial_cmp(&b.ratio).unwrap());
-        let mut line = format!("  worst-case bounds: {} of {} flows bounded", bounded.len(), r.bounds.len());
+        let mut line = format!(
+            "  worst-case bounds: {} of {} bounded",
+            bounded.len(),
+            crate::units::count(r.bounds.len() as u64, "flow")
+        );
         if let Some(c) = closest {
             line += &format!(
                 "; closest: {} at {} of its bound {} ({:.1} %)",
@@ -251,23 +281,20 @@ pub fn render_titled(r: &Report, title: &str, color: bool) -> String {
     } else {
         let _ = writeln!(
             o,
-            "  floating line: {} windows at {} receivers without failsafe, total {}, longest {}",
-            fl.windows,
-            fl.hazard_receivers.len(),
+            "  floating line: {} at {} that can read an undriven line as undefined; \
+             {} summed over those receivers, longest {}",
+            crate::units::count(fl.windows, "window"),
+            crate::units::count(fl.hazard_receivers.len() as u64, "receiver"),
             format_seconds(fl.total_s),
             format_seconds(fl.longest_s)
         );
     }
     let _ = writeln!(o);
     let _ = writeln!(o, "{}", st.head.apply_to(format!("Scheme: {}", r.scheme.name)));
-    for (k, v) in &r.scheme.fields {
-        let shown = match *v {
-            crate::scheme::SchemeValue::Seconds(x) => format_seconds(x),
-            crate::scheme::SchemeValue::Count(n) => n.to_string(),
-            crate::scheme::SchemeValue::Fraction(x) => pct(x),
-            crate::scheme::SchemeValue::Flag(b) => if b { "yes" } else { "no" }.to_owned(),
-        };
-        let _ = writeln!(o, "  {:<22} {}", k, shown);
+    let rows = scheme_rows(r);
+    let width = rows.iter().map(|(k, _)| k.chars().count()).max().unwrap_or(0);
+    for (k, v) in rows {
+        let _ = writeln!(o, "  {k:<width$}  {v}");
     }
     if !r.warnings.is_empty() {
         let _ = writeln!(o);
@@ -278,15 +305,90 @@ pub fn render_titled(r: &Report, title: &str, color: bool) -> String {
         }
     }
     let _ = writeln!(o);
+    // A rate over a wall time too short to time says nothing: leave it out.
+    let rate = match r.run.events_per_s {
+        _ if r.run.wall_s < 1e-3 || r.run.events == 0 => String::new(),
+        x if x >= 1e6 => format!(" ({:.1} million events/s)", x / 1e6),
+        x if x >= 1e3 => format!(" ({:.0} thousand events/s)", x / 1e3),
+        x => format!(" ({x:.0} events/s)"),
+    };
     let _ = writeln!(
         o,
         "{}",
         st.dim.apply_to(format!(
-            "{} events in {:.3} s wall ({:.1} M events/s)",
-            r.run.events,
-            r.run.wall_s,
-            r.run.events_per_s / 1e6
+            "{} in {} wall{rate}",
+            crate::units::count(r.run.events, "event"),
+            format_seconds(r.run.wall_s)
         ))
     );
     o
+}
+
+/// The scheme's figures in words with units, without those that do not apply.
+fn scheme_rows(r: &Report) -> Vec<(String, String)> {
+    use crate::scheme::SchemeValue as V;
+    let field = |name: &str| r.scheme.fields.iter().find(|(k, _)| *k == name).map(|(_, v)| *v);
+    let slotted = field("slotted") != Some(V::Flag(false));
+    let mut out = Vec::new();
+    for &(k, v) in &r.scheme.fields {
+        if k == "slot_time_s" && !slotted {
+            continue; // pure ALOHA has no slots
+        }
+        let shown = match (k, v) {
+            ("persistence", V::Fraction(p)) if p >= 1.0 => "1-persistent".to_owned(),
+            ("persistence", V::Fraction(p)) if p <= 0.0 => "non-persistent".to_owned(),
+            ("persistence", V::Fraction(p)) => format!("p-persistent, p = {p}"),
+            (_, V::Seconds(x)) => format_seconds(x),
+            (_, V::Count(n)) => n.to_string(),
+            (_, V::Fraction(x)) => pct(x),
+            (_, V::Flag(b)) => if b { "yes" } else { "no" }.to_owned(),
+        };
+        out.push((scheme_label(k), shown));
+    }
+    out
+}
+
+/// A scheme figure's name in words (its JSON key is in the report reference).
+fn scheme_label(key: &str) -> String {
+    let words = match key {
+        "cycle_mean_s" => "mean cycle",
+        "cycle_max_s" => "longest cycle",
+        "cycle_s" => "cycle",
+        "data_replies" => "replies with data",
+        "empty_replies" => "empty replies",
+        "timeouts" => "reply timeouts",
+        "polls_ignored" => "polls ignored (slave busy)",
+        "skipped_polls" => "polls skipped (silent slave)",
+        "takeovers" => "takeovers by the backup master",
+        "unpolled_max_s" => "longest without a poll",
+        "collision_detect" => "collision detection",
+        "slot_time_s" => "slot time",
+        "collisions_detected" => "collisions detected",
+        "given_up" => "messages given up",
+        "guard_s" => "guard",
+        "usable_fraction" => "usable share of the cycle",
+        "beacons_missed" => "beacons missed",
+        "slots_used" => "slots used",
+        "slot_overruns" => "slot overruns",
+        "free_running_cycles" => "node-cycles on a node's own clock",
+        "holdovers_expired" => "holdovers run out",
+        "rotation_mean_s" => "mean rotation",
+        "rotation_max_s" => "longest rotation",
+        "token_passes" => "token passes",
+        "tokens_lost" => "tokens lost",
+        "recovery_mean_s" => "mean recovery",
+        "recovery_max_s" => "longest recovery",
+        "spurious_regenerations" => "spurious regenerations",
+        "ring_repairs" => "ring repairs (successor dropped)",
+        "readmissions" => "readmissions to the ring",
+        "bit_time_s" => "bit time",
+        "min_bit_time_s" => "shortest safe bit time",
+        "rounds" => "arbitration rounds",
+        "lost" => "rounds lost (sender backed off)",
+        "arbitration_failures" => "arbitration failures",
+        "priority_inversions" => "priority inversions",
+        "retransmissions" => "retransmissions",
+        other => return other.trim_end_matches("_s").replace('_', " "),
+    };
+    words.to_owned()
 }

@@ -167,7 +167,15 @@ impl<'a> V<'a> {
         }
         let list = allowed.iter().map(|c| format!("\"{c}\"")).collect::<Vec<_>>().join(", ");
         let mut e = self.err(v.span(), key, format!("unknown value \"{s}\"; expected one of {list}"));
-        if let Some(m) = did_you_mean(s, allowed.iter().copied()) {
+        // The spellings engineers write: case, dashes and the standard's older names.
+        let plain = |t: &str| t.chars().filter(|c| c.is_ascii_alphanumeric()).collect::<String>().to_ascii_lowercase();
+        let wanted = match plain(s).as_str() {
+            "rs485" | "eia485" | "eiatia485" | "ansitia485" => "tia485".to_owned(),
+            p => p.to_owned(),
+        };
+        if let Some(m) = allowed.iter().find(|c| plain(c) == wanted) {
+            e = e.with_hint(format!("did you mean \"{m}\"?"));
+        } else if let Some(m) = did_you_mean(s, allowed.iter().copied()) {
             e = e.with_hint(format!("did you mean \"{m}\"?"));
         }
         Err(e)

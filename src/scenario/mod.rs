@@ -35,6 +35,9 @@ pub fn load(path: &std::path::Path) -> Result<Spec, ScenarioError> {
 /// Read a scenario file's text: a regular file (a FIFO or a device would
 /// block or never end), at most [`MAX_SCENARIO_BYTES`], in UTF-8.
 pub fn read_text(path: &std::path::Path) -> Result<String, ScenarioError> {
+    if is_stdin(path) {
+        return read_bounded(std::io::stdin().lock(), STDIN_NAME);
+    }
     let file = path.display().to_string();
     let fail = |m: String| ScenarioError::whole_file(&file, m);
     let meta = std::fs::metadata(path).map_err(|e| fail(format!("cannot read the scenario: {e}")))?;
@@ -43,6 +46,23 @@ pub fn read_text(path: &std::path::Path) -> Result<String, ScenarioError> {
     }
     let f = std::fs::File::open(path).map_err(|e| fail(format!("cannot read the scenario: {e}")))?;
     read_bounded(f, &file)
+}
+
+/// How standard input (the path `-`) is named in messages.
+pub const STDIN_NAME: &str = "<stdin>";
+
+/// The path `-`: standard input.
+pub fn is_stdin(path: &std::path::Path) -> bool {
+    path.as_os_str() == "-"
+}
+
+/// A path as messages name it (`<stdin>` for `-`).
+pub fn source_name(path: &std::path::Path) -> String {
+    if is_stdin(path) {
+        STDIN_NAME.to_owned()
+    } else {
+        path.display().to_string()
+    }
 }
 
 /// Read at most [`MAX_SCENARIO_BYTES`] of scenario text from `r` (`file` names it in errors).

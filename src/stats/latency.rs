@@ -76,10 +76,10 @@ impl LatencyStats {
     }
 
     pub fn summary(&self) -> LatencySummary {
-        let s = |ps: u64| ps as f64 * 1e-12;
+        let s = |ps: u64| ps as f64 / 1e12;
         LatencySummary {
             count: self.count,
-            mean: self.mean_ps() * 1e-12,
+            mean: self.mean_ps() / 1e12,
             p50: s(self.quantile_ps(0.50)),
             p90: s(self.quantile_ps(0.90)),
             p99: s(self.quantile_ps(0.99)),

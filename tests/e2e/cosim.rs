@@ -25,7 +25,7 @@ fn start(file: &str, extra: &[&str]) -> Session {
     let mut child = Command::new(common::exe())
         .args(["cosim", file, "--listen", "127.0.0.1:0"])
         .args(if extra.contains(&"--format") { &[][..] } else { &["--format", "json"][..] })
-        .args(if extra.contains(&"--connect-timeout") { &[][..] } else { &["--connect-timeout", "20"][..] })
+        .args(if extra.contains(&"--connect-timeout") { &[][..] } else { &["--connect-timeout", "20 s"][..] })
         .args(extra)
         .stdout(Stdio::piped())
         .stderr(Stdio::piped())
@@ -299,7 +299,7 @@ fn a_client_that_disconnects_goes_quiet_under_silence_and_the_master_times_out()
 
 #[test]
 fn a_client_that_never_answers_times_out() {
-    let (error, code, report, _) = fault_case(&["--answer-timeout", "0.3"], |c| {
+    let (error, code, report, _) = fault_case(&["--answer-timeout", "300 ms"], |c| {
         c.recv(); // the start batch, never answered
     });
     assert!(error["message"].as_str().unwrap().contains("no answer within 0.3 s"), "{error}");
@@ -465,13 +465,13 @@ fn a_session_that_stalls_exits_2_and_says_so_like_run() {
 
 #[test]
 fn a_session_without_its_client_reports_a_consistent_partial_run() {
-    let s = start(DEMO, &["--on-client-fault", "silence", "--connect-timeout", "1", "--format", "text"]);
+    let s = start(DEMO, &["--on-client-fault", "silence", "--connect-timeout", "1 s", "--format", "text"]);
     let out = s.child.wait_with_output().unwrap();
     let err = s.stderr.join().unwrap();
     assert_eq!(out.status.code(), Some(0), "{err}");
     let text = String::from_utf8_lossy(&out.stdout);
     assert!(text.starts_with("halfwire cosim:"), "{text}");
-    let s = start(DEMO, &["--on-client-fault", "silence", "--connect-timeout", "1"]);
+    let s = start(DEMO, &["--on-client-fault", "silence", "--connect-timeout", "1 s"]);
     let (code, report, err) = end(s);
     assert_eq!(code, Some(0), "{err}");
     let u = &report["utilization"];
@@ -483,7 +483,7 @@ fn a_session_without_its_client_reports_a_consistent_partial_run() {
     let v = halfwire::report::invariants::violations(&report);
     assert!(v.is_empty(), "{v:#?}");
     // Under abort (the default) the run ends before it starts: an empty window, still consistent.
-    let s = start(DEMO, &["--connect-timeout", "1"]);
+    let s = start(DEMO, &["--connect-timeout", "1 s"]);
     let (code, report, err) = end(s);
     assert_eq!(code, Some(1), "{err}");
     assert_eq!(report["simulated_s"].as_f64(), Some(0.0), "{report}");

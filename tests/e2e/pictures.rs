@@ -157,7 +157,7 @@ fn the_timing_diagram_has_a_lane_per_node_and_the_vcd_edges() {
         DEMO,
         "--vcd",
         vcd.to_str().unwrap(),
-        "--svg",
+        "--plot-timing",
         svg_path.to_str().unwrap(),
         "--window",
         WINDOW,
@@ -194,7 +194,7 @@ fn the_timing_diagram_has_a_lane_per_node_and_the_vcd_edges() {
 fn a_two_node_diagram_shows_floating_windows_and_gaps() {
     let dir = tempfile::tempdir().unwrap();
     let p = dir.path().join("buoy.svg");
-    ok(&halfwire(&["run", "scenarios/buoy-link.toml", "--svg", p.to_str().unwrap(), "--window", "10ms..10.2ms"]));
+    ok(&halfwire(&["run", "scenarios/buoy-link.toml", "--plot-timing", p.to_str().unwrap(), "--window", "10ms..10.2ms"]));
     let text = svg(&p);
     let doc = roxmltree::Document::parse(&text).unwrap();
     assert_eq!(with_class(&doc, "lane").len(), 2);
@@ -254,7 +254,7 @@ fn bad_picture_input_is_an_error_with_exit_status_2() {
     let f = f.to_str().unwrap();
     let cases: [(&[&str], &str); 6] = [
         (&["run", DEMO, "--vcd", f, "--window", "30s..31s"], "lies outside the simulated time"),
-        (&["run", DEMO, "--svg", f, "--window", "2ms..1ms"], "is after the end"),
+        (&["run", DEMO, "--plot-timing", f, "--window", "2ms..1ms"], "is after the end"),
         (&["run", DEMO, "--vcd", "/no/such/folder/x.vcd"], "does not exist"),
         (&["run", DEMO, "--plot-latency", "/no/such/folder/x.svg"], "does not exist"),
         (

@@ -225,6 +225,11 @@ fn confidence_expectations_hold_at_the_interval_limit() {
     assert!(mean <= 23.5e-6 && limit > 23.5e-6, "mean {mean}, upper limit {limit}");
     assert_eq!(a.status.code(), Some(0));
     assert_eq!(b.status.code(), Some(1));
+    // Without replications there is no interval: the expectation is refused, not judged on one run.
+    let c = halfwire(&["check", &strict]);
+    assert_eq!(c.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&c.stderr);
+    assert!(err.contains("strict.toml:") && err.contains("confidence = true") && err.contains("--replications"), "{err}");
 }
 
 #[test]

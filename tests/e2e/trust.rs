@@ -288,7 +288,7 @@ fn f11_waveforms_that_would_be_huge_are_refused_before_the_run() {
     );
     assert!(!vcd.exists());
     let svg = dir.path().join("w.svg");
-    refused(&["run", "scenarios/fruit-grader.toml", "--svg", svg.to_str().unwrap()], &["--window"]);
+    refused(&["run", "scenarios/fruit-grader.toml", "--plot-timing", svg.to_str().unwrap()], &["--window"]);
     // Both refusals come before any simulation (the whole run takes seconds).
     assert!(started.elapsed() < Duration::from_secs(5), "{:?}", started.elapsed());
     assert!(!svg.exists());

@@ -147,7 +147,7 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
             format!(
                 "the cycle (beacon slot and {} slots) would last {:.4e} s, longer than the supported 10^6 s",
                 slots.len(),
-                cycle as f64 * 1e-12
+                cycle as f64 / 1e12
             ),
         ));
     }
