@@ -541,6 +541,15 @@ pub fn parse_bits(text: &str) -> Result<u64, UnitError> {
     }
 }
 
+/// A count with its noun: "1 scenario", "2 scenarios", "3 entries" (regular plurals only).
+pub fn count(n: u64, singular: &str) -> String {
+    match (n, singular.strip_suffix('y')) {
+        (1, _) => format!("1 {singular}"),
+        (_, Some(stem)) if !stem.ends_with(['a', 'e', 'o', 'u']) => format!("{n} {stem}ies"),
+        _ => format!("{n} {singular}s"),
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -743,14 +752,5 @@ mod tests {
         assert_eq!(format_seconds(5000.0), "5000 s");
         assert_eq!(format_seconds(1.2e-6), "1.2 µs");
         assert_eq!(format_seconds(0.0), "0 s");
-    }
-}
-
-/// A count with its noun: "1 scenario", "2 scenarios" (nouns with a plain plural "s").
-pub fn count(n: u64, singular: &str) -> String {
-    if n == 1 {
-        format!("1 {singular}")
-    } else {
-        format!("{n} {singular}s")
     }
 }

@@ -14,9 +14,9 @@ use halfwire::report::{json, text, Report, Warning};
 use halfwire::spec::Spec;
 use tokio::net::TcpListener;
 
-use super::output::say;
 use super::gateway::{self, Client, Outgoing, TcpGateway, Writers};
 use super::output::print_stdout;
+use super::output::say;
 use super::run::Format;
 use super::Failure;
 

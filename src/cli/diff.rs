@@ -51,9 +51,8 @@ fn load(path: &PathBuf) -> Result<Value, Failure> {
         std::fs::read_to_string(path)
     }
     .map_err(|e| Failure::input(format!("{name}: cannot read: {e}")))?;
-    let v: Value = serde_json::from_str(&text).map_err(|e| {
-        Failure::input(format!("{}:{}:{}: not a JSON report: {e}", name, e.line(), e.column()))
-    })?;
+    let v: Value = serde_json::from_str(&text)
+        .map_err(|e| Failure::input(format!("{}:{}:{}: not a JSON report: {e}", name, e.line(), e.column())))?;
     match v.get("schema").and_then(Value::as_str) {
         Some(s) if s == halfwire::report::SCHEMA => Ok(v),
         Some(s) => Err(Failure::input(format!(

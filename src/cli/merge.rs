@@ -102,7 +102,8 @@ pub fn merge(args: MergeArgs) -> Result<u8, Failure> {
                 c.write(r).map_err(Failure::input)?;
             }
             drop(c);
-            text = std::fs::read_to_string(t.path()).map_err(|e| Failure::internal(format!("a temporary file: {e}")))?;
+            text =
+                std::fs::read_to_string(t.path()).map_err(|e| Failure::internal(format!("a temporary file: {e}")))?;
         }
     }
     match &args.out {

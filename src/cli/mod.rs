@@ -176,8 +176,7 @@ fn run() -> ExitCode {
         Command::Completions { shell } => {
             let mut text = Vec::new();
             clap_complete::generate(shell, &mut <Cli as clap::CommandFactory>::command(), "halfwire", &mut text);
-            output::print_stdout(&String::from_utf8_lossy(&text))
-                .map(|()| 0)
+            output::print_stdout(&String::from_utf8_lossy(&text)).map(|()| 0)
         }
         Command::Man => {
             let mut text = Vec::new();

@@ -11,10 +11,10 @@ use super::Failure;
 #[derive(Debug, Args)]
 pub struct ScenarioOverrides {
     /// Override the scenario's seed.
-    #[arg(long)]
+    #[arg(long, value_name = "N")]
     pub seed: Option<u64>,
     /// Override the scenario's duration (simulated time with a unit, e.g. "50 ms").
-    #[arg(long)]
+    #[arg(long, value_name = "TIME")]
     pub duration: Option<String>,
     /// Set any key of the scenario, as if written in the file (repeatable):
     /// `--set 'transceiver.release_after_stop="-0.5 bit"'`

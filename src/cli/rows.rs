@@ -168,7 +168,8 @@ impl Csv {
     pub fn write(&mut self, row: &Row) -> Result<(), String> {
         let fail = |e: csv::Error| format!("{}: cannot write: {e}", self.name);
         if !self.header_done {
-            let mut head = vec!["point".to_owned(), if self.merged { "replications" } else { "replication" }.to_owned()];
+            let mut head =
+                vec!["point".to_owned(), if self.merged { "replications" } else { "replication" }.to_owned()];
             for p in &row.params {
                 head.push(p.key.clone());
                 if let Some(u) = &p.unit {

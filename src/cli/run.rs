@@ -90,7 +90,9 @@ pub fn run(args: RunArgs) -> Result<u8, Failure> {
     }
     let wants_waves = args.vcd.is_some() || args.plot_timing.is_some();
     if args.window.is_some() && args.events.is_none() && !wants_waves {
-        return Err(Failure::input("--window needs an output that uses it: give --events, --vcd or --plot-timing FILE"));
+        return Err(Failure::input(
+            "--window needs an output that uses it: give --events, --vcd or --plot-timing FILE",
+        ));
     }
     for path in [&args.events, &args.vcd, &args.plot_timing, &args.plot_latency].into_iter().flatten() {
         check_writable(path, &[args.file.as_path()])?;
@@ -320,7 +322,9 @@ fn render_events(spec: &Spec, events: &[BusEvent]) -> String {
 /// `--replications N`: the first replication's report plus the interval of every metric.
 fn replicated(spec: &Spec, n: u64, format: Format, jobs: usize) -> Result<u8, Failure> {
     if !(2..=10_000).contains(&n) {
-        return Err(Failure::input("--replications takes 1 to 10000 (an interval needs at least two; 1 is a plain run)"));
+        return Err(Failure::input(
+            "--replications takes 1 to 10000 (an interval needs at least two; 1 is a plain run)",
+        ));
     }
     let started = Instant::now();
     let reports = halfwire::replicate(spec, n, jobs);

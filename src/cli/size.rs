@@ -14,8 +14,8 @@ use halfwire::sweep::runner::Observer;
 use halfwire::sweep::{Mode, Plan, RunId};
 use std::sync::Arc;
 
-use super::output::say;
 use super::output::print_stdout;
+use super::output::say;
 use super::overrides::ScenarioOverrides;
 use super::run::Format;
 use super::Failure;
@@ -51,7 +51,7 @@ pub struct SizeArgs {
     pub format: Format,
     /// Draw the binding requirement's metric against the key (SVG), with the
     /// requirement as a line and the failing values marked.
-    #[arg(long, value_name = "FILE")]
+    #[arg(long, value_name = "FILE.svg")]
     pub plot: Option<PathBuf>,
     #[command(flatten)]
     pub overrides: ScenarioOverrides,
@@ -321,7 +321,9 @@ pub fn size(args: SizeArgs) -> Result<u8, Failure> {
                     );
                 }
                 Some(x) => {
-                    let _ = writeln!(o, "  answer: {} = {}  ({} run)",
+                    let _ = writeln!(
+                        o,
+                        "  answer: {} = {}  ({} run)",
                         args.key,
                         range.show(x),
                         super::output::count(points.len() as u64, "point")

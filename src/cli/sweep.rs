@@ -15,8 +15,8 @@ use halfwire::sweep::shard::{self, Shard};
 use halfwire::sweep::{axis, Mode, Plan, PlanError, RunId};
 use halfwire::units;
 
-use super::output::say;
 use super::output::check_writable;
+use super::output::say;
 use super::overrides::ScenarioOverrides;
 use super::rows::{self, Csv, RowFormat, Sink};
 use super::Failure;
@@ -237,7 +237,9 @@ pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
     if pool.control.stopped() {
         eprintln!(
             "halfwire sweep: stopped after {} ({} abandoned, {} not started); continue with --resume",
-            super::output::count(outcome.finished, "run"), outcome.abandoned, outcome.not_started
+            super::output::count(outcome.finished, "run"),
+            outcome.abandoned,
+            outcome.not_started
         );
         return Ok(super::status::INTERRUPTED);
     }

@@ -93,7 +93,9 @@ fn set_in_item(item: &mut Item, part: &Part, rest: &[Part], value: &Literal, pat
         (Item::Table(t), None) => set_in_table(t, rest, value, path),
         (Item::ArrayOfTables(a), Some(i)) => {
             let len = a.len();
-            let t = a.get_mut(i).ok_or_else(|| format!("`{name}` has {len} entries, so [{i}] is out of range"))?;
+            let t = a.get_mut(i).ok_or_else(|| {
+                format!("`{name}` has {}, so [{i}] is out of range", crate::units::count(len as u64, "entry"))
+            })?;
             if rest.is_empty() {
                 return Err(format!("`{name}[{i}]` is a table: name a key inside it"));
             }
@@ -121,7 +123,9 @@ fn set_in_value(
     let target = match (v, index) {
         (Value::Array(a), Some(i)) => {
             let len = a.len();
-            a.get_mut(i).ok_or_else(|| format!("`{name}` has {len} entries, so [{i}] is out of range"))?
+            a.get_mut(i).ok_or_else(|| {
+                format!("`{name}` has {}, so [{i}] is out of range", crate::units::count(len as u64, "entry"))
+            })?
         }
         (Value::Array(_), None) if !rest.is_empty() => {
             return Err(format!("`{name}` is a list: give an index, e.g. {name}[0].{}", rest[0].name))

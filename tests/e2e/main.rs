@@ -8,6 +8,7 @@ mod aloha;
 mod arbitration;
 mod bounds;
 mod budget;
+mod cli;
 mod cli_run;
 mod cosim;
 mod csma;

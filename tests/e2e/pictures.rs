@@ -194,7 +194,14 @@ fn the_timing_diagram_has_a_lane_per_node_and_the_vcd_edges() {
 fn a_two_node_diagram_shows_floating_windows_and_gaps() {
     let dir = tempfile::tempdir().unwrap();
     let p = dir.path().join("buoy.svg");
-    ok(&halfwire(&["run", "scenarios/buoy-link.toml", "--plot-timing", p.to_str().unwrap(), "--window", "10ms..10.2ms"]));
+    ok(&halfwire(&[
+        "run",
+        "scenarios/buoy-link.toml",
+        "--plot-timing",
+        p.to_str().unwrap(),
+        "--window",
+        "10ms..10.2ms",
+    ]));
     let text = svg(&p);
     let doc = roxmltree::Document::parse(&text).unwrap();
     assert_eq!(with_class(&doc, "lane").len(), 2);

@@ -229,7 +229,10 @@ fn confidence_expectations_hold_at_the_interval_limit() {
     let c = halfwire(&["check", &strict]);
     assert_eq!(c.status.code(), Some(2));
     let err = String::from_utf8_lossy(&c.stderr);
-    assert!(err.contains("strict.toml:") && err.contains("confidence = true") && err.contains("--replications"), "{err}");
+    assert!(
+        err.contains("strict.toml:") && err.contains("confidence = true") && err.contains("--replications"),
+        "{err}"
+    );
 }
 
 #[test]

@@ -110,8 +110,11 @@ fn a_twelve_point_grid_gives_twelve_rows_with_their_parameters() {
     }
     let csv = std::fs::read_to_string(csv).unwrap();
     assert_eq!(csv.lines().count(), 13, "a header and 12 lines");
-    assert!(csv.lines().next().unwrap().contains("access.turnaround [s]"));
-    assert!(csv.lines().next().unwrap().contains("latency_s.all.p99 [s]"));
+    let head = csv.lines().next().unwrap();
+    assert!(head.starts_with("point,replication,"), "{head}");
+    assert!(head.contains("access.turnaround (s)"), "{head}");
+    assert!(head.contains("latency_s.all.p99 (s)"), "{head}");
+    assert!(!head.contains("[1]") && !head.contains("(1)"), "no unit for plain counts: {head}");
 }
 
 #[test]
