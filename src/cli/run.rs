@@ -23,6 +23,13 @@ pub enum Format {
     Json,
 }
 
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum IdleLanes {
+    Auto,
+    Show,
+    Hide,
+}
+
 #[derive(Debug, Args)]
 pub struct RunArgs {
     /// Scenario file (TOML).
@@ -44,6 +51,9 @@ pub struct RunArgs {
     /// Draw how often a message is slower than each latency, per node or flow, as an SVG file.
     #[arg(long, value_name = "FILE.svg")]
     pub plot_latency: Option<PathBuf>,
+    /// Lanes of nodes that never drive in the window: auto hides them above 12 lanes.
+    #[arg(long, value_enum, value_name = "WHEN", default_value_t = IdleLanes::Auto, requires = "plot_timing")]
+    pub idle_lanes: IdleLanes,
     /// Simulated-time window for --events, --vcd and --plot-timing, e.g. "0us..50us" (default: the whole run).
     #[arg(long, value_name = "A..B")]
     pub window: Option<String>,
@@ -133,7 +143,12 @@ pub fn run(args: RunArgs) -> Result<u8, Failure> {
         None => None,
     };
     let mut waves = if wants_waves {
-        Some(Waves::new(&spec, (window.0 .0, window.1 .0), args.vcd.as_ref(), args.plot_timing.as_ref())?)
+        let hide_idle = match args.idle_lanes {
+            IdleLanes::Auto => None,
+            IdleLanes::Show => Some(false),
+            IdleLanes::Hide => Some(true),
+        };
+        Some(Waves::new(&spec, (window.0 .0, window.1 .0), args.vcd.as_ref(), args.plot_timing.as_ref(), hide_idle)?)
     } else {
         None
     };
@@ -170,7 +185,7 @@ pub fn run(args: RunArgs) -> Result<u8, Failure> {
         log.file.commit()?;
     }
     if let Some(path) = &args.plot_latency {
-        super::waves::plot_latency(&report, path)?;
+        super::waves::plot_latency(&report, &spec, path)?;
     }
     let out = match args.format {
         Format::Json => json::render(&report),

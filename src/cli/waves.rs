@@ -23,6 +23,7 @@ pub struct Waves {
     model: WaveModel<Sinks>,
     vcd: Option<AtomicFile>,
     svg: Option<PathBuf>,
+    hide_idle: Option<bool>,
 }
 
 fn failure(e: String) -> Failure {
@@ -35,6 +36,7 @@ impl Waves {
         window: (u64, u64),
         vcd: Option<&PathBuf>,
         svg: Option<&PathBuf>,
+        hide_idle: Option<bool>,
     ) -> Result<Waves, Failure> {
         let names: Vec<String> = spec.nodes.iter().map(|n| n.name.clone()).collect();
         let (vcd_file, vcd_sink) = match vcd {
@@ -49,7 +51,7 @@ impl Waves {
         let recording = svg.map(|_| Recording::new(names.len(), window));
         let line = LineModel::new(spec);
         let model = WaveModel::new(spec, &line, window, Both(vcd_sink, recording));
-        Ok(Waves { model, vcd: vcd_file, svg: svg.cloned() })
+        Ok(Waves { model, vcd: vcd_file, svg: svg.cloned(), hide_idle })
     }
 
     /// Take the events of one slice; everything before `settled` is final.
@@ -77,7 +79,16 @@ impl Waves {
                 )));
             }
             let names: Vec<String> = spec.nodes.iter().map(|n| n.name.clone()).collect();
-            let text = halfwire::plot::timing::render(&rec, &names, &spec.name, spec.frame.bit_rate);
+            let line = LineModel::new(spec);
+            let delay = |a: usize, b: usize| line.delay_ps(a, b);
+            let diagram = halfwire::plot::timing::Diagram {
+                names: &names,
+                scenario: &spec.name,
+                bit_rate: spec.frame.bit_rate,
+                delay_ps: &delay,
+                hide_idle: self.hide_idle,
+            };
+            let text = halfwire::plot::timing::render(&rec, &diagram);
             write_text(&path, &text)?;
         }
         Ok(())
@@ -91,9 +102,21 @@ pub fn write_text(path: &std::path::Path, text: &str) -> Result<(), Failure> {
     f.commit()
 }
 
-/// `--plot-latency`: percentile curves of every node's latency.
-pub fn plot_latency(report: &Report, path: &std::path::Path) -> Result<(), Failure> {
-    let chart = halfwire::plot::latency::chart(report).map_err(failure)?.ok_or_else(|| Failure {
+/// `--plot-latency`: how often each node's messages are slower than each
+/// latency, with the scenario's latency requirements.
+pub fn plot_latency(report: &Report, spec: &Spec, path: &std::path::Path) -> Result<(), Failure> {
+    use halfwire::plot::latency::Requirement;
+    let mut requirements = Vec::new();
+    for e in &spec.expect {
+        let limit = match &e.value {
+            halfwire::spec::ExpectValue::Text(t) => halfwire::units::parse_time(t).ok().map(|p| p.as_secs_f64()),
+            halfwire::spec::ExpectValue::Number(x) => Some(*x),
+        };
+        if let Some(r) = limit.and_then(|l| Requirement::from_expectation(&e.metric, e.op.symbol(), l)) {
+            requirements.push(r);
+        }
+    }
+    let chart = halfwire::plot::latency::chart(report, &requirements).map_err(failure)?.ok_or_else(|| Failure {
         code: super::status::NOTHING_TO_PLOT,
         message: format!(
             "--plot-latency {}: no message was delivered in the measured window, so there is no latency to plot",

@@ -9,13 +9,15 @@ pub enum Scale {
     Log10,
     /// A quantile axis: position log10(1 / (1 − q)), so 90 %, 99 %, 99.9 % … are evenly spaced.
     Percentile,
+    /// A fraction on a logarithmic axis, labelled "1 in 10", "1 in 100", …
+    OneIn,
 }
 
 impl Scale {
     pub fn map(self, v: f64) -> f64 {
         match self {
             Scale::Linear => v,
-            Scale::Log10 => v.log10(),
+            Scale::Log10 | Scale::OneIn => v.log10(),
             Scale::Percentile => -(1.0 - v).log10(),
         }
     }
@@ -90,6 +92,10 @@ impl Axis {
                 }
                 out
             }
+            Scale::OneIn => {
+                let (a, b) = (self.lo.log10().round() as i32, self.hi.log10().round() as i32);
+                (a..=b).map(|e| (10f64.powi(e), one_in(e))).collect()
+            }
             Scale::Percentile => [0.5, 0.9, 0.99, 0.999, 0.9999, 0.99999]
                 .into_iter()
                 .filter(|&q| q >= self.lo - 1e-12 && q <= self.hi + 1e-12)
@@ -106,6 +112,23 @@ impl Axis {
             _ => trim(v),
         }
     }
+}
+
+/// The label of the fraction 10^e: "every message" at 1, then "1 in 10", "1 in 1 000", …
+fn one_in(e: i32) -> String {
+    if e >= 0 {
+        return "every message".into();
+    }
+    let digits = format!("{}", 10u64.pow(e.unsigned_abs().min(18)));
+    // Thousands grouped with a thin space, as in print.
+    let mut grouped = String::new();
+    for (i, c) in digits.chars().enumerate() {
+        if i > 0 && (digits.len() - i).is_multiple_of(3) {
+            grouped.push('\u{2009}');
+        }
+        grouped.push(c);
+    }
+    format!("1 in {grouped}")
 }
 
 /// A number without trailing zeros: 0.5, 12, 99.99.
@@ -153,5 +176,8 @@ mod tests {
         assert!((p.frac(0.99) - (2.0 - l2) / (4.0 - l2)).abs() < 1e-12);
         let l = Axis { lo: 1e3, hi: 1e6, scale: Scale::Log10, unit: Some("1/s".into()) };
         assert_eq!(l.ticks().first().unwrap().1, "1 k/s");
+        let e = Axis { lo: 1e-4, hi: 1.0, scale: Scale::OneIn, unit: None };
+        let t: Vec<String> = e.ticks().into_iter().map(|(_, l)| l).collect();
+        assert_eq!(t, ["1 in 10\u{2009}000", "1 in 1\u{2009}000", "1 in 100", "1 in 10", "every message"]);
     }
 }

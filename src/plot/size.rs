@@ -2,7 +2,7 @@
 //! value tried, the requirement as a line, failing points marked.
 
 use super::axis::{Axis, Scale};
-use super::chart::{Chart, Series};
+use super::chart::{Chart, Guide, Series};
 
 /// One value tried: the key's value (a number in the range's unit), the
 /// metric measured there, and whether every requirement held.
@@ -21,7 +21,6 @@ pub fn chart(key: &str, x_unit: Option<String>, metric: &str, op: &str, required
         Some(u) => format!("{k} [{u}]"),
         None => k.to_owned(),
     };
-    let (x_lo, x_hi) = (pts.first().map_or(0.0, |t| t.x), pts.last().map_or(1.0, |t| t.x));
     let ys = pts.iter().map(|t| t.y).chain(std::iter::once(required));
     let shown = crate::check::show(metric, required);
     Chart {
@@ -31,24 +30,23 @@ pub fn chart(key: &str, x_unit: Option<String>, metric: &str, op: &str, required
         y_label: with_unit(metric, &y_unit),
         x: Axis::fit(pts.iter().map(|t| t.x), Scale::Linear, x_unit.clone(), false),
         y: Axis::fit(ys, Scale::Linear, y_unit, true),
-        series: vec![
-            Series {
-                name: format!("measured {metric}"),
-                points: pts.iter().map(|t| (t.x, t.y)).collect(),
-                failed: pts.iter().map(|t| !t.pass).collect(),
-                background: false,
-                emphasis: true,
-                markers: true,
-            },
-            Series {
-                name: format!("requirement: {op} {shown}"),
-                points: vec![(x_lo, required), (x_hi, required)],
-                failed: vec![false, false],
-                background: false,
-                emphasis: false,
-                markers: false,
-            },
-        ],
+        series: vec![Series {
+            name: format!("measured {metric}"),
+            points: pts.iter().map(|t| (t.x, t.y)).collect(),
+            failed: pts.iter().map(|t| !t.pass).collect(),
+            background: false,
+            emphasis: true,
+            markers: true,
+            failed_other: Vec::new(),
+            end_marker: false,
+        }],
         failed_label: "a value where some requirement fails".into(),
+        failed_other_label: String::new(),
+        end_label: String::new(),
+        guides: vec![Guide {
+            x: None,
+            y: Some(required),
+            label: format!("requirement: {} {shown}", super::sweep::op_symbol(op)),
+        }],
     }
 }

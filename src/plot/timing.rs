@@ -21,7 +21,9 @@ const BUS_H: f64 = 44.0;
 const ENABLE_FILL: &str = "#d6e4f5";
 const ENABLE_STROKE: &str = "#3f6fae";
 const DATA_FILL: &str = "#2b65ad";
-const CONTROL_FILL: &str = "#5aa79a";
+/// Control frames (polls, tokens, beacons, empty replies): violet, well apart
+/// from the green and orange of the enable and release marks.
+const CONTROL_FILL: &str = "#8a6fc0";
 const CONTENTION: &str = "#d7191c";
 const ENABLE_EDGE: &str = "#1a9850";
 const RELEASE_EDGE: &str = "#e66101";
@@ -48,33 +50,57 @@ fn time_unit(span_s: f64, end_s: f64) -> (f64, &'static str) {
     UNITS[i]
 }
 
-pub fn render(rec: &Recording, names: &[String], scenario: &str, bit_rate: f64) -> String {
+/// Lanes above which idle lanes are hidden unless asked for.
+pub const IDLE_LANES_SHOWN_UP_TO: usize = 12;
+
+/// What the diagram is of, beside the recording.
+pub struct Diagram<'a> {
+    pub names: &'a [String],
+    pub scenario: &'a str,
+    pub bit_rate: f64,
+    /// Wire delay between two nodes' positions, in ps (for the gap at a responder).
+    pub delay_ps: &'a dyn Fn(usize, usize) -> u64,
+    /// Hide the lanes of nodes that never drive in the window: `None` for
+    /// the default (hidden above [`IDLE_LANES_SHOWN_UP_TO`] lanes).
+    pub hide_idle: Option<bool>,
+}
+
+pub fn render(rec: &Recording, d: &Diagram) -> String {
+    let names = d.names;
+    let (scenario, bit_rate) = (d.scenario, d.bit_rate);
     let (a, b) = rec.window;
     let span = (b - a).max(1) as f64;
     let pw = W - LEFT - RIGHT;
     let px = |t: u64| LEFT + (t.saturating_sub(a)).min(b - a) as f64 / span * pw;
-    let n = names.len();
+    let drives: Vec<bool> = (0..names.len()).map(|i| rec.occupancies.iter().any(|o| o.node == i)).collect();
+    let hide = d.hide_idle.unwrap_or(names.len() > IDLE_LANES_SHOWN_UP_TO);
+    let shown: Vec<usize> = (0..names.len()).filter(|&i| !hide || drives[i]).collect();
+    let hidden = names.len() - shown.len();
+    let n = shown.len();
     let lh = lane_height(n);
     let lanes_top = BUS_TOP + BUS_H + 14.0;
     let axis_y = lanes_top + lh * n as f64 + 6.0;
     let legend_y = axis_y + 62.0;
     let height = legend_y + 62.0;
     let mut svg = Svg::new(W, height);
-    let fmt = |ps: u64| units::format_seconds(ps as f64 * 1e-12);
-    let (unit_s, unit_name) = time_unit(span * 1e-12, b as f64 * 1e-12);
-    let at = |ps: u64| format!("{} {unit_name}", trim(ps as f64 * 1e-12 / unit_s));
+    let fmt = |ps: u64| units::format_seconds(ps as f64 / 1e12);
+    // Times on the axis count from the window's start, stated once above.
+    let (unit_s, unit_name) = time_unit(span / 1e12, span / 1e12);
+    let at = |ps: u64| format!("{} {unit_name}", trim(ps.saturating_sub(a) as f64 / 1e12 / unit_s));
     svg.text(LEFT, 24.0, &format!("Bus timing: {scenario}"), r#"font-size="16" font-weight="bold""#);
-    svg.text(
-        LEFT,
-        42.0,
-        &format!(
-            "window {} to {} · {} nodes · symbols are a stand-in pattern; every edge time is exact",
-            at(a),
-            at(b),
-            n
-        ),
-        r##"fill="#555""##,
-    );
+    let lanes = if hidden > 0 {
+        format!("{} of {} nodes drive in the window ({} idle lanes hidden)", n, names.len(), hidden)
+    } else {
+        format!("{} nodes", names.len())
+    };
+    svg.raw(&format!(
+        r##"<text x="{LEFT:.2}" y="42.00" fill="#555" class="window-start" data-start-ps="{a}">{}</text>"##,
+        esc(&format!(
+            "t = 0 at {} of simulated time · window {} long · {lanes} · symbols are a stand-in pattern; every edge time is exact",
+            fmt(a),
+            fmt(b - a)
+        ))
+    ));
     // Time grid.
     let step_ps = (nice_step(span * 1e-12, 10) * 1e12).max(1.0);
     let first = (a as f64 / step_ps).ceil() as u64;
@@ -89,12 +115,17 @@ pub fn render(rec: &Recording, names: &[String], scenario: &str, bit_rate: f64) 
         k += 1;
     }
     svg.line(LEFT, axis_y, LEFT + pw, axis_y, r##"stroke="#444""##);
-    svg.text(LEFT + pw / 2.0, axis_y + 36.0, "simulated time", r#"text-anchor="middle""#);
+    svg.text(
+        LEFT + pw / 2.0,
+        axis_y + 36.0,
+        &format!("time since the window's start (t = 0 at {})", fmt(a)),
+        r#"text-anchor="middle" class="x-label""#,
+    );
 
-    bus_lane(&mut svg, rec, &px, &fmt);
-    for (i, name) in names.iter().enumerate() {
-        let y0 = lanes_top + lh * i as f64;
-        node_lane(&mut svg, rec, i, name, y0, lh, bit_rate, &px, span, pw);
+    bus_lane(&mut svg, rec, names, d.delay_ps, &px, &fmt);
+    for (row, &i) in shown.iter().enumerate() {
+        let y0 = lanes_top + lh * row as f64;
+        node_lane(&mut svg, rec, i, &names[i], row, y0, lh, bit_rate, &px, span, pw);
     }
     let hold = rec.occupancies.iter().any(|o| o.frames.iter().map(|f| f.e).max().is_some_and(|e| o.release > e));
     legend(&mut svg, legend_y, hold);
@@ -107,7 +138,14 @@ pub fn render(rec: &Recording, names: &[String], scenario: &str, bit_rate: f64) 
     svg.finish(&format!("Bus timing: {scenario}"), defs)
 }
 
-fn bus_lane(svg: &mut Svg, rec: &Recording, px: &dyn Fn(u64) -> f64, fmt: &dyn Fn(u64) -> String) {
+fn bus_lane(
+    svg: &mut Svg,
+    rec: &Recording,
+    names: &[String],
+    delay_ps: &dyn Fn(usize, usize) -> u64,
+    px: &dyn Fn(u64) -> f64,
+    fmt: &dyn Fn(u64) -> String,
+) {
     let (y0, h) = (BUS_TOP, BUS_H);
     svg.text(LEFT - 10.0, y0 + h / 2.0 + 4.0, "line", r#"text-anchor="end" font-weight="bold""#);
     svg.rect(LEFT, y0, W - LEFT - RIGHT, h, r##"fill="#fafafa" stroke="#ccc""##);
@@ -145,39 +183,52 @@ fn bus_lane(svg: &mut Svg, rec: &Recording, px: &dyn Fn(u64) -> f64, fmt: &dyn F
             svg.text(x0 + w / 2.0, y0 + 10.0, &label, r#"text-anchor="middle" font-size="10" fill="white""#);
         }
     }
-    // Gaps between the latest driver turning off and the next enable.
+    // The hand-over as the new driver sees it: from the moment the latest
+    // other driver's signal stops arriving at its position (that driver's
+    // off time plus the wire delay between them) to its own enable. Positive:
+    // a gap (the line floats there); negative: an overlap (contention there).
     let mut occ: Vec<_> = rec.occupancies.iter().collect();
     occ.sort_by_key(|o| (o.a, o.node));
-    let mut latest: Option<(u64, usize)> = None;
+    let mut latest_off: Vec<Option<u64>> = vec![None; names.len()];
     let mut last_label_end = f64::NEG_INFINITY;
     for o in occ {
-        if let Some((off, node)) = latest {
-            if o.a > off && node != o.node {
-                let (x0, x1) = (px(off), px(o.a));
+        let seen = (0..names.len())
+            .filter(|&p| p != o.node)
+            .filter_map(|p| latest_off[p].map(|off| (off + delay_ps(p, o.node), off, p)))
+            .max();
+        if let Some((ends_here, _, p)) = seen {
+            {
+                let gap = o.a as i128 - ends_here as i128;
+                let (from, to) = (ends_here.min(o.a), ends_here.max(o.a));
+                let (x0, x1) = (px(from), px(to));
                 let ym = y0 + h - 7.0;
+                let colour = if gap < 0 { CONTENTION } else { "#333" };
                 svg.raw(&format!(
-                    r##"<path class="gap" data-gap-ps="{}" d="M{x0:.2},{:.2} V{ym:.2} H{x1:.2} V{:.2}" fill="none" stroke="#333" stroke-width="1"/>"##,
-                    o.a - off,
+                    r##"<path class="gap" data-gap-ps="{gap}" data-from="{}" data-at="{}" d="M{x0:.2},{:.2} V{ym:.2} H{x1:.2} V{:.2}" fill="none" stroke="{colour}" stroke-width="1"/>"##,
+                    esc(&names[p]),
+                    esc(&names[o.node]),
                     ym - 4.0,
                     ym - 4.0
                 ));
-                let label = fmt(o.a - off);
+                let label = if gap < 0 {
+                    format!("overlap {} at {}", fmt(gap.unsigned_abs() as u64), names[o.node])
+                } else {
+                    format!("{} at {}", fmt(gap as u64), names[o.node])
+                };
                 let lw = text_width(&label, 10.0);
                 let centre = (x0 + x1) / 2.0;
-                if lw + 2.0 < x1 - x0 + 40.0 && centre - lw / 2.0 > last_label_end + 4.0 {
+                if centre - lw / 2.0 > last_label_end + 4.0 {
                     svg.text(
                         centre,
                         ym - 6.0,
                         &label,
-                        r##"text-anchor="middle" font-size="10" fill="#222" class="gap-label""##,
+                        &format!(r#"text-anchor="middle" font-size="10" fill="{colour}" class="gap-label""#),
                     );
                     last_label_end = centre + lw / 2.0;
                 }
             }
         }
-        if latest.is_none_or(|(off, _)| o.b >= off) {
-            latest = Some((o.b, o.node));
-        }
+        latest_off[o.node] = Some(latest_off[o.node].map_or(o.b, |t| t.max(o.b)));
     }
 }
 
@@ -187,6 +238,7 @@ fn node_lane(
     rec: &Recording,
     i: usize,
     name: &str,
+    row: usize,
     y0: f64,
     lh: f64,
     bit_rate: f64,
@@ -195,7 +247,7 @@ fn node_lane(
     pw: f64,
 ) {
     let font = if lh < 24.0 { 11.0 } else { 12.0 };
-    let stripe = if i.is_multiple_of(2) { "#ffffff" } else { "#f4f6f8" };
+    let stripe = if row.is_multiple_of(2) { "#ffffff" } else { "#f4f6f8" };
     svg.raw(&format!(r#"<g class="lane" data-node="{}">"#, esc(name)));
     svg.rect(LEFT, y0, W - LEFT - RIGHT, lh, &format!(r#"fill="{stripe}""#));
     svg.text(LEFT - 10.0, y0 + lh / 2.0 + font / 3.0, name, &format!(r#"text-anchor="end" font-size="{font}""#));
@@ -250,12 +302,23 @@ fn node_lane(
                 (xe - xs).max(0.8),
                 bot - top - 3.0
             ));
-            if symbol_px < 3.0 && xe - xs > text_width(f.kind, 10.0) + 6.0 && lh >= 20.0 {
+            // Name the frame: inside it when the symbols are not drawn,
+            // otherwise a control frame (a poll, a token, an empty reply)
+            // is named just above, so a reply without data is told from one with.
+            let label = f.kind.replace('-', " ");
+            if symbol_px < 3.0 && xe - xs > text_width(&label, 10.0) + 6.0 && lh >= 20.0 {
                 svg.text(
                     (xs + xe) / 2.0,
                     y0 + lh / 2.0 + 3.5,
-                    f.kind,
-                    r#"text-anchor="middle" font-size="10" fill="white""#,
+                    &label,
+                    r#"text-anchor="middle" font-size="10" fill="white" class="frame-label""#,
+                );
+            } else if f.kind != "data" && xe - xs > text_width(&label, 9.0) && lh >= 20.0 {
+                svg.text(
+                    xs + 2.0,
+                    top + 0.5,
+                    &label,
+                    &format!(r#"font-size="9" fill="{CONTROL_FILL}" class="frame-label""#),
                 );
             }
         }
@@ -312,7 +375,7 @@ fn legend(svg: &mut Svg, y: f64, hold: bool) {
                 "disable time (output turning off)",
             ),
             (rect(&format!(r#"fill="{DATA_FILL}""#)), "data frame"),
-            (rect(&format!(r#"fill="{CONTROL_FILL}""#)), "control frame"),
+            (rect(&format!(r#"fill="{CONTROL_FILL}""#)), "control frame (named above it)"),
             (rect(&format!(r#"fill="white" stroke="{CONTENTION}" stroke-width="2""#)), "corrupted at a receiver"),
         ],
         vec![
@@ -324,7 +387,7 @@ fn legend(svg: &mut Svg, y: f64, hold: bool) {
             ),
             (rect(r#"fill="url(#float)""#), "receiver input floating (no driver, no failsafe)"),
             (rect(&format!(r#"fill="{CONTENTION}" opacity="0.8""#)), "two drivers at once (contention)"),
-            (rect(r##"fill="none" stroke="#333""##), "gap: last driver off → next enable, with its length"),
+            (rect(r##"fill="none" stroke="#333""##), "hand-over seen at the new driver (red: overlap)"),
         ],
     ];
     let mut rows = rows;

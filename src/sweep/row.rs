@@ -42,6 +42,18 @@ pub struct Expectations {
     pub checked: u64,
     /// Metrics failed by at least one replication.
     pub failed: Vec<String>,
+    /// Each requirement: its metric, operator and value in SI base units
+    /// (for drawing it on a chart).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub required: Vec<Required>,
+}
+
+/// One `[[expect]]`: `metric op value`, the value in SI base units.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Required {
+    pub metric: String,
+    pub op: String,
+    pub value: f64,
 }
 
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
@@ -83,7 +95,7 @@ impl Row {
         let json = serde_json::to_value(report).expect("a report serializes");
         let tallies = report.tallies.clone();
         let metrics = tallies.metrics().expect("a fresh tally decodes");
-        let failed = failed_expectations(plan.file(), spec, &json);
+        let (failed, required) = failed_expectations(plan.file(), spec, &json);
         Row {
             schema: SCHEMA.to_owned(),
             sweep: plan.id().to_owned(),
@@ -95,7 +107,7 @@ impl Row {
             replications: vec![run.replication],
             metrics: metrics.clone(),
             ci95: BTreeMap::new(),
-            expectations: Expectations { checked: spec.expect.len() as u64, failed: failed.clone() },
+            expectations: Expectations { checked: spec.expect.len() as u64, failed: failed.clone(), required },
             per_replication: vec![Replication { replication: run.replication, seed: spec.seed, metrics, failed }],
             tallies,
             report: json,
@@ -109,20 +121,30 @@ impl Row {
     }
 }
 
-/// Metric paths of the expectations a report fails (or cannot be checked against).
-fn failed_expectations(file: &str, spec: &Spec, report: &serde_json::Value) -> Vec<String> {
+/// The expectations a run fails, and every requirement with its value.
+fn failed_expectations(file: &str, spec: &Spec, report: &serde_json::Value) -> (Vec<String>, Vec<Required>) {
     if spec.expect.is_empty() {
-        return Vec::new();
+        return (Vec::new(), Vec::new());
     }
     let metrics = crate::check::flatten(report);
     match crate::check::resolve(file, &spec.expect, &metrics) {
-        Ok(resolved) => resolved
-            .iter()
-            .map(|r| crate::check::evaluate(r, &metrics, None))
-            .filter(|o| !o.pass)
-            .map(|o| o.metric)
-            .collect(),
-        Err(_) => spec.expect.iter().map(|e| e.metric.clone()).collect(),
+        Ok(resolved) => (
+            resolved
+                .iter()
+                .map(|r| crate::check::evaluate(r, &metrics, None))
+                .filter(|o| !o.pass)
+                .map(|o| o.metric)
+                .collect(),
+            resolved
+                .iter()
+                .map(|r| Required {
+                    metric: r.expectation.metric.clone(),
+                    op: r.expectation.op.symbol().to_owned(),
+                    value: r.required,
+                })
+                .collect(),
+        ),
+        Err(_) => (spec.expect.iter().map(|e| e.metric.clone()).collect(), Vec::new()),
     }
 }
 

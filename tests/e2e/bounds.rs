@@ -621,7 +621,7 @@ fn size_draws_the_binding_requirement() {
     let texts: Vec<String> =
         doc.descendants().filter(|n| n.has_tag_name("text")).filter_map(|n| n.text().map(str::to_owned)).collect();
     assert!(texts.iter().any(|t| t.contains("latency_s.all.p99 against nodes.count")), "{texts:?}");
-    assert!(texts.iter().any(|t| t.starts_with("requirement: <= 1 s")), "{texts:?}");
+    assert!(texts.iter().any(|t| t.starts_with("requirement: ≤ 1 s")), "{texts:?}");
     assert!(texts.iter().any(|t| t.contains("some requirement fails")), "{texts:?}");
 }
 
