@@ -39,14 +39,20 @@ pub struct FloatingTotals {
     pub longest_ps: u64,
 }
 
-/// Sorted u_i = d(k,i) − d(p,i) over hazard receivers, with suffix sums.
+/// The u_i = d(k,i) − d(p,i) over hazard receivers of one driver pair:
+/// their range and sum (enough when the gap opens every window or none, the
+/// usual case, in O(1)), and, built only when a gap splits them, the sorted
+/// values with suffix sums.
 #[derive(Debug)]
 struct PairProfile {
-    sorted: Vec<i64>,
-    /// `suffix[j]` = Σ sorted[j..].
-    suffix: Vec<i64>,
+    umin: i64,
+    umax: i64,
+    /// Σ u_i.
+    sum: i64,
     /// Largest d(k,i) over hazard receivers.
     max_dk: u64,
+    /// (sorted u_i, `suffix[j]` = Σ sorted[j..]), when needed.
+    sorted: Option<(Vec<i64>, Vec<i64>)>,
 }
 
 /// Most pair profiles kept (bounds memory on very large buses).
@@ -177,24 +183,21 @@ impl FloatingSweep {
         if bp < w0 {
             return false;
         }
+        if p > 0xffff || k > 0xffff {
+            return false;
+        }
         let key = (p as u32) << 16 | k as u32;
         if !self.profiles.contains_key(&key) {
-            if self.profile_values + self.hazard_ids.len() > PROFILE_BUDGET_VALUES || p > 0xffff || k > 0xffff {
-                return false;
-            }
             let (rp, rk) = (rows(p), rows(k));
-            let mut sorted: Vec<i64> = self.hazard_ids.iter().map(|&i| rk[i] as i64 - rp[i] as i64).collect();
-            sorted.sort_unstable();
-            let mut suffix = vec![0i64; sorted.len() + 1];
-            for j in (0..sorted.len()).rev() {
-                suffix[j] = suffix[j + 1] + sorted[j];
+            let (mut umin, mut umax, mut sum, mut max_dk) = (i64::MAX, i64::MIN, 0i64, 0u64);
+            for &i in &self.hazard_ids {
+                let u = rk[i] as i64 - rp[i] as i64;
+                (umin, umax, sum, max_dk) = (umin.min(u), umax.max(u), sum + u, max_dk.max(rk[i]));
             }
-            let max_dk = self.hazard_ids.iter().map(|&i| rk[i]).max().unwrap_or(0);
-            self.profile_values += sorted.len();
-            self.profiles.insert(key, PairProfile { sorted, suffix, max_dk });
+            self.profiles.insert(key, PairProfile { umin, umax, sum, max_dk, sorted: None });
         }
         let prof = &self.profiles[&key];
-        let (umin, umax) = (prof.sorted[0], *prof.sorted.last().expect("non-empty"));
+        let (umin, umax) = (prof.umin, prof.umax);
         // k must dominate afterwards: b + d(k,i) ≥ b_p + d(p,i) for every i.
         if (b as i64 - bp as i64) < -umin {
             return false;
@@ -203,17 +206,50 @@ impl FloatingSweep {
             return false;
         }
         let g = a as i64 - bp as i64;
+        let n = self.hazard_ids.len();
         // Windows where g + u_i > 0 (a sum over receivers: in 128 bits).
-        let first = prof.sorted.partition_point(|&u| u <= -g);
-        let count = prof.sorted.len() - first;
+        // Every receiver or none, in O(1); otherwise the sorted profile.
+        let (count, above) = if g + umin > 0 {
+            (n, prof.sum)
+        } else if g + umax <= 0 {
+            (0, 0)
+        } else {
+            if prof.sorted.is_none() {
+                if self.profile_values + n > PROFILE_BUDGET_VALUES {
+                    return false;
+                }
+                let (rp, rk) = (rows(p), rows(k));
+                let mut sorted: Vec<i64> = self.hazard_ids.iter().map(|&i| rk[i] as i64 - rp[i] as i64).collect();
+                sorted.sort_unstable();
+                let mut suffix = vec![0i64; sorted.len() + 1];
+                for j in (0..sorted.len()).rev() {
+                    suffix[j] = suffix[j + 1] + sorted[j];
+                }
+                self.profile_values += n;
+                self.profiles.get_mut(&key).expect("inserted above").sorted = Some((sorted, suffix));
+            }
+            let (sorted, suffix) = self.profiles[&key].sorted.as_ref().expect("built above");
+            let first = sorted.partition_point(|&u| u <= -g);
+            (n - first, suffix[first])
+        };
         if count > 0 {
-            let total = count as i128 * i128::from(g) + i128::from(prof.suffix[first]);
+            let total = count as i128 * i128::from(g) + i128::from(above);
             self.totals.windows += count as u64;
             self.totals.total_ps += total as u128;
             self.totals.longest_ps = self.totals.longest_ps.max((g + umax) as u64);
         }
         self.dominant = Some((k, b));
         true
+    }
+
+    /// True when some receiver can read an undriven line as undefined.
+    pub fn has_hazards(&self) -> bool {
+        !self.hazard_ids.is_empty()
+    }
+
+    /// The receivers that can (their indices, ascending).
+    pub fn hazard_ids(&self) -> &[usize] {
+        &self.hazard_ids
     }
 
     /// Write the implicit dominated state into the per-receiver array.

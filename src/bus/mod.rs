@@ -287,15 +287,26 @@ impl Bus {
         // The log is sorted by enable time, so if the next entry enables at
         // least the largest wire delay after this one, no later entry can
         // reach any receiver first and no bound is needed.
-        let needs_bound = self.log.get(idx + 1).is_some_and(|m| m.a < k.a + self.max_delay);
+        // Without hazard receivers there are no windows to bound; with a few,
+        // only their bounds are formed (the sweep reads no others).
+        let needs_bound =
+            self.floating.has_hazards() && self.log.get(idx + 1).is_some_and(|m| m.a < k.a + self.max_delay);
         let next = if !needs_bound {
             None
         } else {
             self.scratch.clear();
             self.scratch.resize(self.positions.len(), u64::MAX);
+            let hazards = self.floating.hazard_ids();
             for m in &self.log[idx + 1..] {
-                for (slot, d) in self.scratch.iter_mut().zip(line.delay_row(m.node)) {
-                    *slot = (*slot).min(m.a + d);
+                let row = line.delay_row(m.node);
+                if hazards.len() == row.len() {
+                    for (slot, d) in self.scratch.iter_mut().zip(row) {
+                        *slot = (*slot).min(m.a + d);
+                    }
+                } else {
+                    for &i in hazards {
+                        self.scratch[i] = self.scratch[i].min(m.a + row[i]);
+                    }
                 }
             }
             Some(self.scratch.as_slice())
