@@ -279,6 +279,7 @@ impl Simulation {
         w.bus.finish(&w.line, close.0, end.0, &mut w.trace);
         let scheme = self.scheme.report(&self.world);
         let mut report = Report::build(&self.world, scheme);
+        report.take_latency(&mut self.world);
         if let Some(t) = self.stalled {
             report.stalled_at_s = Some(t.as_secs_f64());
         }

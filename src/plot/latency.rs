@@ -79,18 +79,12 @@ fn curve(l: &LatencyStats) -> Vec<(f64, f64)> {
 
 /// The chart for a run's report; `None` when no message was delivered.
 pub fn chart(report: &Report, requirements: &[Requirement]) -> Result<Option<Chart>, String> {
-    let t = &report.tallies;
-    let all = LatencyStats::from_tally(&t.latency)?;
+    let set = report.latency_set();
+    let all = set.all.clone();
     if all.count() == 0 {
         return Ok(None);
     }
-    let mut nodes = Vec::new();
-    for (name, tally) in &t.latency_nodes {
-        let l = LatencyStats::from_tally(tally)?;
-        if l.count() > 0 {
-            nodes.push((name.clone(), l));
-        }
-    }
+    let nodes: Vec<(String, LatencyStats)> = set.nodes.iter().filter(|(_, l)| l.count() > 0).cloned().collect();
     let mut series = Vec::new();
     let few = nodes.len() <= COLOURED_NODES;
     // The slowest nodes: longest maximum first (ties by name).

@@ -63,9 +63,13 @@ pub struct Report {
     #[serde(skip_serializing_if = "Option::is_none")]
     pub aborted_at_s: Option<f64>,
     pub run: RunInfo,
-    /// The exact counters behind the figures (for merging; not in the JSON report).
+    /// The exact counters behind the figures (for merging; not in the JSON
+    /// report), without the latency tallies: see [`Report::tallies`].
     #[serde(skip)]
-    pub tallies: tallies::Tallies,
+    counters: tallies::Tallies,
+    /// The latency accumulators, encoded only on request.
+    #[serde(skip)]
+    latency_set: tallies::LatencySet,
 }
 
 #[derive(Clone, Debug, Serialize)]
@@ -323,8 +327,28 @@ impl Report {
             stalled_at_s: None,
             aborted_at_s: None,
             run: RunInfo { events: w.events, ..RunInfo::default() },
-            tallies: t,
+            counters: t,
+            // Moved in by the engine once the report is built.
+            latency_set: tallies::LatencySet::default(),
         }
+    }
+
+    /// Move the run's latency accumulators into the report (the world is done with them).
+    pub(crate) fn take_latency(&mut self, w: &mut World) {
+        self.latency_set = tallies::LatencySet::take(w);
+    }
+
+    /// The exact counters behind the figures, with the latency histograms
+    /// encoded (for sweep rows and merging).
+    pub fn tallies(&self) -> tallies::Tallies {
+        let mut t = self.counters.clone();
+        self.latency_set.encode_into(&mut t);
+        t
+    }
+
+    /// The run's latency accumulators, overall and per node with traffic.
+    pub fn latency_set(&self) -> &tallies::LatencySet {
+        &self.latency_set
     }
 
     /// Fill the machine-dependent `run` object.

@@ -137,20 +137,51 @@ impl Default for LatencyTally {
     }
 }
 
-impl Tallies {
-    pub(crate) fn from_world(w: &World, bounds: &[crate::bound::FlowBound]) -> Tallies {
-        let st = &w.stats;
-        let c = &w.bus.contention;
-        let f = w.bus.floating.totals;
-        let u = w.bus.util.totals;
-        let latency_nodes = w
+/// A run's latency accumulators, overall and per node with traffic, kept
+/// as they are: encoding them (a tally) is done only when asked for.
+#[derive(Clone, Debug, Default)]
+pub struct LatencySet {
+    pub all: LatencyStats,
+    pub nodes: Vec<(String, LatencyStats)>,
+}
+
+impl LatencySet {
+    /// Move the accumulators out of a finished run (no copy of the histograms).
+    pub(crate) fn take(w: &mut World) -> LatencySet {
+        let st = &mut w.stats;
+        let nodes = w
             .spec
             .nodes
             .iter()
             .enumerate()
             .filter(|(_, n)| !n.traffic.is_empty())
-            .map(|(i, n)| (n.name.clone(), st.latency_node[i].tally()))
+            .map(|(i, n)| (n.name.clone(), std::mem::take(&mut st.latency_node[i])))
             .collect();
+        LatencySet { all: std::mem::take(&mut st.latency_all), nodes }
+    }
+
+    /// Encode into `t`'s latency tallies.
+    pub fn encode_into(&self, t: &mut Tallies) {
+        t.latency = self.all.tally();
+        t.latency_nodes = self.nodes.iter().map(|(n, l)| (n.clone(), l.tally())).collect();
+    }
+}
+
+impl LatencyTally {
+    /// A tally not yet encoded (see [`LatencySet::encode_into`]).
+    fn pending() -> LatencyTally {
+        LatencyTally { count: 0, sum_ps: 0, max_ps: 0, histogram: String::new() }
+    }
+}
+
+impl Tallies {
+    /// The counters of a run, without the latency tallies, which
+    /// [`LatencySet::encode_into`] fills when they are needed.
+    pub(crate) fn from_world(w: &World, bounds: &[crate::bound::FlowBound]) -> Tallies {
+        let st = &w.stats;
+        let c = &w.bus.contention;
+        let f = w.bus.floating.totals;
+        let u = w.bus.util.totals;
         let handover = w.bus.handover.all();
         Tallies {
             measured_ps: w.spec.measured().0,
@@ -181,8 +212,8 @@ impl Tallies {
             util_gaps_ps: u.gaps,
             util_idle_ps: u.idle,
             util_wasted_ps: u.wasted,
-            latency: st.latency_all.tally(),
-            latency_nodes,
+            latency: LatencyTally::pending(),
+            latency_nodes: BTreeMap::new(),
             handovers: handover.count,
             handover_slack_min_ps: handover.min,
             handovers_contended: handover.contended,

@@ -77,18 +77,27 @@ impl SlackStats {
     /// Put the pending run of equal values into the histograms.
     fn flush(&mut self) {
         let Some((slack, n)) = self.run.take() else { return };
-        if slack < 0 {
+        self.put(slack, n);
+    }
+
+    /// Record `n` hand-overs of slack `slack` in the histograms.
+    fn put(&mut self, slack: i64, n: u32) {
+        let magnitude = slack.unsigned_abs();
+        let slot = if slack < 0 {
             self.negatives += u64::from(n);
-            self.negative.get_or_insert_with(histogram).record_n(slack.unsigned_abs(), n).expect("auto-resizing");
+            &mut self.negative
         } else {
-            self.positive.get_or_insert_with(histogram).record_n(slack as u64, n).expect("auto-resizing");
+            &mut self.positive
+        };
+        let h = slot.get_or_insert_with(histogram);
+        if magnitude > h.high() {
+            *h = crate::stats::latency::grown(h, magnitude, 2);
         }
+        h.record_n(magnitude, n).expect("auto-resizing");
     }
 
     /// Add another set of slacks to these.
     pub fn add(&mut self, o: &SlackStats) {
-        let mut o = o.clone();
-        o.flush();
         self.flush();
         self.count += o.count;
         self.min = match (self.min, o.min) {
@@ -99,6 +108,10 @@ impl SlackStats {
         self.negatives += o.negatives;
         merge(&mut self.negative, &o.negative);
         merge(&mut self.positive, &o.positive);
+        // The other's pending run, as its flush would have recorded it.
+        if let Some((slack, n)) = o.run {
+            self.put(slack, n);
+        }
     }
 
     /// The slack at quantile `q` (the value of rank ⌈q·n⌉, at least 1, in

@@ -93,7 +93,7 @@ impl Row {
             .map(|(k, v)| Param { key: k.to_owned(), value: v.value.clone(), si: v.si, unit: v.unit.clone() })
             .collect();
         let json = serde_json::to_value(report).expect("a report serializes");
-        let tallies = report.tallies.clone();
+        let tallies = report.tallies();
         let metrics = tallies.metrics().expect("a fresh tally decodes");
         let (failed, required) = failed_expectations(plan.file(), spec, &json);
         Row {
