@@ -73,8 +73,13 @@ pub(crate) fn bounds(spec: &Spec, line: &LineModel, t: &TdmaSpec, flows: &[Flow]
             // is off plus the gap. Its output ends by the end of its previous
             // slot, so that can come later than a slot's start only when the
             // node's previous slot ends less than disable + gap − guard before.
+            // The timekeeper's previous output before its first slot is its
+            // own beacon, which ends where the slot offsets begin.
             let free_before = (0..mine.len())
                 .map(|n| {
+                    if n == 0 && i == tk {
+                        return offsets[mine[0]];
+                    }
                     let prev = if n == 0 { mine.len() - 1 } else { n - 1 };
                     let prev_end = offsets[mine[prev]] + u128::from(t.slots[mine[prev]].length.0);
                     let start = if n == 0 { offsets[mine[0]] + cycle } else { offsets[mine[n]] };

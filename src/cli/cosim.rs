@@ -57,8 +57,8 @@ pub struct CosimArgs {
 /// A wall-clock timeout: a time with a unit, more than 0 and at most a day.
 fn seconds(what: &str, text: &str) -> Result<Duration, Failure> {
     let t = halfwire::units::parse_time(text).map_err(|e| Failure::input(format!("{what}: {e}")))?;
-    if t.0 == 0 || t.as_secs_f64() > 86_400.0 {
-        return Err(Failure::input(format!("{what} takes more than 0 s and at most 1 day (86400 s), not {t}")));
+    if t < halfwire::units::Picos::from_ms(1) || t.as_secs_f64() > 86_400.0 {
+        return Err(Failure::input(format!("{what} takes 1 ms to 1 day (86400 s), not {t}")));
     }
     Ok(Duration::from_nanos(t.0 / 1000))
 }

@@ -97,7 +97,7 @@ pub fn merge(args: MergeArgs) -> Result<u8, Failure> {
         }
         RowFormat::Csv => {
             let t = tempfile::NamedTempFile::new().map_err(|e| Failure::internal(format!("a temporary file: {e}")))?;
-            let mut c = Csv::append(t.path(), true)?;
+            let mut c = Csv::append(t.path(), true)?.si_columns(si_columns(&merged));
             for r in &merged {
                 c.write(r).map_err(Failure::input)?;
             }
@@ -119,10 +119,16 @@ pub fn merge(args: MergeArgs) -> Result<u8, Failure> {
         if p.exists() {
             std::fs::remove_file(p).map_err(|e| Failure::input(format!("{}: {e}", p.display())))?;
         }
-        let mut c = Csv::append(p, true)?;
+        let mut c = Csv::append(p, true)?.si_columns(si_columns(&merged));
         for r in &merged {
             c.write(r).map_err(Failure::input)?;
         }
     }
     Ok(0)
+}
+
+/// The parameters with a unit in any row get an SI column.
+fn si_columns(rows: &[row::Row]) -> Vec<Option<String>> {
+    let n = rows.first().map_or(0, |r| r.params.len());
+    (0..n).map(|i| rows.iter().find_map(|r| r.params.get(i).and_then(|p| p.unit.clone()))).collect()
 }

@@ -134,6 +134,10 @@ pub struct Csv {
     name: String,
     header_done: bool,
     merged: bool,
+    /// Per parameter: the SI unit of its SI column, if it has one; without
+    /// [`Csv::si_columns`], taken from the first row written. Every line has
+    /// the header's columns.
+    si_columns: Option<Vec<Option<String>>>,
 }
 
 impl Csv {
@@ -152,6 +156,7 @@ impl Csv {
             name: path.display().to_string(),
             header_done: !empty,
             merged,
+            si_columns: None,
         })
     }
 
@@ -162,17 +167,27 @@ impl Csv {
             name: "stdout".into(),
             header_done: false,
             merged,
+            si_columns: None,
         }
+    }
+
+    /// Which parameters get an SI column: those whose values carry a unit
+    /// anywhere in the sweep (one value with a unit is enough), so every line
+    /// has the same columns whichever row comes first.
+    pub fn si_columns(mut self, si: Vec<Option<String>>) -> Csv {
+        self.si_columns = Some(si);
+        self
     }
 
     pub fn write(&mut self, row: &Row) -> Result<(), String> {
         let fail = |e: csv::Error| format!("{}: cannot write: {e}", self.name);
+        let si = self.si_columns.get_or_insert_with(|| row.params.iter().map(|p| p.unit.clone()).collect()).clone();
         if !self.header_done {
             let mut head =
                 vec!["point".to_owned(), if self.merged { "replications" } else { "replication" }.to_owned()];
-            for p in &row.params {
+            for (p, unit) in row.params.iter().zip(&si) {
                 head.push(p.key.clone());
-                if let Some(u) = &p.unit {
+                if let Some(u) = unit {
                     head.push(format!("{} ({u})", p.key));
                 }
             }
@@ -187,10 +202,10 @@ impl Csv {
             row.replications.iter().map(u64::to_string).collect::<Vec<_>>().join(" ")
         };
         let mut rec = vec![row.point.to_string(), replication];
-        for p in &row.params {
+        for (p, unit) in row.params.iter().zip(&si) {
             rec.push(p.value_text());
-            if p.unit.is_some() {
-                rec.push(p.si.map(|x| x.to_string()).unwrap_or_default());
+            if unit.is_some() {
+                rec.push(p.si.filter(|_| p.unit.is_some()).map(|x| x.to_string()).unwrap_or_default());
             }
         }
         for m in CSV_METRICS {

@@ -213,13 +213,14 @@ pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
         super::output::count(todo as u64, "run"),
         if skipped > 0 { format!(" ({skipped} already done)") } else { String::new() }
     );
+    let si: Vec<Option<String>> = plan.axes().iter().map(|a| a.values.iter().find_map(|v| v.unit.clone())).collect();
     let (sink, mut csv) = match (out_path, args.format) {
         (Some(p), _) => (Some(Sink::append(p)?), Vec::new()),
         (None, RowFormat::Json) => (Some(Sink::Stdout), Vec::new()),
-        (None, RowFormat::Csv) => (None, vec![Csv::stdout(false)]),
+        (None, RowFormat::Csv) => (None, vec![Csv::stdout(false).si_columns(si.clone())]),
     };
     if let Some(p) = &args.csv {
-        csv.push(Csv::append(p, false)?);
+        csv.push(Csv::append(p, false)?.si_columns(si));
     }
     let total = todo as u64;
     // A plot of a sweep printed to stdout needs the rows kept; with a file they are read back.

@@ -196,7 +196,9 @@ fn bus_lane(
             .filter(|&p| p != o.node)
             .filter_map(|p| latest_off[p].map(|off| (off + delay_ps(p, o.node), off, p)))
             .max();
-        if let Some((ends_here, _, p)) = seen {
+        // A hand-over only: this node did not drive after that other one turned off.
+        let own_last = latest_off[o.node];
+        if let Some((ends_here, _, p)) = seen.filter(|&(_, off, _)| own_last.is_none_or(|mine| mine < off)) {
             {
                 let gap = o.a as i128 - ends_here as i128;
                 let (from, to) = (ends_here.min(o.a), ends_here.max(o.a));

@@ -173,7 +173,7 @@ fn arbitration_gives_the_published_response_times_and_c_reaches_its_bound_exactl
 /// its longest. The bound is the supremum over messages arriving just after
 /// x's service instant (its receiver showing the poll's or the token's end,
 /// or its slot's start), with x's previous service empty.
-const FIXED_BUSES: [(&str, &str); 3] = [
+const FIXED_BUSES: [(&str, &str); 4] = [
     (
         "polling",
         r#"
@@ -215,6 +215,19 @@ guard = "500 ns"
 [[node]]
 name = "m"
 position = "0 m"
+"#,
+    ),
+    (
+        // The timekeeper itself sends, in the slot right after its beacon:
+        // its driver is still turning off from the beacon when the slot begins.
+        "tdma",
+        r#"
+[access]
+scheme = "tdma"
+timekeeper = "x"
+beacon_bits = 32
+slots = [{ node = "x", length = "300 us" }, { node = "a", length = "300 us" }, { node = "b", length = "300 us" }]
+guard = "500 ns"
 "#,
     ),
 ];
@@ -272,14 +285,22 @@ fn polling_token_and_tdma_bounds_are_reached_to_the_picosecond() {
         let out =
             halfwire(&["run", quiet.to_str().unwrap(), "--duration", "1 ms", "--events", events.to_str().unwrap()]);
         assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
-        let enable = std::fs::read_to_string(&events)
-            .unwrap()
-            .lines()
-            .map(|l| serde_json::from_str::<serde_json::Value>(l).unwrap())
-            .find(|e| e["event"] == "driver_enable" && e["node"] == "x")
-            .map(|e| e["t_ps"].as_u64().unwrap())
-            .expect("x enables");
-        let service = if scheme == "tdma" { enable } else { enable - 13_000_000 };
+        let log: Vec<serde_json::Value> =
+            std::fs::read_to_string(&events).unwrap().lines().map(|l| serde_json::from_str(l).unwrap()).collect();
+        let first = |event: &str, frame: Option<&str>| {
+            log.iter()
+                .find(|e| e["event"] == event && e["node"] == "x" && frame.is_none_or(|f| e["frame"] == f))
+                .map(|e| e["t_ps"].as_u64().unwrap())
+                .expect("x's event")
+        };
+        let service = match (scheme, access.contains("timekeeper = \"x\"")) {
+            // The timekeeper's slot starts a guard (500 ns) after its own
+            // beacon ends; its enable can come later, once the beacon's
+            // driver is off plus the gap.
+            ("tdma", true) => first("frame_end", Some("beacon")) + 500_000,
+            ("tdma", false) => first("driver_enable", None),
+            _ => first("driver_enable", None) - 13_000_000,
+        };
         // The worst arrival the engine's 1 ps clock allows: 1 ps after it.
         let traffic = format!(
             "traffic = {{ pattern = \"periodic\", period = \"3 ms\", phase = \"{} ps\", payload = \"24 B\", to = \"a\" }}",
@@ -468,7 +489,19 @@ compensate = {comp}
 [[node]]
 name = "tk"
 position = "0 m"
+{tk_traffic}
 "#,
+        // Half the time the timekeeper has traffic too, so it owns a slot
+        // right after its own beacon.
+        tk_traffic = if rng.random_bool(0.5) {
+            format!(
+                "traffic = {{ pattern = \"periodic\", period = \"{} us\", payload = \"{} B\", to = \"n0\" }}",
+                rng.random_range(300..3000),
+                rng.random_range(1..20)
+            )
+        } else {
+            String::new()
+        },
         en = rng.random_range(10..100),
         dis = rng.random_range(10..100),
         rx = rng.random_range(5..50),
@@ -480,6 +513,10 @@ position = "0 m"
     // (its second slot's start then waits for its own output to end).
     if rng.random_bool(0.5) {
         let mut slots = vec![format!("{{ node = \"n0\", length = \"{slot_us} us\" }}"); 2];
+        if s.contains("to = \"n0\"") {
+            // The busy timekeeper's slot comes first, right after its beacon.
+            slots.insert(0, format!("{{ node = \"tk\", length = \"{slot_us} us\" }}"));
+        }
         slots.extend((1..nodes).map(|n| format!("{{ node = \"n{n}\", length = \"{slot_us} us\" }}")));
         s = s.replace(&format!("slot_length = \"{slot_us} us\""), &format!("slots = [{}]", slots.join(", ")));
     }

@@ -374,3 +374,35 @@ fn counts_read_as_words() {
     let aloha = String::from_utf8_lossy(&halfwire(&["run", "scenarios/vineyard-probes.toml"]).stdout).into_owned();
     assert!(!aloha.contains("slot time"), "pure ALOHA has no slot time: {aloha}");
 }
+
+#[test]
+fn a_csv_keeps_its_columns_when_a_key_takes_values_with_and_without_units() {
+    // `line.termination` takes a word or a resistance: whichever row comes
+    // first, every line has the header's columns.
+    let dir = tempfile::tempdir().unwrap();
+    let csv = dir.path().join("t.csv");
+    let o = halfwire(&[
+        "sweep",
+        "scenarios/greenhouse-csma.toml",
+        "--vary",
+        "line.termination=both-ends,120 ohm",
+        "--duration",
+        "200 ms",
+        "--csv",
+        csv.to_str().unwrap(),
+        "--jobs",
+        "1",
+        "--quiet",
+    ]);
+    assert_eq!(o.status.code(), Some(0), "{}", String::from_utf8_lossy(&o.stderr));
+    let mut reader = csv::Reader::from_path(&csv).unwrap();
+    let head = reader.headers().unwrap().clone();
+    assert!(head.iter().any(|h| h == "line.termination (ohm)"), "{head:?}");
+    let rows: Vec<csv::StringRecord> = reader.records().map(Result::unwrap).collect();
+    assert_eq!(rows.len(), 2);
+    for r in &rows {
+        assert_eq!(r.len(), head.len(), "{r:?}");
+    }
+    let si = head.iter().position(|h| h == "line.termination (ohm)").unwrap();
+    assert_eq!((&rows[0][si], &rows[1][si]), ("", "120"));
+}
