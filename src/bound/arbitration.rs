@@ -30,19 +30,24 @@
 //! the wire and receiver delay). The latency is counted from the message's
 //! own arrival, so its release jitter enters only others' interference.
 
-use super::{finite, worst, Flow, Outcome};
+use super::{outcome, worst, Flow, Outcome};
 use crate::line::LineModel;
 use crate::spec::{ArbitrationSpec, Spec};
 
 const FORMULA: &str = "max_q (w_i(q) − q·T_i) + E_i, w_i(q) = B_i + q·C_i + Σ_hp ⌈(w_i(q) + J_k + τ)/T_k⌉·C_k";
 const SOURCE: &str = "Davis, Burns, Bril & Lukkien (2007), Real-Time Systems 35(3), response-time analysis of CAN";
 
-pub(crate) fn bounds(spec: &Spec, line: &LineModel, a: &ArbitrationSpec, flows: &[Flow]) -> Vec<Outcome> {
-    let all = |reason: String| flows.iter().map(|_| Outcome::Unbounded { reason: reason.clone() }).collect();
+/// Each flow's outcome, or one reason none is bounded.
+pub(crate) fn bounds(
+    spec: &Spec,
+    line: &LineModel,
+    a: &ArbitrationSpec,
+    flows: &[Flow],
+) -> Result<Vec<Outcome>, String> {
     let tb = u128::from(spec.frame.bit_time().0);
     let min_bit = crate::scheme::arbitration::min_bit_time(spec, a, line);
     if spec.frame.bit_time() < min_bit {
-        return all(format!(
+        return Err(format!(
             "the bit time ({}) is below the safe arbitration bound ({min_bit}): rounds can fail and frames collide",
             spec.frame.bit_time()
         ));
@@ -57,7 +62,7 @@ pub(crate) fn bounds(spec: &Spec, line: &LineModel, a: &ArbitrationSpec, flows: 
     let mut params = Vec::with_capacity(flows.len());
     for f in flows {
         let Some((t, j)) = f.interval_and_jitter() else {
-            return all(format!(
+            return Err(format!(
                 "the flow {} is Poisson without min_interval: with no minimum gap it has no worst case, and it interferes with every other",
                 f.name
             ));
@@ -88,13 +93,10 @@ pub(crate) fn bounds(spec: &Spec, line: &LineModel, a: &ArbitrationSpec, flows: 
             None => Outcome::Unbounded {
                 reason: "the busy period of this priority level does not end: the bus is loaded past 100 %".into(),
             },
-            Some(w) => match finite(w + e_i, "the bound") {
-                Ok(bound) => Outcome::Bounded { bound, formula: FORMULA, source: SOURCE },
-                Err(reason) => Outcome::Unbounded { reason },
-            },
+            Some(w) => outcome(w + e_i, FORMULA, SOURCE),
         });
     }
-    out
+    Ok(out)
 }
 
 /// One message stream: its line time C, minimum interval T and release jitter J.

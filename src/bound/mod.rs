@@ -56,22 +56,19 @@ impl FlowBound {
 pub fn bounds(spec: &Spec, line: &LineModel) -> Vec<FlowBound> {
     let flows = flows(spec);
     let common = common_reason(spec);
-    let out: Vec<Outcome> = match (&common, &spec.access) {
-        (Some(r), _) => flows.iter().map(|_| Outcome::Unbounded { reason: r.clone() }).collect(),
+    // Each analysis gives a bound or a reason per flow, or one reason for all.
+    let analysed = match (common, &spec.access) {
+        (Some(r), _) => Err(r),
         (None, crate::spec::AccessSpec::Polling(p)) => polling::bounds(spec, line, p, &flows),
         (None, crate::spec::AccessSpec::Arbitration(a)) => arbitration::bounds(spec, line, a, &flows),
         (None, crate::spec::AccessSpec::Tdma(t)) => tdma::bounds(spec, line, t, &flows),
         (None, crate::spec::AccessSpec::Token(t)) => token::bounds(spec, line, t, &flows),
-        (None, a) => flows
-            .iter()
-            .map(|_| Outcome::Unbounded {
-                reason: format!(
-                    "{} is random access: a message can lose every contention, so it has no worst case",
-                    a.name()
-                ),
-            })
-            .collect(),
+        (None, a) => {
+            Err(format!("{} is random access: a message can lose every contention, so it has no worst case", a.name()))
+        }
     };
+    let out =
+        analysed.unwrap_or_else(|reason| flows.iter().map(|_| Outcome::Unbounded { reason: reason.clone() }).collect());
     flows.iter().zip(out).map(|(f, outcome)| FlowBound { name: f.name.clone(), node: f.node, outcome }).collect()
 }
 
@@ -285,9 +282,37 @@ pub(crate) fn worst(spec: &Spec, node: NodeId) -> Worst {
 }
 
 /// A bound past the range of time is no bound.
-pub(crate) fn finite(ps: u128, what: &str) -> Result<Picos, String> {
+/// A flow's bound of `ps`, with its method; past 10^6 s (any time's
+/// bound) it is no bound at all.
+pub(crate) fn outcome(ps: u128, formula: &'static str, source: &'static str) -> Outcome {
     if ps > u128::from(crate::scenario::check::MAX_TIME.0) {
-        return Err(format!("{what} exceeds 10^6 s: the bus does not keep up"));
+        return Outcome::Unbounded { reason: "the bound exceeds 10^6 s: the bus does not keep up".into() };
     }
-    Ok(Picos(ps as u64))
+    Outcome::Bounded { bound: Picos(ps as u64), formula, source }
+}
+
+/// The frames node `j` sends in one turn (a poll, a token) when its turns
+/// are at most `window` apart: its arrivals in that window, capped by the
+/// scheme's `limit`; an error when neither bounds them (`no_limit` says
+/// which setting would).
+pub(crate) fn frames_per_turn(
+    spec: &Spec,
+    arrivals: &Arrivals,
+    j: NodeId,
+    window: u128,
+    limit: Option<u128>,
+    no_limit: &str,
+) -> Result<u128, String> {
+    if spec.nodes[j].traffic.is_empty() {
+        return Ok(0);
+    }
+    match (arrivals.within(j, window), limit) {
+        (Some(a), Some(l)) => Ok(a.min(l)),
+        (Some(a), None) => Ok(a),
+        (None, Some(l)) => Ok(l),
+        (None, None) => Err(format!(
+            "\"{}\" has a source without a bound (Poisson without min_interval) and {no_limit}",
+            spec.nodes[j].name
+        )),
+    }
 }

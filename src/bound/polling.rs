@@ -33,21 +33,17 @@
 //! (Method: the cyclic-executive argument of common practice, from the
 //! documented timing model; README, "Timing model".)
 
-use super::{finite, latency_max, least_fixed_point, unbounded_source, worst, Arrivals, Flow, Outcome};
+use super::{
+    frames_per_turn, latency_max, least_fixed_point, outcome, unbounded_source, worst, Arrivals, Flow, Outcome,
+};
 use crate::line::LineModel;
 use crate::spec::{NodeId, PollingSpec, Spec};
 
 const FORMULA: &str = "max over x, a of C − X_s(n̂) + X_s(n) − x + T_s + λ + e_s + F_s(a) + d(s,dest) + r_dest, a ≤ A_s(x), n = min(n̂, A_s(C + x) − a), C = Σ_j X_j(min(max_per_poll, A_j(C)))";
 const SOURCE: &str = "worst-case poll cycle from the documented timing model (common practice)";
 
-pub(crate) fn bounds(spec: &Spec, line: &LineModel, p: &PollingSpec, flows: &[Flow]) -> Vec<Outcome> {
-    match analyse(spec, line, p, flows) {
-        Ok(per_flow) => per_flow,
-        Err(reason) => flows.iter().map(|_| Outcome::Unbounded { reason: reason.clone() }).collect(),
-    }
-}
-
-fn analyse(spec: &Spec, line: &LineModel, p: &PollingSpec, flows: &[Flow]) -> Result<Vec<Outcome>, String> {
+/// Each flow's outcome, or one reason none is bounded.
+pub(crate) fn bounds(spec: &Spec, line: &LineModel, p: &PollingSpec, flows: &[Flow]) -> Result<Vec<Outcome>, String> {
     if p.retries > 0 || p.dead_after.is_some() || p.backup_master.is_some() {
         return Err("retries, skipped slaves and master failover are outside this analysis".into());
     }
@@ -73,20 +69,7 @@ fn analyse(spec: &Spec, line: &LineModel, p: &PollingSpec, flows: &[Flow]) -> Re
     let burst = |j: NodeId, k: u128| if k == 0 { empty } else { k * longest(j) + (k - 1) * ifg };
     let limit = if p.max_per_poll == 0 { None } else { Some(u128::from(p.max_per_poll)) };
     let arrivals = Arrivals::new(spec, flows);
-    let frames_at = |j: NodeId, c: u128| -> Result<u128, String> {
-        if spec.nodes[j].traffic.is_empty() {
-            return Ok(0);
-        }
-        match (arrivals.within(j, c), limit) {
-            (Some(a), Some(l)) => Ok(a.min(l)),
-            (Some(a), None) => Ok(a),
-            (None, Some(l)) => Ok(l),
-            (None, None) => Err(format!(
-                "\"{}\" has a source without a bound (Poisson without min_interval) and max_per_poll = 0",
-                spec.nodes[j].name
-            )),
-        }
-    };
+    let frames_at = |j: NodeId, c: u128| frames_per_turn(spec, &arrivals, j, c, limit, "max_per_poll = 0");
     // The reply must begin at the master before the timeout, at worst.
     for &j in &p.order {
         let wj = worst(spec, j);
@@ -147,10 +130,7 @@ fn analyse(spec: &Spec, line: &LineModel, p: &PollingSpec, flows: &[Flow]) -> Re
         let rest = c - exchange(s, n_max);
         let bound = super::served_latency(&arrivals, s, c, n_max, rest, |n| exchange(s, n), deliver)
             .expect("bounded: checked above");
-        out.push(match finite(bound, "the bound") {
-            Ok(bound) => Outcome::Bounded { bound, formula: FORMULA, source: SOURCE },
-            Err(reason) => Outcome::Unbounded { reason },
-        });
+        out.push(outcome(bound, FORMULA, SOURCE));
     }
     Ok(out)
 }

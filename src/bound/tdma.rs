@@ -19,7 +19,7 @@
 //! (Method: the slot schedule of the documented timing model, common
 //! practice; clock drift is outside this analysis.)
 
-use super::{finite, unbounded_source, worst, Arrivals, Flow, Outcome};
+use super::{outcome, unbounded_source, worst, Arrivals, Flow, Outcome};
 use crate::line::LineModel;
 use crate::spec::{Drift, Spec, TdmaSpec};
 
@@ -27,17 +27,13 @@ const FORMULA: &str =
     "max over x, a ≤ A_i(x) of G − x + e_i + a·F_i + (a − 1)·ifg + d(i,dest) + r_dest, G the longest gap between the node's slot starts";
 const SOURCE: &str = "the TDMA slot schedule of the documented timing model (common practice)";
 
-pub(crate) fn bounds(spec: &Spec, line: &LineModel, t: &TdmaSpec, flows: &[Flow]) -> Vec<Outcome> {
+/// Each flow's outcome, or one reason none is bounded.
+pub(crate) fn bounds(spec: &Spec, line: &LineModel, t: &TdmaSpec, flows: &[Flow]) -> Result<Vec<Outcome>, String> {
     let drift = t.drift.iter().any(|d| match *d {
         Drift::Fixed(ppm) | Drift::Within(ppm) => ppm != 0.0,
     });
     if drift {
-        return flows
-            .iter()
-            .map(|_| Outcome::Unbounded {
-                reason: "clock drift moves the slots from cycle to cycle; this analysis takes exact clocks".into(),
-            })
-            .collect();
+        return Err("clock drift moves the slots from cycle to cycle; this analysis takes exact clocks".into());
     }
     let frame = &spec.frame;
     let ifg = u128::from(frame.interframe_gap.0);
@@ -51,7 +47,7 @@ pub(crate) fn bounds(spec: &Spec, line: &LineModel, t: &TdmaSpec, flows: &[Flow]
         o += u128::from(s.length.0);
     }
     let arrivals = Arrivals::new(spec, flows);
-    flows
+    let out = flows
         .iter()
         .map(|f| {
             let i = f.node;
@@ -118,10 +114,8 @@ pub(crate) fn bounds(spec: &Spec, line: &LineModel, t: &TdmaSpec, flows: &[Flow]
             };
             // The slots are fixed: the node's own use of one does not move the next.
             let bound = super::served_latency(&arrivals, i, gap, a, gap, |_| 0, deliver).expect("bounded: checked above");
-            match finite(bound, "the bound") {
-                Ok(bound) => Outcome::Bounded { bound, formula: FORMULA, source: SOURCE },
-                Err(reason) => Outcome::Unbounded { reason },
-            }
+            outcome(bound, FORMULA, SOURCE)
         })
-        .collect()
+        .collect();
+    Ok(out)
 }

@@ -26,21 +26,17 @@
 //! (Method: the worst-case token rotation of the documented timing model,
 //! common practice.)
 
-use super::{finite, latency_max, least_fixed_point, unbounded_source, worst, Arrivals, Flow, Outcome};
+use super::{
+    frames_per_turn, latency_max, least_fixed_point, outcome, unbounded_source, worst, Arrivals, Flow, Outcome,
+};
 use crate::line::LineModel;
 use crate::spec::{NodeId, Spec, TokenSpec};
 
 const FORMULA: &str = "max over x, a of R − H_s(n̂) + H_s(n) − x + T_s + λ + e_s + a·F_s + (a − 1)·ifg + d(s,dest) + r_dest, a ≤ A_s(x), n = min(n̂, A_s(R + x) − a), R = Σ_j H_j(min(limit_j, A_j(R)))";
 const SOURCE: &str = "worst-case token rotation from the documented timing model (common practice)";
 
-pub(crate) fn bounds(spec: &Spec, line: &LineModel, t: &TokenSpec, flows: &[Flow]) -> Vec<Outcome> {
-    match analyse(spec, line, t, flows) {
-        Ok(v) => v,
-        Err(reason) => flows.iter().map(|_| Outcome::Unbounded { reason: reason.clone() }).collect(),
-    }
-}
-
-fn analyse(spec: &Spec, line: &LineModel, t: &TokenSpec, flows: &[Flow]) -> Result<Vec<Outcome>, String> {
+/// Each flow's outcome, or one reason none is bounded.
+pub(crate) fn bounds(spec: &Spec, line: &LineModel, t: &TokenSpec, flows: &[Flow]) -> Result<Vec<Outcome>, String> {
     if !t.lose_token_at.is_empty() {
         return Err("lost tokens (lose-token faults) are outside this analysis".into());
     }
@@ -73,19 +69,7 @@ fn analyse(spec: &Spec, line: &LineModel, t: &TokenSpec, flows: &[Flow]) -> Resu
         }
     };
     let arrivals = Arrivals::new(spec, flows);
-    let frames_at = |j: NodeId, r: u128| -> Result<u128, String> {
-        if spec.nodes[j].traffic.is_empty() {
-            return Ok(0);
-        }
-        match (arrivals.within(j, r), limit(j)) {
-            (Some(a), Some(l)) => Ok(a.min(l)),
-            (Some(a), None) => Ok(a),
-            (None, Some(l)) => Ok(l),
-            (None, None) => {
-                Err(format!("\"{}\" has a source without a bound and no limit per token", spec.nodes[j].name))
-            }
-        }
-    };
+    let frames_at = |j: NodeId, r: u128| frames_per_turn(spec, &arrivals, j, r, limit(j), "no limit per token");
     let turn = |k: usize, frames: u128| -> u128 {
         let j = t.order[k];
         let (wj, wn) = (worst(spec, j), worst(spec, next(k)));
@@ -149,10 +133,7 @@ fn analyse(spec: &Spec, line: &LineModel, t: &TokenSpec, flows: &[Flow]) -> Resu
         let rest = r - turn(k, n_max);
         let bound = super::served_latency(&arrivals, s, r, n_max, rest, |n| turn(k, n), deliver)
             .expect("bounded: checked above");
-        out.push(match finite(bound, "the bound") {
-            Ok(bound) => Outcome::Bounded { bound, formula: FORMULA, source: SOURCE },
-            Err(reason) => Outcome::Unbounded { reason },
-        });
+        out.push(outcome(bound, FORMULA, SOURCE));
     }
     Ok(out)
 }

@@ -242,12 +242,7 @@ impl FloatingSweep {
         true
     }
 
-    /// True when some receiver can read an undriven line as undefined.
-    pub fn has_hazards(&self) -> bool {
-        !self.hazard_ids.is_empty()
-    }
-
-    /// The receivers that can (their indices, ascending).
+    /// The receivers that can read an undriven line as undefined (their indices, ascending).
     pub fn hazard_ids(&self) -> &[usize] {
         &self.hazard_ids
     }

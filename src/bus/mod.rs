@@ -290,7 +290,7 @@ impl Bus {
         // Without hazard receivers there are no windows to bound; with a few,
         // only their bounds are formed (the sweep reads no others).
         let needs_bound =
-            self.floating.has_hazards() && self.log.get(idx + 1).is_some_and(|m| m.a < k.a + self.max_delay);
+            !self.floating.hazard_ids().is_empty() && self.log.get(idx + 1).is_some_and(|m| m.a < k.a + self.max_delay);
         let next = if !needs_bound {
             None
         } else {

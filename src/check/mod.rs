@@ -161,6 +161,48 @@ pub struct Outcome {
     pub message: Option<String>,
 }
 
+/// A scenario's expectations resolved against the metrics a report of it
+/// has (from a run of no length), ready to judge `replications` runs of it.
+/// A `confidence = true` expectation needs two or more: one run has no
+/// interval to compare.
+pub fn prepare(file: &str, spec: &crate::spec::Spec, replications: u64) -> Result<Vec<Resolved>, ScenarioError> {
+    if replications < 2 {
+        if let Some((i, e)) = spec.expect.iter().enumerate().find(|(_, e)| e.confidence) {
+            return Err(ScenarioError {
+                file: file.to_owned(),
+                line: e.metric_at.0,
+                column: e.metric_at.1,
+                key: format!("expect[{i}].confidence"),
+                message: format!(
+                    "[[expect]] {}: confidence = true compares the 95 % confidence limit, which needs \
+                     --replications N (N ≥ 2); without replications there is no interval",
+                    e.metric
+                ),
+                hint: None,
+                source_line: None,
+            });
+        }
+    }
+    let mut probe = spec.clone();
+    probe.warmup = units::Picos::ZERO;
+    probe.duration = units::Picos(1);
+    let metrics = flatten(&serde_json::to_value(crate::simulate(&probe)).expect("a report serializes"));
+    resolve(file, &spec.expect, &metrics)
+}
+
+/// Judge the flattened reports of one scenario's runs: a single run by its
+/// own figures; several by their means, with `confidence = true`
+/// expectations at the unfavourable end of the 95 % interval.
+pub fn judge(resolved: &[Resolved], runs: &[BTreeMap<String, f64>]) -> Vec<Outcome> {
+    if let [one] = runs {
+        return resolved.iter().map(|r| evaluate(r, one, None)).collect();
+    }
+    let summary = crate::stats::replication::summarize(runs);
+    let means = summary.iter().map(|(k, m)| (k.clone(), m.mean)).collect();
+    let intervals = summary.iter().map(|(k, m)| (k.clone(), (m.ci95_low, m.ci95_high))).collect();
+    resolved.iter().map(|r| evaluate(r, &means, Some(&intervals))).collect()
+}
+
 /// Evaluate against the measured metrics; with `interval`, a confidence
 /// expectation must hold at the unfavourable end of the 95 % interval.
 pub fn evaluate(

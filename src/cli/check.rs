@@ -100,14 +100,13 @@ fn walk(dir: &Path, files: &mut Vec<PathBuf>, bad: &mut Vec<String>) {
 }
 
 /// Validate one scenario and its expectations (nothing runs).
-fn prepare(path: &Path, overrides: &ScenarioOverrides) -> Result<(Spec, Vec<check::Resolved>), Failure> {
+fn prepare(
+    path: &Path,
+    overrides: &ScenarioOverrides,
+    replications: u64,
+) -> Result<(Spec, Vec<check::Resolved>), Failure> {
     let spec = overrides.load(path)?;
-    // The metric names a report of this scenario has: from a run of no length.
-    let mut probe = spec.clone();
-    probe.warmup = halfwire::units::Picos::ZERO;
-    probe.duration = halfwire::units::Picos(1);
-    let metrics = check::flatten(&serde_json::to_value(halfwire::simulate(&probe)).expect("serializable"));
-    let resolved = check::resolve(&halfwire::scenario::source_name(path), &spec.expect, &metrics)?;
+    let resolved = check::prepare(&halfwire::scenario::source_name(path), &spec, replications)?;
     Ok((spec, resolved))
 }
 
@@ -118,18 +117,9 @@ pub fn check(args: CheckArgs) -> Result<u8, Failure> {
     }
     // Validate everything before running anything, and name every bad file.
     let mut work = Vec::new();
-    let replicated = args.replications.is_some_and(|n| n >= 2);
     for f in &files {
-        match prepare(f, &args.overrides) {
-            Ok((spec, resolved)) => {
-                if !replicated {
-                    if let Some(e) = spec.expect.iter().find(|e| e.confidence) {
-                        bad.push(confidence_without_replications(&halfwire::scenario::source_name(f), e));
-                        continue;
-                    }
-                }
-                work.push((f.clone(), spec, resolved))
-            }
+        match prepare(f, &args.overrides, args.replications.unwrap_or(1)) {
+            Ok((spec, resolved)) => work.push((f.clone(), spec, resolved)),
             Err(e) => bad.push(e.message),
         }
     }
@@ -184,24 +174,12 @@ fn run_all(
                 let i = next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
                 let Some((file, spec, resolved)) = work.get(i) else { break };
                 let started = std::time::Instant::now();
-                let outcomes = match replications {
-                    None => {
-                        let report = serde_json::to_value(halfwire::simulate(spec)).expect("serializable");
-                        let metrics = check::flatten(&report);
-                        resolved.iter().map(|r| check::evaluate(r, &metrics, None)).collect()
-                    }
-                    Some(n) => {
-                        // Replications run one after another here: the scenarios already share the cores.
-                        let flat: Vec<_> = halfwire::replicate(spec, n, 1)
-                            .iter()
-                            .map(|r| check::flatten(&serde_json::to_value(r).expect("serializable")))
-                            .collect();
-                        let summary = halfwire::stats::replication::summarize(&flat);
-                        let means = summary.iter().map(|(k, m)| (k.clone(), m.mean)).collect();
-                        let intervals = summary.iter().map(|(k, m)| (k.clone(), (m.ci95_low, m.ci95_high))).collect();
-                        resolved.iter().map(|r| check::evaluate(r, &means, Some(&intervals))).collect()
-                    }
-                };
+                // Replications run one after another here: the scenarios already share the cores.
+                let runs: Vec<_> = halfwire::replicate(spec, replications.unwrap_or(1), 1)
+                    .iter()
+                    .map(|r| check::flatten(&serde_json::to_value(r).expect("serializable")))
+                    .collect();
+                let outcomes = check::judge(resolved, &runs);
                 *slots[i].lock().expect("no poisoned slot") = Some(ScenarioResult {
                     file: file.display().to_string(),
                     name: spec.name.clone(),
@@ -241,8 +219,8 @@ fn render(results: &[ScenarioResult], total: usize, failed: usize) -> String {
     let _ = writeln!(
         o,
         "{}, {}: {} passed, {} failed",
-        super::output::count(results.len() as u64, "scenario"),
-        super::output::count(total as u64, "expectation"),
+        halfwire::units::count(results.len() as u64, "scenario"),
+        halfwire::units::count(total as u64, "expectation"),
         total - failed,
         failed
     );
@@ -300,13 +278,4 @@ fn junit(results: &[ScenarioResult]) -> String {
     let mut s = String::from_utf8(w.into_inner()).expect("XML is UTF-8");
     s.push('\n');
     s
-}
-
-/// `confidence = true` compares a confidence limit, which needs replications.
-pub fn confidence_without_replications(file: &str, e: &halfwire::spec::Expectation) -> String {
-    format!(
-        "{file}:{}:{}: [[expect]] {}: confidence = true compares the 95 % confidence limit, which needs \
-         --replications N (N ≥ 2); without replications there is no interval",
-        e.metric_at.0, e.metric_at.1, e.metric
-    )
 }

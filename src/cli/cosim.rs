@@ -113,7 +113,7 @@ async fn session(
     let local = listener.local_addr().map_err(|e| Failure::internal(e.to_string()))?;
     say!(
         "halfwire cosim: listening on {local}; waiting for {}",
-        super::output::count(external.len() as u64, "external node")
+        halfwire::units::count(external.len() as u64, "external node")
     );
     let interrupt = Arc::new(AtomicBool::new(false));
     let flag = interrupt.clone();
@@ -284,7 +284,7 @@ fn finish(
     if faults + early_count > 0 {
         eprintln!(
             "halfwire cosim: {}; the faulty nodes went quiet (--on-client-fault silence)",
-            super::output::count((faults + early_count) as u64, "client fault")
+            halfwire::units::count((faults + early_count) as u64, "client fault")
         );
     }
     Ok(0)

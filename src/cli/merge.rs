@@ -8,7 +8,7 @@ use halfwire::sweep::row;
 
 use super::output::say;
 use super::output::{check_writable, print_stdout, AtomicFile};
-use super::rows::{self, Csv, RowFormat};
+use super::rows::{self, CsvLayout, RowFormat};
 use super::Failure;
 
 #[derive(Debug, Args)]
@@ -82,30 +82,16 @@ pub fn merge(args: MergeArgs) -> Result<u8, Failure> {
         }
         say!(
             "halfwire merge: {} of sweep {} from {}",
-            super::output::count(merged.len() as u64, "point"),
+            halfwire::units::count(merged.len() as u64, "point"),
             r.sweep,
-            super::output::count(args.files.len() as u64, "file")
+            halfwire::units::count(args.files.len() as u64, "file")
         );
     }
-    let mut text = String::new();
-    match args.format {
-        RowFormat::Json => {
-            for r in &merged {
-                text.push_str(&serde_json::to_string(r).expect("a row serializes"));
-                text.push('\n');
-            }
-        }
-        RowFormat::Csv => {
-            let t = tempfile::NamedTempFile::new().map_err(|e| Failure::internal(format!("a temporary file: {e}")))?;
-            let mut c = Csv::append(t.path(), true)?.si_columns(si_columns(&merged));
-            for r in &merged {
-                c.write(r).map_err(Failure::input)?;
-            }
-            drop(c);
-            text =
-                std::fs::read_to_string(t.path()).map_err(|e| Failure::internal(format!("a temporary file: {e}")))?;
-        }
-    }
+    let layout = CsvLayout::new(true, Some(si_columns(&merged)));
+    let text = match args.format {
+        RowFormat::Json => merged.iter().map(|r| serde_json::to_string(r).expect("a row serializes") + "\n").collect(),
+        RowFormat::Csv => layout.clone().text(&merged),
+    };
     match &args.out {
         Some(p) => {
             let mut f = AtomicFile::create(p)?;
@@ -116,13 +102,7 @@ pub fn merge(args: MergeArgs) -> Result<u8, Failure> {
     }
     args.plot.draw(&merged)?;
     if let Some(p) = &args.csv {
-        if p.exists() {
-            std::fs::remove_file(p).map_err(|e| Failure::input(format!("{}: {e}", p.display())))?;
-        }
-        let mut c = Csv::append(p, true)?.si_columns(si_columns(&merged));
-        for r in &merged {
-            c.write(r).map_err(Failure::input)?;
-        }
+        super::waves::write_text(p, &layout.text(&merged))?;
     }
     Ok(0)
 }

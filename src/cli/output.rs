@@ -111,5 +111,3 @@ pub fn jobs(n: Option<usize>) -> usize {
         Some(n) => n,
     }
 }
-
-pub use halfwire::units::count;

@@ -128,23 +128,85 @@ pub enum RowFormat {
     Csv,
 }
 
-/// Rows as CSV: one header, then one line per row.
+/// The columns of the rows' CSV: `point`, `replication` (a sweep's
+/// index) or `replications` (how many `merge` pooled), each parameter as
+/// written and, for a key with a unit, in SI units, the headline metrics
+/// and the failed expectations.
+#[derive(Clone, Debug)]
+pub struct CsvLayout {
+    merged: bool,
+    /// Per parameter: the unit of its SI column, if it has one. Fixed by
+    /// [`CsvLayout::new`], or else by the first row, so every line has the
+    /// header's columns.
+    si: Option<Vec<Option<String>>>,
+}
+
+impl CsvLayout {
+    /// `si`: per swept key, its unit when any of its values has one.
+    pub fn new(merged: bool, si: Option<Vec<Option<String>>>) -> CsvLayout {
+        CsvLayout { merged, si }
+    }
+
+    fn si(&mut self, row: &Row) -> &[Option<String>] {
+        self.si.get_or_insert_with(|| row.params.iter().map(|p| p.unit.clone()).collect())
+    }
+
+    pub fn header(&mut self, row: &Row) -> Vec<String> {
+        let merged = self.merged;
+        let mut head = vec!["point".to_owned(), if merged { "replications" } else { "replication" }.to_owned()];
+        for (p, unit) in row.params.iter().zip(self.si(row)) {
+            head.push(p.key.clone());
+            if let Some(u) = unit {
+                head.push(format!("{} ({u})", p.key));
+            }
+        }
+        head.extend(CSV_METRICS.iter().map(|m| metric_header(m)));
+        head.push("expectations_failed".into());
+        head
+    }
+
+    pub fn record(&mut self, row: &Row) -> Vec<String> {
+        let replication = if self.merged {
+            row.replications.len().to_string()
+        } else {
+            row.replications.iter().map(u64::to_string).collect::<Vec<_>>().join(" ")
+        };
+        let mut rec = vec![row.point.to_string(), replication];
+        for (p, unit) in row.params.iter().zip(self.si(row)) {
+            rec.push(p.value_text());
+            if unit.is_some() {
+                rec.push(p.si.filter(|_| p.unit.is_some()).map(|x| x.to_string()).unwrap_or_default());
+            }
+        }
+        rec.extend(CSV_METRICS.iter().map(|m| row.metrics.get(*m).map(|x| x.to_string()).unwrap_or_default()));
+        rec.push(row.expectations.failed.join(" "));
+        rec
+    }
+
+    /// Whole rows as CSV text, with the header.
+    pub fn text(mut self, rows: &[Row]) -> String {
+        let mut w = csv::Writer::from_writer(Vec::new());
+        if let Some(first) = rows.first() {
+            w.write_record(self.header(first)).expect("writing into memory");
+        }
+        for r in rows {
+            w.write_record(self.record(r)).expect("writing into memory");
+        }
+        String::from_utf8(w.into_inner().expect("writing into memory")).expect("CSV of UTF-8 fields")
+    }
+}
+
+/// Rows as CSV appended to a file or stdout: one header, then one line per row.
 pub struct Csv {
     writer: csv::Writer<Box<dyn Write>>,
     name: String,
     header_done: bool,
-    merged: bool,
-    /// Per parameter: the SI unit of its SI column, if it has one; without
-    /// [`Csv::si_columns`], taken from the first row written. Every line has
-    /// the header's columns.
-    si_columns: Option<Vec<Option<String>>>,
+    layout: CsvLayout,
 }
 
 impl Csv {
-    /// Append to a file (no header if it already holds lines). `merged`:
-    /// rows of `merge`, which count their replications, rather than a
-    /// sweep's rows of one replication each.
-    pub fn append(path: &Path, merged: bool) -> Result<Csv, Failure> {
+    /// Append to a file (no header if it already holds lines).
+    pub fn append(path: &Path, layout: CsvLayout) -> Result<Csv, Failure> {
         let mut f = OpenOptions::new()
             .create(true)
             .append(true)
@@ -155,64 +217,27 @@ impl Csv {
             writer: csv::Writer::from_writer(Box::new(f)),
             name: path.display().to_string(),
             header_done: !empty,
-            merged,
-            si_columns: None,
+            layout,
         })
     }
 
     /// To stdout.
-    pub fn stdout(merged: bool) -> Csv {
+    pub fn stdout(layout: CsvLayout) -> Csv {
         Csv {
             writer: csv::Writer::from_writer(Box::new(std::io::stdout())),
             name: "stdout".into(),
             header_done: false,
-            merged,
-            si_columns: None,
+            layout,
         }
-    }
-
-    /// Which parameters get an SI column: those whose values carry a unit
-    /// anywhere in the sweep (one value with a unit is enough), so every line
-    /// has the same columns whichever row comes first.
-    pub fn si_columns(mut self, si: Vec<Option<String>>) -> Csv {
-        self.si_columns = Some(si);
-        self
     }
 
     pub fn write(&mut self, row: &Row) -> Result<(), String> {
         let fail = |e: csv::Error| format!("{}: cannot write: {e}", self.name);
-        let si = self.si_columns.get_or_insert_with(|| row.params.iter().map(|p| p.unit.clone()).collect()).clone();
         if !self.header_done {
-            let mut head =
-                vec!["point".to_owned(), if self.merged { "replications" } else { "replication" }.to_owned()];
-            for (p, unit) in row.params.iter().zip(&si) {
-                head.push(p.key.clone());
-                if let Some(u) = unit {
-                    head.push(format!("{} ({u})", p.key));
-                }
-            }
-            head.extend(CSV_METRICS.iter().map(|m| metric_header(m)));
-            head.push("expectations_failed".into());
-            self.writer.write_record(&head).map_err(fail)?;
+            self.writer.write_record(self.layout.header(row)).map_err(fail)?;
             self.header_done = true;
         }
-        let replication = if self.merged {
-            row.replications.len().to_string()
-        } else {
-            row.replications.iter().map(u64::to_string).collect::<Vec<_>>().join(" ")
-        };
-        let mut rec = vec![row.point.to_string(), replication];
-        for (p, unit) in row.params.iter().zip(&si) {
-            rec.push(p.value_text());
-            if unit.is_some() {
-                rec.push(p.si.filter(|_| p.unit.is_some()).map(|x| x.to_string()).unwrap_or_default());
-            }
-        }
-        for m in CSV_METRICS {
-            rec.push(row.metrics.get(m).map(|x| x.to_string()).unwrap_or_default());
-        }
-        rec.push(row.expectations.failed.join(" "));
-        self.writer.write_record(&rec).map_err(fail)?;
+        self.writer.write_record(self.layout.record(row)).map_err(fail)?;
         match self.writer.flush() {
             Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => Ok(()),
             r => r.map_err(|e| format!("{}: cannot write: {e}", self.name)),

@@ -200,17 +200,8 @@ pub fn size(args: SizeArgs) -> Result<u8, Failure> {
         if spec.expect.is_empty() {
             return Err(Failure::input(format!("{file}: no [[expect]] entries: size needs requirements to meet")));
         }
-        if reps < 2 {
-            if let Some(e) = spec.expect.iter().find(|e| e.confidence) {
-                return Err(Failure::input(super::check::confidence_without_replications(&file, e)));
-            }
-        }
         if resolved.is_none() {
-            let mut probe = spec.clone();
-            probe.warmup = halfwire::units::Picos::ZERO;
-            probe.duration = halfwire::units::Picos(1);
-            let metrics = check::flatten(&serde_json::to_value(halfwire::simulate(&probe)).expect("serializable"));
-            resolved = Some(check::resolve(&file, &spec.expect, &metrics)?);
+            resolved = Some(check::prepare(&file, &spec, reps)?);
         }
         let rs = resolved.as_ref().expect("resolved above");
         let mut collect =
@@ -229,14 +220,7 @@ pub fn size(args: SizeArgs) -> Result<u8, Failure> {
         }
         collect.rows.sort_by_key(|r| r.replications[0]);
         let flat: Vec<_> = collect.rows.iter().map(|r| check::flatten(&r.report)).collect();
-        let outcomes: Vec<Outcome> = if reps == 1 {
-            rs.iter().map(|r| check::evaluate(r, &flat[0], None)).collect()
-        } else {
-            let summary = halfwire::stats::replication::summarize(&flat);
-            let means = summary.iter().map(|(k, m)| (k.clone(), m.mean)).collect();
-            let intervals = summary.iter().map(|(k, m)| (k.clone(), (m.ci95_low, m.ci95_high))).collect();
-            rs.iter().map(|r| check::evaluate(r, &means, Some(&intervals))).collect()
-        };
+        let outcomes: Vec<Outcome> = check::judge(rs, &flat);
         let pass = outcomes.iter().all(|o| o.pass);
         points.push(Point { value: range.show(x), x, pass, outcomes });
         Ok(pass)
@@ -326,7 +310,7 @@ pub fn size(args: SizeArgs) -> Result<u8, Failure> {
                         "  answer: {} = {}  ({} run)",
                         args.key,
                         range.show(x),
-                        super::output::count(points.len() as u64, "point")
+                        halfwire::units::count(points.len() as u64, "point")
                     );
                 }
                 None => {

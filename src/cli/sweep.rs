@@ -18,7 +18,7 @@ use halfwire::units;
 use super::output::check_writable;
 use super::output::say;
 use super::overrides::ScenarioOverrides;
-use super::rows::{self, Csv, RowFormat, Sink};
+use super::rows::{self, Csv, CsvLayout, RowFormat, Sink};
 use super::Failure;
 
 #[derive(Debug, Args)]
@@ -208,19 +208,20 @@ pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
     say!(
         "halfwire sweep {}: {} × {}; {} in this share{}; {jobs} at a time",
         plan.id(),
-        super::output::count(plan.points(), "point"),
-        super::output::count(plan.replications(), "replication"),
-        super::output::count(todo as u64, "run"),
+        halfwire::units::count(plan.points(), "point"),
+        halfwire::units::count(plan.replications(), "replication"),
+        halfwire::units::count(todo as u64, "run"),
         if skipped > 0 { format!(" ({skipped} already done)") } else { String::new() }
     );
-    let si: Vec<Option<String>> = plan.axes().iter().map(|a| a.values.iter().find_map(|v| v.unit.clone())).collect();
+    let si = plan.axes().iter().map(|a| a.values.iter().find_map(|v| v.unit.clone())).collect();
+    let layout = CsvLayout::new(false, Some(si));
     let (sink, mut csv) = match (out_path, args.format) {
         (Some(p), _) => (Some(Sink::append(p)?), Vec::new()),
         (None, RowFormat::Json) => (Some(Sink::Stdout), Vec::new()),
-        (None, RowFormat::Csv) => (None, vec![Csv::stdout(false).si_columns(si.clone())]),
+        (None, RowFormat::Csv) => (None, vec![Csv::stdout(layout.clone())]),
     };
     if let Some(p) = &args.csv {
-        csv.push(Csv::append(p, false)?.si_columns(si));
+        csv.push(Csv::append(p, layout)?);
     }
     let total = todo as u64;
     // A plot of a sweep printed to stdout needs the rows kept; with a file they are read back.
@@ -238,13 +239,13 @@ pub fn sweep(args: SweepArgs) -> Result<u8, Failure> {
     if pool.control.stopped() {
         eprintln!(
             "halfwire sweep: stopped after {} ({} abandoned, {} not started); continue with --resume",
-            super::output::count(outcome.finished, "run"),
+            halfwire::units::count(outcome.finished, "run"),
             outcome.abandoned,
             outcome.not_started
         );
         return Ok(super::status::INTERRUPTED);
     }
-    say!("halfwire sweep: {} in {}", super::output::count(outcome.finished, "run"), units::format_seconds(wall));
+    say!("halfwire sweep: {} in {}", halfwire::units::count(outcome.finished, "run"), units::format_seconds(wall));
     if args.plot.plot.is_some() {
         let rows = match (out_path, observer.kept.take()) {
             (Some(p), _) => rows::read(p)?.rows,

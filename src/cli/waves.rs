@@ -105,17 +105,21 @@ pub fn write_text(path: &std::path::Path, text: &str) -> Result<(), Failure> {
 /// `--plot-latency`: how often each node's messages are slower than each
 /// latency, with the scenario's latency requirements.
 pub fn plot_latency(report: &Report, spec: &Spec, path: &std::path::Path) -> Result<(), Failure> {
-    use halfwire::plot::latency::Requirement;
-    let mut requirements = Vec::new();
-    for e in &spec.expect {
-        let limit = match &e.value {
-            halfwire::spec::ExpectValue::Text(t) => halfwire::units::parse_time(t).ok().map(|p| p.as_secs_f64()),
-            halfwire::spec::ExpectValue::Number(x) => Some(*x),
-        };
-        if let Some(r) = limit.and_then(|l| Requirement::from_expectation(&e.metric, e.op.symbol(), l)) {
-            requirements.push(r);
-        }
-    }
+    use halfwire::check;
+    // The expectations' values in SI units, as `check` reads them; one that
+    // does not resolve against this report is simply not drawn.
+    let metrics = check::flatten(&serde_json::to_value(report).expect("a report serializes"));
+    let requirements: Vec<_> = check::resolve(&spec.name, &spec.expect, &metrics)
+        .unwrap_or_default()
+        .iter()
+        .filter_map(|r| {
+            halfwire::plot::latency::Requirement::from_expectation(
+                &r.expectation.metric,
+                r.expectation.op.symbol(),
+                r.required,
+            )
+        })
+        .collect();
     let chart = halfwire::plot::latency::chart(report, &requirements).map_err(failure)?.ok_or_else(|| Failure {
         code: super::status::NOTHING_TO_PLOT,
         message: format!(

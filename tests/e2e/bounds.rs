@@ -313,9 +313,20 @@ fn polling_token_and_tdma_bounds_are_reached_to_the_picosecond() {
     }
 }
 
-fn polling_set(rng: &mut ChaCha8Rng, seed: u64) -> String {
-    let slaves = rng.random_range(2..7);
-    let mpp = rng.random_range(0..3);
+/// A random 30 m TIA-485 bus at 1 Mbit/s with `access` (given the drawn
+/// turnaround and latency bound, in µs), then `count` nodes named
+/// `prefix0…` from `first` m, 5 m apart, each with one random periodic flow.
+fn random_tia485_bus(
+    rng: &mut ChaCha8Rng,
+    seed: u64,
+    count: usize,
+    prefix: &str,
+    first: usize,
+    access: impl FnOnce(u32, u32) -> String,
+) -> String {
+    let (en, dis, rx, ifg) =
+        (rng.random_range(50..500), rng.random_range(50..500), rng.random_range(20..200), rng.random_range(0..20));
+    let (turn, lat) = (rng.random_range(2..30), rng.random_range(0..40));
     let mut s = format!(
         r#"
 seed = {seed}
@@ -334,7 +345,28 @@ load = "30 pF"
 bit_rate = "1 Mbit/s"
 overhead_bits = 32
 interframe_gap = "{ifg} us"
-[access]
+{}"#,
+        access(turn, lat)
+    );
+    for n in 0..count {
+        let period_ms = rng.random_range(2..20);
+        let jitter_us = rng.random_range(0..(period_ms * 500));
+        let phase_us = rng.random_range(0..(period_ms * 1000));
+        let bytes = rng.random_range(1..40);
+        s += &format!(
+            "[[node]]\nname = \"{prefix}{n}\"\nposition = \"{} m\"\ntraffic = {{ pattern = \"periodic\", period = \"{period_ms} ms\", phase = \"{phase_us} us\", jitter = \"{jitter_us} us\", payload = \"{bytes} B\" }}\n",
+            n * 5 + first
+        );
+    }
+    s
+}
+
+fn polling_set(rng: &mut ChaCha8Rng, seed: u64) -> String {
+    let slaves = rng.random_range(2..7);
+    let mpp = rng.random_range(0..3);
+    random_tia485_bus(rng, seed, slaves, "s", 2, |turn, lat| {
+        format!(
+            r#"[access]
 scheme = "polling"
 master = "m"
 max_per_poll = {mpp}
@@ -346,25 +378,9 @@ reply_timeout = "200 us"
 [[node]]
 name = "m"
 position = "0 m"
-"#,
-        en = rng.random_range(50..500),
-        dis = rng.random_range(50..500),
-        rx = rng.random_range(20..200),
-        ifg = rng.random_range(0..20),
-        turn = rng.random_range(2..30),
-        lat = rng.random_range(0..40),
-    );
-    for n in 0..slaves {
-        let period_ms = rng.random_range(2..20);
-        let jitter_us = rng.random_range(0..(period_ms * 500));
-        let phase_us = rng.random_range(0..(period_ms * 1000));
-        let bytes = rng.random_range(1..40);
-        s += &format!(
-            "[[node]]\nname = \"s{n}\"\nposition = \"{} m\"\ntraffic = {{ pattern = \"periodic\", period = \"{period_ms} ms\", phase = \"{phase_us} us\", jitter = \"{jitter_us} us\", payload = \"{bytes} B\" }}\n",
-            n * 5 + 2
-        );
-    }
-    s
+"#
+        )
+    })
 }
 
 #[test]
@@ -545,25 +561,9 @@ fn token_set(rng: &mut ChaCha8Rng, seed: u64) -> String {
     let per = rng.random_range(0..3);
     let hold =
         if rng.random_bool(0.5) { format!("token_hold = \"{} us\"", rng.random_range(50..400)) } else { String::new() };
-    let mut s = format!(
-        r#"
-seed = {seed}
-duration = "200 ms"
-[line]
-length = "30 m"
-impedance = "120 ohm"
-velocity_factor = 0.66
-[transceiver]
-family = "tia485"
-enable_time = "{en} ns"
-disable_time = "{dis} ns"
-receiver_delay = "{rx} ns"
-load = "30 pF"
-[frame]
-bit_rate = "1 Mbit/s"
-overhead_bits = 32
-interframe_gap = "{ifg} us"
-[access]
+    random_tia485_bus(rng, seed, nodes, "t", 1, |turn, lat| {
+        format!(
+            r#"[access]
 scheme = "token"
 token_bits = 24
 max_per_token = {per}
@@ -571,25 +571,9 @@ max_per_token = {per}
 turnaround = "{turn} us"
 response_latency = {{ min = "0 us", max = "{lat} us" }}
 token_timeout = "5 ms"
-"#,
-        en = rng.random_range(50..500),
-        dis = rng.random_range(50..500),
-        rx = rng.random_range(20..200),
-        ifg = rng.random_range(0..20),
-        turn = rng.random_range(2..30),
-        lat = rng.random_range(0..40),
-    );
-    for n in 0..nodes {
-        let period_ms = rng.random_range(2..20);
-        let jitter_us = rng.random_range(0..(period_ms * 500));
-        let phase_us = rng.random_range(0..(period_ms * 1000));
-        let bytes = rng.random_range(1..40);
-        s += &format!(
-            "[[node]]\nname = \"t{n}\"\nposition = \"{} m\"\ntraffic = {{ pattern = \"periodic\", period = \"{period_ms} ms\", phase = \"{phase_us} us\", jitter = \"{jitter_us} us\", payload = \"{bytes} B\" }}\n",
-            n * 5 + 1
-        );
-    }
-    s
+"#
+        )
+    })
 }
 
 #[test]

@@ -11,6 +11,20 @@
 use crate::common::{budget_toml, halfwire, run_toml};
 use serde_json::Value;
 
+/// The transceivers and framing of both test buses: TIA-485, enable and
+/// disable 100 ns, receiver delay 50 ns, 1 Mbit/s NRZ, 32 overhead bits.
+const TIA485_1M: &str = r#"[transceiver]
+family = "tia485"
+enable_time = "100 ns"
+disable_time = "100 ns"
+receiver_delay = "50 ns"
+load = "20 pF"
+
+[frame]
+bit_rate = "1 Mbit/s"
+overhead_bits = 32
+"#;
+
 /// A polling bus of `slaves` slaves, every node at 0 m: enable and disable
 /// 100 ns, receiver delay 50 ns, 1 Mbit/s NRZ, 16-bit polls and empty
 /// replies, 32 overhead bits, turnarounds 5 µs, reply timeout 20 µs.
@@ -27,17 +41,7 @@ impedance = "120 ohm"
 velocity_factor = 0.7
 {line_extra}
 
-[transceiver]
-family = "tia485"
-enable_time = "100 ns"
-disable_time = "100 ns"
-receiver_delay = "50 ns"
-load = "20 pF"
-
-[frame]
-bit_rate = "1 Mbit/s"
-overhead_bits = 32
-
+{TIA485_1M}
 [access]
 scheme = "polling"
 master = "m"
@@ -332,17 +336,7 @@ length = "10 m"
 impedance = "120 ohm"
 velocity_factor = 0.7
 
-[transceiver]
-family = "tia485"
-enable_time = "100 ns"
-disable_time = "100 ns"
-receiver_delay = "50 ns"
-load = "20 pF"
-
-[frame]
-bit_rate = "1 Mbit/s"
-overhead_bits = 32
-
+{TIA485_1M}
 [access]
 scheme = "token"
 order = ["n01", "n02", "n03", "n04"]

@@ -18,8 +18,6 @@ pub const KEYS: &[&str] = &[
     "takeover_after",
 ];
 
-const FAULTS: &[&str] = &["node-down", "node-up"];
-
 /// Most retries of one exchange, skipped-slave thresholds and probe periods.
 pub const MAX_RETRIES: u32 = 1000;
 pub const MAX_CYCLES: u32 = 1_000_000;
@@ -40,7 +38,7 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
     let timeout_raw = c.required(&a.reply_timeout, "reply_timeout", "reply_timeout = \"2 us\"")?;
     let max_per_poll = a.max_per_poll.as_ref().map(|m| *m.get_ref()).unwrap_or(1);
     c.check_burst(max_per_poll, None, "max_per_poll")?;
-    let faults = c.faults(FAULTS)?;
+    let faults = c.faults(super::NODE_FAULTS)?;
     let backup_master = match &a.backup_master {
         None => None,
         Some(b) => {

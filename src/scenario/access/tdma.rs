@@ -17,8 +17,6 @@ pub const KEYS: &[&str] = &[
     "faults",
 ];
 
-const FAULTS: &[&str] = &["node-down", "node-up"];
-
 /// Most beacon periods a node may run on its own clock.
 pub const MAX_HOLDOVER: u32 = 1_000_000;
 
@@ -151,7 +149,7 @@ pub fn validate(c: &Access) -> R<AccessSpec> {
             ),
         ));
     }
-    let faults = c.faults(FAULTS)?;
+    let faults = c.faults(super::NODE_FAULTS)?;
     Ok(AccessSpec::Tdma(TdmaSpec {
         holdover: c.count(&a.holdover, "holdover", 0, MAX_HOLDOVER)?.unwrap_or(0),
         node_faults: faults.nodes,
