@@ -104,7 +104,7 @@ impl FloatingSweep {
     /// Feed an occupancy as seen at receiver `node` only: it arrives at `from`
     /// and leaves at `to`; `next_arrival` bounds the window from above.
     pub fn feed(&mut self, node: usize, from: u64, to: u64, next_arrival: u64) {
-        self.materialize(|_| unreachable!("no dominant state without delays"));
+        self.materialize(|_, _| unreachable!("no dominant state without delays"));
         let until = self.driven_until[node];
         if from > until {
             self.close(until, from.min(next_arrival).min(until.saturating_add(self.settle[node])));
@@ -118,22 +118,21 @@ impl FloatingSweep {
     /// `delay(x, i)` is the wire delay from node x to node i; `next[i]`, when
     /// given, bounds each window from above (see the module docs).
     #[inline]
-    pub fn feed_occupancy<'a, D: Fn(usize) -> &'a [u64]>(
+    pub fn feed_occupancy<D: Fn(usize, usize) -> u64>(
         &mut self,
         k: usize,
         a: u64,
         b: u64,
-        rows: D,
+        delay: D,
         next: Option<&[u64]>,
     ) {
         if self.hazard_ids.is_empty() {
             return;
         }
-        if self.fast_path && self.whole_gaps && next.is_none() && self.try_fast(k, a, b, &rows) {
+        if self.fast_path && self.whole_gaps && next.is_none() && self.try_fast(k, a, b, &delay) {
             return;
         }
-        self.materialize(&rows);
-        let delays = rows(k);
+        self.materialize(&delay);
         let (w0, w1) = self.window;
         let (mut windows, mut total, mut longest) = (0u64, 0u128, self.totals.longest_ps);
         let mut dominates = true;
@@ -141,7 +140,7 @@ impl FloatingSweep {
         // window is empty, because then to ≤ from ≤ until ≤ max(until, w0).
         let settle = &self.settle;
         let mut one = |i: usize, until: &mut u64| {
-            let d = delays[i];
+            let d = delay(k, i);
             let from = a + d;
             let to = match next {
                 None => from,
@@ -174,7 +173,7 @@ impl FloatingSweep {
 
     /// The closed-form hand-over from the dominant driver p to k. Returns
     /// false (and changes nothing) when its preconditions do not hold.
-    fn try_fast<'a, D: Fn(usize) -> &'a [u64]>(&mut self, k: usize, a: u64, b: u64, rows: &D) -> bool {
+    fn try_fast<D: Fn(usize, usize) -> u64>(&mut self, k: usize, a: u64, b: u64, delay: &D) -> bool {
         let Some((p, bp)) = self.dominant else {
             return false;
         };
@@ -188,11 +187,11 @@ impl FloatingSweep {
         }
         let key = (p as u32) << 16 | k as u32;
         if !self.profiles.contains_key(&key) {
-            let (rp, rk) = (rows(p), rows(k));
             let (mut umin, mut umax, mut sum, mut max_dk) = (i64::MAX, i64::MIN, 0i64, 0u64);
             for &i in &self.hazard_ids {
-                let u = rk[i] as i64 - rp[i] as i64;
-                (umin, umax, sum, max_dk) = (umin.min(u), umax.max(u), sum + u, max_dk.max(rk[i]));
+                let dk = delay(k, i);
+                let u = dk as i64 - delay(p, i) as i64;
+                (umin, umax, sum, max_dk) = (umin.min(u), umax.max(u), sum + u, max_dk.max(dk));
             }
             self.profiles.insert(key, PairProfile { umin, umax, sum, max_dk, sorted: None });
         }
@@ -218,8 +217,8 @@ impl FloatingSweep {
                 if self.profile_values + n > PROFILE_BUDGET_VALUES {
                     return false;
                 }
-                let (rp, rk) = (rows(p), rows(k));
-                let mut sorted: Vec<i64> = self.hazard_ids.iter().map(|&i| rk[i] as i64 - rp[i] as i64).collect();
+                let mut sorted: Vec<i64> =
+                    self.hazard_ids.iter().map(|&i| delay(k, i) as i64 - delay(p, i) as i64).collect();
                 sorted.sort_unstable();
                 let mut suffix = vec![0i64; sorted.len() + 1];
                 for j in (0..sorted.len()).rev() {
@@ -248,11 +247,10 @@ impl FloatingSweep {
     }
 
     /// Write the implicit dominated state into the per-receiver array.
-    fn materialize<'a, D: Fn(usize) -> &'a [u64]>(&mut self, rows: D) {
+    fn materialize<D: Fn(usize, usize) -> u64>(&mut self, delay: D) {
         if let Some((p, bp)) = self.dominant.take() {
-            let r = rows(p);
             for &i in &self.hazard_ids {
-                self.driven_until[i] = bp + r[i];
+                self.driven_until[i] = bp + delay(p, i);
             }
         }
     }
@@ -263,8 +261,8 @@ impl FloatingSweep {
     }
 
     /// Close every receiver's open window at the end of the run.
-    pub fn finish<'a, D: Fn(usize) -> &'a [u64]>(&mut self, end: u64, rows: D) {
-        self.materialize(rows);
+    pub fn finish<D: Fn(usize, usize) -> u64>(&mut self, end: u64, delay: D) {
+        self.materialize(delay);
         for node in 0..self.settle.len() {
             if self.settle[node] > 0 && self.driven_until[node] < end {
                 let from = self.driven_until[node];
@@ -299,7 +297,7 @@ mod tests {
         f.feed(0, 100, 300, u64::MAX);
         f.feed(0, 350, 600, u64::MAX);
         f.feed(0, 500, 900, u64::MAX); // overlaps: no window
-        f.finish(1000, |_| &[]);
+        f.finish(1000, |_, _| 0);
         // 0..100, 300..350, 900..1000
         assert_eq!(f.totals, FloatingTotals { windows: 3, total_ps: 250, longest_ps: 100 });
     }
@@ -312,7 +310,7 @@ mod tests {
         f.feed(0, 100, 300, u64::MAX);
         f.feed(0, 350, 600, u64::MAX);
         f.feed(0, 500, 900, u64::MAX);
-        f.finish(1000, |_| &[]);
+        f.finish(1000, |_, _| 0);
         assert_eq!(f.totals, FloatingTotals { windows: 3, total_ps: 90, longest_ps: 30 });
     }
 
@@ -335,11 +333,7 @@ mod tests {
             w0 in 0u64..2000,
         ) {
             let n = positions.len();
-            let delays: Vec<Vec<u64>> = positions
-                .iter()
-                .map(|x| positions.iter().map(|y| x.abs_diff(*y)).collect())
-                .collect();
-            let rows = |i: usize| delays[i].as_slice();
+            let delay = |x: usize, i: usize| positions[x].abs_diff(positions[i]);
             let window = (Picos(w0), Picos(60_000));
             let hz: Vec<u64> = hazard[..n].iter().map(|&h| if h { u64::MAX } else { 0 }).collect();
             let mut fast = FloatingSweep::new(hz.clone(), window);
@@ -349,12 +343,12 @@ mod tests {
                 let node = node % n;
                 let a = t + gap;
                 let b = a + len;
-                fast.feed_occupancy(node, a, b, rows, None);
-                slow.feed_occupancy(node, a, b, rows, None);
+                fast.feed_occupancy(node, a, b, delay, None);
+                slow.feed_occupancy(node, a, b, delay, None);
                 t = a + len / 2; // sometimes overlapping, sometimes not
             }
-            fast.finish(60_000, rows);
-            slow.finish(60_000, rows);
+            fast.finish(60_000, delay);
+            slow.finish(60_000, delay);
             prop_assert_eq!(fast.totals, slow.totals);
         }
     }

@@ -298,20 +298,13 @@ impl Bus {
             self.scratch.resize(self.positions.len(), u64::MAX);
             let hazards = self.floating.hazard_ids();
             for m in &self.log[idx + 1..] {
-                let row = line.delay_row(m.node);
-                if hazards.len() == row.len() {
-                    for (slot, d) in self.scratch.iter_mut().zip(row) {
-                        *slot = (*slot).min(m.a + d);
-                    }
-                } else {
-                    for &i in hazards {
-                        self.scratch[i] = self.scratch[i].min(m.a + row[i]);
-                    }
+                for &i in hazards {
+                    self.scratch[i] = self.scratch[i].min(m.a + line.delay_ps(m.node, i));
                 }
             }
             Some(self.scratch.as_slice())
         };
-        self.floating.feed_occupancy(k.node, k.a, k.b, |i| line.delay_row(i), next);
+        self.floating.feed_occupancy(k.node, k.a, k.b, |x, i| line.delay_ps(x, i), next);
         if let Some((_, node, b)) = from {
             if k.a >= self.window.0 && k.a < self.window.1 {
                 let slack = i128::from(k.a) - i128::from(b) - i128::from(line.delay_ps(node, k.node));
@@ -343,7 +336,7 @@ impl Bus {
     /// windows at `end`.
     pub fn finish(&mut self, line: &LineModel, now: u64, end: u64, trace: &mut Trace) {
         self.process(line, now, true, trace);
-        self.floating.finish(end, |i| line.delay_row(i));
+        self.floating.finish(end, |x, i| line.delay_ps(x, i));
         self.util.finish();
     }
 }

@@ -34,10 +34,12 @@ pub struct LineModel {
     pub length_m: f64,
     /// Signal time end to end, through every section.
     pub end_to_end: Picos,
-    /// Node count, the side of `delays`.
-    n: usize,
-    /// Wire delay between node i and node j, row-major, rounded to the picosecond.
-    delays: Vec<u64>,
+    /// Signal time from the near end to each node, rounded to the
+    /// picosecond. The wire delay between two nodes is the difference of
+    /// their times: memory O(N), not an N×N matrix (134 MB at 4 096 nodes),
+    /// and delays add up along the line exactly (d(a,c) = d(a,b) + d(b,c)
+    /// for b between a and c).
+    times_ps: Vec<u64>,
     /// Largest wire delay between any two nodes.
     pub max_node_delay: Picos,
     /// Step amplitude each node's weakest driver produces (V).
@@ -97,16 +99,10 @@ impl LineModel {
         let first = sections.list.first().expect("a line has a section").line.impedance_ohm;
         let last = sections.list.last().expect("a line has a section").line.impedance_ohm;
         let ends = Ends::resolve(&spec.line.termination, first, last);
-        let n = spec.nodes.len();
-        let mut delays = vec![0u64; n * n];
-        let mut max = 0;
-        for i in 0..n {
-            for j in 0..n {
-                let d = ((times[i] - times[j]).abs() * 1e12).round() as u64;
-                delays[i * n + j] = d;
-                max = max.max(d);
-            }
-        }
+        // Below 1 s (the line length is bounded), so far inside u64.
+        let times_ps: Vec<u64> = times.iter().map(|t| (t * 1e12).round() as u64).collect();
+        let earliest = times_ps.iter().copied().min().unwrap_or(0);
+        let max = times_ps.iter().copied().max().unwrap_or(0) - earliest;
         let drive_load_ohm: Vec<f64> = spec
             .nodes
             .iter()
@@ -130,8 +126,7 @@ impl LineModel {
             sections,
             ends,
             length_m: spec.line.length_m,
-            n,
-            delays,
+            times_ps,
             max_node_delay: Picos(max),
             amplitude_v,
             amplitude_typical_v,
@@ -147,19 +142,13 @@ impl LineModel {
     /// Wire delay from node `a` to node `b`.
     #[inline]
     pub fn delay(&self, a: NodeId, b: NodeId) -> Picos {
-        Picos(self.delays[a * self.n + b])
+        Picos(self.delay_ps(a, b))
     }
 
     /// Wire delay as a raw picosecond count (hot-loop form).
     #[inline]
     pub fn delay_ps(&self, a: NodeId, b: NodeId) -> u64 {
-        self.delays[a * self.n + b]
-    }
-
-    /// Wire delays from node `a` to every node, in node order (ps).
-    #[inline]
-    pub fn delay_row(&self, a: NodeId) -> &[u64] {
-        &self.delays[a * self.n..(a + 1) * self.n]
+        self.times_ps[a].abs_diff(self.times_ps[b])
     }
 
     /// What `node`'s receiver reads on the undriven line at its position.
