@@ -123,7 +123,7 @@ impl Bus {
             floating: FloatingSweep::new(hazard, (spec.warmup, spec.duration)),
             contention: ContentionTotals::default(),
             scratch: Vec::with_capacity(spec.nodes.len()),
-            handover: HandoverStats::new(spec.nodes.len()),
+            handover: HandoverStats::new(spec.nodes.len(), spec.duration.0),
             prev: None,
             keep: spec.frame.silence.map_or(0, |t| t.0),
         }

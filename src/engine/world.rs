@@ -278,7 +278,10 @@ impl World {
         let access_rng = spec.nodes.iter().map(|node| super::rng::stream(spec.seed, &node.name, "access")).collect();
         let queue_limit =
             spec.nodes.iter().map(|n| n.queue_limit.unwrap_or(crate::spec::DEFAULT_QUEUE_LIMIT)).collect();
-        let mut stats = Stats::new(n);
+        // A data frame has at least its overhead bits (and one bit).
+        let shortest = spec.frame.base_time(spec.frame.overhead_bits.max(1)).0;
+        let shapes = crate::stats::LatencyShape::for_run(shortest, spec.duration.0, n);
+        let mut stats = Stats::new(n, shapes);
         let id_index = spec
             .nodes
             .iter()
@@ -287,7 +290,7 @@ impl World {
                     .iter()
                     .map(|t| {
                         t.id.map(|id| {
-                            stats.latency_id.push((id, crate::stats::LatencyStats::new()));
+                            stats.latency_id.push((id, crate::stats::LatencyStats::with_shape(shapes.1)));
                             (stats.latency_id.len() - 1) as u32
                         })
                     })

@@ -99,7 +99,7 @@ impl LineModel {
         let first = sections.list.first().expect("a line has a section").line.impedance_ohm;
         let last = sections.list.last().expect("a line has a section").line.impedance_ohm;
         let ends = Ends::resolve(&spec.line.termination, first, last);
-        // Below 1 s (the line length is bounded), so far inside u64.
+        // Below 10 s (the loaded delay is bounded; DEVELOPERS.md), so far inside u64.
         let times_ps: Vec<u64> = times.iter().map(|t| (t * 1e12).round() as u64).collect();
         let earliest = times_ps.iter().copied().min().unwrap_or(0);
         let max = times_ps.iter().copied().max().unwrap_or(0) - earliest;

@@ -169,6 +169,15 @@ pub struct Latency {
     /// Per traffic identifier (hexadecimal), for sources that have one.
     #[serde(skip_serializing_if = "BTreeMap::is_empty")]
     pub ids: BTreeMap<String, LatencySummary>,
+    /// Significant digits of the per-node and per-identifier percentiles
+    /// (3, written only when fewer: buses of more than 256 nodes keep 2).
+    /// `all` always keeps 3. Means and maxima are exact.
+    #[serde(skip_serializing_if = "is_three")]
+    pub per_source_digits: u8,
+}
+
+fn is_three(d: &u8) -> bool {
+    *d == 3
 }
 
 #[derive(Clone, Debug, Serialize)]
@@ -251,7 +260,8 @@ impl Report {
             .map(|(i, n)| (n.name.clone(), st.latency_node[i].summary()))
             .collect();
         let ids = st.latency_id.iter().map(|(id, l)| (format!("{id:#06x}"), l.summary())).collect();
-        let latency = Latency { all: st.latency_all.summary(), nodes, ids };
+        let per_source_digits = st.latency_node.first().map_or(3, |l| l.digits());
+        let latency = Latency { all: st.latency_all.summary(), nodes, ids, per_source_digits };
         let c = &w.bus.contention;
         let contention = Contention {
             events: t.contention_events,

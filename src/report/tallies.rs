@@ -9,7 +9,7 @@ use serde::{Deserialize, Serialize};
 
 use super::{Frames, Utilization};
 use crate::engine::World;
-use crate::stats::latency::{LatencyStats, LatencyTally};
+use crate::stats::latency::{LatencyShape, LatencyStats, LatencyTally};
 use crate::units::Picos;
 
 /// Counters of one run or of several merged. Every field is an integer
@@ -149,15 +149,15 @@ impl LatencySet {
     /// Move the accumulators out of a finished run (no copy of the histograms).
     pub(crate) fn take(w: &mut World) -> LatencySet {
         let st = &mut w.stats;
-        let nodes = w
-            .spec
-            .nodes
-            .iter()
-            .enumerate()
+        // Moved out whole: no placeholder histograms are built (at 4 096
+        // nodes they cost as much as the run's own).
+        let nodes = std::mem::take(&mut st.latency_node)
+            .into_iter()
+            .zip(&w.spec.nodes)
             .filter(|(_, n)| !n.traffic.is_empty())
-            .map(|(i, n)| (n.name.clone(), std::mem::take(&mut st.latency_node[i])))
+            .map(|(l, n)| (n.name.clone(), l))
             .collect();
-        LatencySet { all: std::mem::take(&mut st.latency_all), nodes }
+        LatencySet { all: std::mem::replace(&mut st.latency_all, LatencyStats::with_shape(LatencyShape::EMPTY)), nodes }
     }
 
     /// Encode into `t`'s latency tallies.

@@ -192,6 +192,14 @@ pub fn render_titled(r: &Report, title: &str, color: bool) -> String {
     } else {
         let _ = writeln!(o, "  ({} sources; per-node figures in --format json)", r.latency_s.nodes.len());
     }
+    if r.latency_s.per_source_digits != 3 {
+        let _ = writeln!(
+            o,
+            "  (per-node percentiles to {} significant digits on a bus of more than {} nodes; \"all\" to 3; means and maxima exact)",
+            r.latency_s.per_source_digits,
+            crate::stats::latency::PER_NODE_FULL_PRECISION_MAX
+        );
+    }
     let bounded: Vec<_> = r.bounds.iter().filter(|b| b.bound_s.is_some()).collect();
     if !bounded.is_empty() {
         let closest =

@@ -1,7 +1,12 @@
-//! Latency accumulation: an HDR histogram (3 significant digits, 1 ps
-//! resolution at the low end) plus an exact count, sum and maximum, so the
-//! mean and maximum are exact and only the percentiles carry histogram
-//! precision.
+//! Latency accumulation: an HDR histogram plus an exact count, sum and
+//! maximum, so the mean and maximum are exact and only the percentiles carry
+//! histogram precision.
+//!
+//! A run's histograms take their shape from the scenario before it starts
+//! ([`LatencyShape`]): the range up to the run's duration and the precision
+//! (3 significant digits; 2 for the per-node and per-source histograms of a
+//! bus of more than [`PER_NODE_FULL_PRECISION_MAX`] nodes), so memory is set
+//! when the run starts and does not grow with simulated time.
 
 use base64::Engine as _;
 use hdrhistogram::serialization::{Deserializer, Serializer, V2Serializer};
@@ -33,17 +38,74 @@ impl Default for LatencyStats {
     }
 }
 
+/// Buses up to this many nodes keep 3 significant digits in every latency
+/// histogram; larger ones keep 2 in the per-node and per-source histograms
+/// (the all-nodes histogram keeps 3). At 4 096 nodes, 3 digits would take
+/// about 0.8 GB of histograms on a 3 s run.
+pub const PER_NODE_FULL_PRECISION_MAX: usize = 256;
+
+/// The fixed shape of a run's latency histograms.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct LatencyShape {
+    /// Lowest discernible value (ps): a power of two no larger than the
+    /// shortest possible latency (a data frame's overhead bits on the wire)
+    /// divided by the histogram's sub-bucket count, so every latency falls
+    /// in exactly the bucket it would with 1 ps resolution.
+    pub lowest_ps: u64,
+    /// Highest value the histogram holds without growing (ps): the run's
+    /// duration. A latency past it (a frame followed past the end) still
+    /// records exactly; only then does the histogram grow.
+    pub highest_ps: u64,
+    /// Significant decimal digits (2 or 3).
+    pub digits: u8,
+}
+
+impl LatencyShape {
+    /// The smallest shape (a placeholder left behind when a run's
+    /// accumulators are moved out).
+    pub const EMPTY: LatencyShape = LatencyShape { lowest_ps: 1, highest_ps: 2, digits: 1 };
+
+    /// `shortest_ps`: no latency is shorter (a frame's overhead bits on the
+    /// wire); `duration_ps`: the run's length.
+    pub fn new(shortest_ps: u64, duration_ps: u64, digits: u8) -> Self {
+        // HdrHistogram's sub-bucket count: 2·10^digits rounded up to a power of two.
+        let sub_buckets = (2 * 10u64.pow(u32::from(digits))).next_power_of_two();
+        let fit = (shortest_ps / sub_buckets).max(1);
+        let lowest_ps = 1u64 << (63 - fit.leading_zeros());
+        LatencyShape { lowest_ps, highest_ps: duration_ps.max(2 * lowest_ps), digits }
+    }
+
+    /// The shapes of a run: (all nodes, per node and per source).
+    pub fn for_run(shortest_ps: u64, duration_ps: u64, nodes: usize) -> (Self, Self) {
+        let per_node = if nodes <= PER_NODE_FULL_PRECISION_MAX { 3 } else { 2 };
+        (Self::new(shortest_ps, duration_ps, 3), Self::new(shortest_ps, duration_ps, per_node))
+    }
+}
+
 impl LatencyStats {
     /// The longest latency recorded, exactly (ps).
     pub fn max_ps(&self) -> u64 {
         self.max_ps
     }
 
+    /// An empty accumulator of 3 significant digits with 1 ps resolution,
+    /// growing as values come (merging and reading tallies).
     pub fn new() -> Self {
-        // Auto-resizing from a small initial range: the histogram grows (and
-        // allocates) only when a value of a new order of magnitude appears.
         let hist = Histogram::new(3).expect("3 significant digits is a valid precision");
         LatencyStats { hist, count: 0, sum_ps: 0, max_ps: 0 }
+    }
+
+    /// An empty accumulator of a run's fixed shape.
+    pub fn with_shape(shape: LatencyShape) -> Self {
+        let mut hist = Histogram::new_with_bounds(shape.lowest_ps, shape.highest_ps, shape.digits)
+            .expect("a shape has lowest ≥ 1, highest ≥ 2·lowest and 1 to 3 digits");
+        hist.auto(true);
+        LatencyStats { hist, count: 0, sum_ps: 0, max_ps: 0 }
+    }
+
+    /// Significant decimal digits of the percentiles.
+    pub fn digits(&self) -> u8 {
+        self.hist.sigfig()
     }
 
     #[inline]
@@ -157,7 +219,7 @@ impl LatencyStats {
     /// encode to equal text, however they were accumulated.
     pub fn tally(&self) -> LatencyTally {
         let top = self.hist.max().max(2);
-        let mut canonical = Histogram::<u64>::new_with_bounds(1, top, 3).expect("valid bounds");
+        let mut canonical = Histogram::<u64>::new_with_bounds(1, top, self.hist.sigfig()).expect("valid bounds");
         canonical.add(&self.hist).expect("the bounds cover every recorded value");
         let mut bytes = Vec::new();
         V2Serializer::new().serialize(&canonical, &mut bytes).expect("serializing into memory cannot fail");
@@ -228,6 +290,45 @@ mod tests {
         other_order.add(&parts[1]);
         assert_eq!(other_order.tally(), merged.tally());
         assert_eq!(merged.tally(), union.tally());
+    }
+
+    #[test]
+    fn a_fixed_shape_gives_the_quantiles_of_1_ps_resolution_above_its_floor() {
+        // Reference: the default histogram (1 ps resolution, growing), fed
+        // the same latencies, all at least the shape's shortest latency.
+        for (shortest, duration) in [(480_000u64, 3_000_000_000_000u64), (1_000, 10_000_000), (77_777_777, 1 << 50)] {
+            let shape = LatencyShape::new(shortest, duration, 3);
+            assert!(shape.lowest_ps.is_power_of_two() && shape.lowest_ps * 2048 <= shortest.max(2048));
+            let (mut fixed, mut reference) = (LatencyStats::with_shape(shape), LatencyStats::new());
+            for i in 0..20_000u64 {
+                let v = shortest + (i * 2_654_435_761) % (duration / 3) + (i % 7) * 13;
+                fixed.record(v);
+                reference.record(v);
+            }
+            // Past the duration too: recorded exactly (the histogram grows).
+            fixed.record(duration * 3 + 5);
+            reference.record(duration * 3 + 5);
+            assert_eq!(fixed.summary(), reference.summary(), "shortest {shortest}");
+            for q in [0.0001, 0.3, 0.77, 0.999_99] {
+                assert_eq!(fixed.quantile_ps(q), reference.quantile_ps(q));
+            }
+            assert_eq!(fixed.tally(), reference.tally(), "the same canonical encoding");
+        }
+    }
+
+    #[test]
+    fn per_node_histograms_keep_two_digits_on_large_buses() {
+        let (all, node) = LatencyShape::for_run(1_000_000, 1_000_000_000_000, PER_NODE_FULL_PRECISION_MAX);
+        assert_eq!((all.digits, node.digits), (3, 3));
+        let (all, node) = LatencyShape::for_run(1_000_000, 1_000_000_000_000, PER_NODE_FULL_PRECISION_MAX + 1);
+        assert_eq!((all.digits, node.digits), (3, 2));
+        let mut l = LatencyStats::with_shape(node);
+        l.record(123_456_789);
+        assert_eq!(l.digits(), 2);
+        l.record(100_000_000);
+        // Two digits: the median reads the lower value's bucket top, within 1 %.
+        let p = l.quantile_ps(0.5);
+        assert!((100_000_000..=101_000_000).contains(&p) && p != 100_000_000, "{p}");
     }
 
     #[test]

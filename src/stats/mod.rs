@@ -5,7 +5,7 @@ pub mod replication;
 pub mod slack;
 pub mod utilization;
 
-pub use latency::{LatencyStats, LatencySummary};
+pub use latency::{LatencyShape, LatencyStats, LatencySummary};
 
 /// Frame and message counters over the measured window.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
@@ -123,7 +123,9 @@ pub struct Stats {
 }
 
 impl Stats {
-    pub fn new(nodes: usize) -> Self {
+    /// Empty accumulators; `latency` gives the shapes of the all-nodes and
+    /// the per-node histograms (see [`latency::LatencyShape::for_run`]).
+    pub fn new(nodes: usize, latency: (LatencyShape, LatencyShape)) -> Self {
         Stats {
             frames: FrameCounters::default(),
             uart: UartCounters::default(),
@@ -131,8 +133,8 @@ impl Stats {
             carried_ps: 0,
             data_wire_ps: 0,
             data_frames_sent: 0,
-            latency_all: LatencyStats::new(),
-            latency_node: (0..nodes).map(|_| LatencyStats::new()).collect(),
+            latency_all: LatencyStats::with_shape(latency.0),
+            latency_node: (0..nodes).map(|_| LatencyStats::with_shape(latency.1)).collect(),
             latency_id: Vec::new(),
         }
     }

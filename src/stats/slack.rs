@@ -13,11 +13,16 @@
 //! It is negative exactly when the two occupancies overlap somewhere on the
 //! line (the bus checks that against its own overlap geometry, per hand-over).
 //!
-//! The smallest slack is exact; quantiles come from HDR histograms of the
-//! magnitudes (2 significant digits: within 1 %), rounded towards the
-//! smaller slack so a quantile never shows more room than there is. Each
-//! hand-over is recorded once, in its pair's histogram; the overall
+//! The smallest slack is exact. Up to [`FEW`] distinct values are kept
+//! exactly, so their quantiles are exact too; past that they move to HDR
+//! histograms of the magnitudes (2 significant digits: within 1 %), rounded
+//! towards the smaller slack so a quantile never shows more room than there
+//! is. Each hand-over is recorded once, in its pair's statistics; the overall
 //! quantile merges the pairs' when the report is built.
+//!
+//! Memory: a pair costs a few hundred bytes until it has more than [`FEW`]
+//! distinct slacks, then two histograms sized once for the run's duration
+//! (about 2 × 43 KB for 200 s: 64-bit counts, which cannot saturate). Pairs are at most [`MAX_PAIRS`].
 
 use hdrhistogram::Histogram;
 use rustc_hash::FxHashMap;
@@ -26,6 +31,10 @@ use rustc_hash::FxHashMap;
 /// in the totals (a bound on memory for schemes where any node follows any).
 pub const MAX_PAIRS: usize = 4096;
 
+/// Distinct slack values kept exactly before a pair's statistics move to
+/// histograms (on a random-access bus most pairs hand over only a few times).
+pub const FEW: usize = 16;
+
 /// Signed slacks (ps): exact count and minimum, histogram quantiles.
 #[derive(Clone, Debug, Default)]
 pub struct SlackStats {
@@ -33,26 +42,42 @@ pub struct SlackStats {
     pub min: Option<i64>,
     /// Hand-overs whose occupancies overlap somewhere (by the overlap geometry).
     pub contended: u64,
-    negative: Option<Histogram<u32>>,
-    positive: Option<Histogram<u32>>,
+    negative: Option<Histogram<u64>>,
+    positive: Option<Histogram<u64>>,
     negatives: u64,
     /// The latest value and how often it came in a row, not yet in a
     /// histogram (fixed timing repeats each pair's slack exactly).
     run: Option<(i64, u32)>,
+    /// Values and their counts, exactly, while there are at most [`FEW`]
+    /// (then the histograms are `None`).
+    few: Vec<(i64, u64)>,
+    /// The largest magnitude the histograms hold without growing (ps; 0:
+    /// grow from a small range as values come). A run sets its duration: no
+    /// slack is longer, so a run's histograms never grow.
+    high: u64,
 }
 
-fn histogram() -> Histogram<u32> {
-    Histogram::new(2).expect("2 significant digits is a valid precision")
+fn histogram(high: u64) -> Histogram<u64> {
+    let mut h = if high < 2 { Histogram::new(2) } else { Histogram::new_with_bounds(1, high, 2) }
+        .expect("2 significant digits from 1 ps is a valid precision");
+    h.auto(true);
+    h
 }
 
 /// Add `b` into the histogram slot `a`.
-fn merge(a: &mut Option<Histogram<u32>>, b: &Option<Histogram<u32>>) {
+fn merge(a: &mut Option<Histogram<u64>>, b: &Option<Histogram<u64>>) {
     if let Some(b) = b {
-        a.get_or_insert_with(histogram).add(b).expect("auto-resizing");
+        a.get_or_insert_with(|| histogram(0)).add(b).expect("auto-resizing");
     }
 }
 
 impl SlackStats {
+    /// Empty statistics whose histograms hold magnitudes up to `high_ps`
+    /// from the start (see [`HandoverStats::new`]).
+    pub fn up_to(high_ps: u64) -> Self {
+        SlackStats { high: high_ps, ..Default::default() }
+    }
+
     #[inline]
     pub fn record(&mut self, slack: i64, contended: bool) {
         self.count += 1;
@@ -77,19 +102,43 @@ impl SlackStats {
     /// Put the pending run of equal values into the histograms.
     fn flush(&mut self) {
         let Some((slack, n)) = self.run.take() else { return };
-        self.put(slack, n);
+        self.put(slack, u64::from(n));
     }
 
-    /// Record `n` hand-overs of slack `slack` in the histograms.
-    fn put(&mut self, slack: i64, n: u32) {
+    /// Record `n` hand-overs of slack `slack`: among the few exact values
+    /// while there is room, else in the histograms.
+    fn put(&mut self, slack: i64, n: u64) {
+        if self.negative.is_none() && self.positive.is_none() {
+            if let Some(e) = self.few.iter_mut().find(|e| e.0 == slack) {
+                e.1 += n;
+                return;
+            }
+            if self.few.len() < FEW {
+                self.few.push((slack, n));
+                return;
+            }
+            self.spill();
+        }
+        self.put_histogram(slack, n);
+    }
+
+    /// Move the exact values into the histograms.
+    fn spill(&mut self) {
+        for (v, k) in std::mem::take(&mut self.few) {
+            self.put_histogram(v, k);
+        }
+    }
+
+    fn put_histogram(&mut self, slack: i64, n: u64) {
         let magnitude = slack.unsigned_abs();
         let slot = if slack < 0 {
-            self.negatives += u64::from(n);
+            self.negatives += n;
             &mut self.negative
         } else {
             &mut self.positive
         };
-        let h = slot.get_or_insert_with(histogram);
+        let high = self.high;
+        let h = slot.get_or_insert_with(|| histogram(high));
         if magnitude > h.high() {
             *h = crate::stats::latency::grown(h, magnitude, 2);
         }
@@ -105,17 +154,24 @@ impl SlackStats {
             (a, b) => a.or(b),
         };
         self.contended += o.contended;
+        if o.negative.is_some() || o.positive.is_some() {
+            self.spill();
+        }
         self.negatives += o.negatives;
         merge(&mut self.negative, &o.negative);
         merge(&mut self.positive, &o.positive);
+        for &(v, n) in &o.few {
+            self.put(v, n);
+        }
         // The other's pending run, as its flush would have recorded it.
         if let Some((slack, n)) = o.run {
-            self.put(slack, n);
+            self.put(slack, u64::from(n));
         }
     }
 
     /// The slack at quantile `q` (the value of rank ⌈q·n⌉, at least 1, in
-    /// ascending order), never above the true value by the histogram's rounding.
+    /// ascending order): exact while there are few distinct values, else
+    /// never above the true value by the histogram's rounding.
     pub fn quantile(&self, q: f64) -> Option<i64> {
         if self.run.is_some() {
             let mut settled = self.clone();
@@ -124,6 +180,19 @@ impl SlackStats {
         }
         let min = self.min?;
         let rank = ((q * self.count as f64).ceil() as u64).clamp(1, self.count);
+        if !self.few.is_empty() {
+            // Exact: the values in ascending order, each as often as it came.
+            let mut few = self.few.clone();
+            few.sort_unstable();
+            let mut seen = 0;
+            for (v, n) in few {
+                seen += n;
+                if seen >= rank {
+                    return Some(v);
+                }
+            }
+            unreachable!("the exact values hold every hand-over");
+        }
         let v = if rank <= self.negatives {
             // Ascending signed order is descending magnitude among the negatives.
             let h = self.negative.as_ref().expect("negatives were recorded");
@@ -138,10 +207,10 @@ impl SlackStats {
 }
 
 /// The recorded value of rank `r` (1-based, ascending).
-fn at_rank(h: &Histogram<u32>, r: u64) -> u64 {
+fn at_rank(h: &Histogram<u64>, r: u64) -> u64 {
     let mut seen = 0;
     for v in h.iter_recorded() {
-        seen += u64::from(v.count_at_value());
+        seen += v.count_at_value();
         if seen >= r {
             return v.value_iterated_to();
         }
@@ -164,16 +233,22 @@ pub struct HandoverStats {
     pub pairs: Vec<((u32, u32), SlackStats)>,
     /// Hand-overs of pairs beyond [`MAX_PAIRS`], together.
     pub rest: SlackStats,
+    /// Largest slack magnitude a pair's histograms hold from the start (ps).
+    high: u64,
 }
 
 impl HandoverStats {
-    pub fn new(nodes: usize) -> Self {
+    /// Statistics for a bus of `nodes` nodes whose slacks are at most
+    /// `high_ps` in magnitude (the run's duration): each pair's histograms
+    /// are sized once, when its first hand-over comes, so memory does not
+    /// grow with simulated time beyond the pairs seen.
+    pub fn new(nodes: usize, high_ps: u64) -> Self {
         let index = if nodes <= 256 {
             Index::Dense { nodes, slot: vec![u32::MAX; nodes * nodes] }
         } else {
             Index::Sparse(FxHashMap::default())
         };
-        HandoverStats { index, pairs: Vec::new(), rest: SlackStats::default() }
+        HandoverStats { index, pairs: Vec::new(), rest: SlackStats::up_to(high_ps), high: high_ps }
     }
 
     #[inline]
@@ -189,7 +264,7 @@ impl HandoverStats {
         let i = match found {
             Some(i) => i,
             None if self.pairs.len() < MAX_PAIRS => {
-                self.pairs.push((key, SlackStats::default()));
+                self.pairs.push((key, SlackStats::up_to(self.high)));
                 let i = self.pairs.len() - 1;
                 match &mut self.index {
                     Index::Dense { nodes, slot } => slot[from * *nodes + to] = i as u32,
@@ -246,8 +321,49 @@ mod tests {
     }
 
     #[test]
+    fn few_values_are_exact_and_many_agree_with_the_histogram_alone() {
+        // Reference: the rank definition on a sorted list of the values.
+        let values: Vec<i64> = (0..200).map(|i: i64| (i * 7_919) % 100_003 - 30_000).collect();
+        let mut sorted = values.clone();
+        sorted.sort_unstable();
+        let rank_value = |q: f64, n: usize| sorted[((q * n as f64).ceil() as usize).clamp(1, n) - 1];
+        let mut few = SlackStats::default();
+        for &v in &values[..FEW] {
+            few.record(v, v < 0);
+        }
+        let mut first: Vec<i64> = values[..FEW].to_vec();
+        first.sort_unstable();
+        for (q, r) in [(0.01, 1), (0.5, FEW / 2), (1.0, FEW)] {
+            assert_eq!(few.quantile(q), Some(first[r - 1]), "q {q}");
+        }
+        // Many values: within the histogram's 1 %, never above the truth.
+        let mut many = SlackStats::default();
+        for &v in &values {
+            many.record(v, v < 0);
+        }
+        for q in [0.01, 0.25, 0.5, 0.9, 1.0] {
+            let (got, truth) = (many.quantile(q).unwrap(), rank_value(q, values.len()));
+            assert!(got <= truth && truth - got <= truth.abs() / 100 + 1, "q {q}: {got} against {truth}");
+        }
+        // Merging exact and histogram statistics in either order gives the
+        // statistics of all the values together.
+        let (mut a, mut b) = (few.clone(), many.clone());
+        a.add(&many);
+        b.add(&few);
+        let mut together = many.clone();
+        for &v in &values[..FEW] {
+            together.record(v, v < 0);
+        }
+        for q in [0.01, 0.5, 0.99] {
+            assert_eq!(a.quantile(q), together.quantile(q));
+            assert_eq!(b.quantile(q), together.quantile(q));
+        }
+        assert_eq!((a.count, b.count), (216, 216));
+    }
+
+    #[test]
     fn pairs_beyond_the_cap_count_in_the_totals_only() {
-        let mut h = HandoverStats::new(MAX_PAIRS + 4);
+        let mut h = HandoverStats::new(MAX_PAIRS + 4, 0);
         for k in 0..MAX_PAIRS + 3 {
             h.record(k, k + 1, 10, false);
         }
