@@ -29,7 +29,7 @@ pub mod wave;
 
 /// Run a validated scenario to the end (convenience for tests and benches).
 pub fn simulate(spec: &spec::Spec) -> report::Report {
-    engine::Simulation::new(spec).run()
+    report::Report::of(engine::Simulation::new(spec, scheme::build(spec)).run())
 }
 
 /// Run `n` replications: seeds derived from the scenario's (replication 0

@@ -51,7 +51,7 @@ pub fn exercise(text: &str, limits: Limits) -> Result<Outcome, Vec<String>> {
     let mut short = spec.clone();
     short.warmup = short.warmup.min(limits.warmup);
     short.duration = short.warmup + (spec.duration - spec.warmup).min(limits.measured);
-    let mut sim = Simulation::new(&short);
+    let mut sim = Simulation::new(&short, crate::scheme::build(&short));
     let step = Picos(((short.duration.0) / 16).max(1));
     let mut t = Picos::ZERO;
     while t < short.duration && sim.stalled().is_none() {
@@ -63,7 +63,7 @@ pub fn exercise(text: &str, limits: Limits) -> Result<Outcome, Vec<String>> {
         }
     }
     let events = sim.events();
-    let report = sim.finish();
+    let report = crate::report::Report::of(sim.finish());
     let json_text = json::render(&report);
     let _ = text::render(&report, false);
     match serde_json::from_str::<serde_json::Value>(&json_text) {

@@ -41,7 +41,7 @@ fn steady_state_runs_without_allocating() {
             ..common::Bus::default()
         };
         let spec = halfwire::scenario::parse_str(&bus.toml(), "alloc.toml").expect("valid");
-        let mut sim = halfwire::engine::Simulation::new(&spec);
+        let mut sim = halfwire::engine::Simulation::new(&spec, halfwire::scheme::build(&spec));
         sim.run_until(halfwire::units::Picos::from_ms(20));
         let events_before = sim.events();
         let before = ALLOCS.load(Ordering::Relaxed);

@@ -204,7 +204,8 @@ async fn session(
     let stopped = interrupt.clone();
     let (report, faults) = tokio::task::spawn_blocking(move || {
         let started = Instant::now();
-        let mut sim = Simulation::with_gateway(&run_spec, Box::new(gw), abort_on_fault);
+        let mut sim =
+            Simulation::with_gateway(&run_spec, halfwire::scheme::build(&run_spec), Box::new(gw), abort_on_fault);
         if start_aborted {
             sim.interrupt();
         }
@@ -220,7 +221,7 @@ async fn session(
         };
         sim.close_external(reason);
         let faults = sim.faults().len();
-        let mut report = sim.finish();
+        let mut report = Report::of(sim.finish());
         report.set_wall_time(started.elapsed().as_secs_f64());
         (report, faults)
     })

@@ -175,7 +175,7 @@ pub fn run(args: RunArgs) -> Result<u8, Failure> {
         return Err(e);
     }
     let stalled = sim.stalled();
-    let (mut report, tail) = sim.finish_with_trace();
+    let (mut report, tail) = halfwire::report::Report::from_run(sim.finish());
     report.set_wall_time(started.elapsed().as_secs_f64());
     if let Some(w) = waves {
         w.finish(&spec, &tail)?;

@@ -138,9 +138,6 @@ pub fn simulation(
     waves: bool,
 ) -> Simulation {
     use halfwire::units::Picos;
-    if waves {
-        Simulation::with_trace(spec, Some((Picos::ZERO, Picos(u64::MAX))))
-    } else {
-        Simulation::with_trace(spec, events_window)
-    }
+    let window = if waves { Some((Picos::ZERO, Picos(u64::MAX))) } else { events_window };
+    Simulation::with_trace(spec, halfwire::scheme::build(spec), window)
 }

@@ -37,7 +37,7 @@ impl Iterator for Gaps<'_> {
         Some(match (self.gap, &mut self.rng) {
             (CharGap::None, _) => 0,
             (CharGap::Fixed(t), _) => t.0,
-            (CharGap::Random { latency, cap }, Some(rng)) => crate::scheme::sample_latency(latency, rng).min(*cap).0,
+            (CharGap::Random { latency, cap }, Some(rng)) => super::delays::sample_latency(latency, rng).min(*cap).0,
             (CharGap::Random { .. }, None) => unreachable!("a random gap has its generator"),
         })
     }

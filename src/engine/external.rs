@@ -141,8 +141,13 @@ impl Simulation {
     /// A run in which the scenario's external nodes are driven through `gateway`.
     /// With `abort_on_fault`, a client fault ends the run; otherwise the
     /// faulty node goes quiet and the run continues.
-    pub fn with_gateway(spec: &Spec, gateway: Box<dyn Gateway>, abort_on_fault: bool) -> Self {
-        let mut sim = Simulation::new(spec);
+    pub fn with_gateway(
+        spec: &Spec,
+        scheme: Box<dyn super::AccessScheme>,
+        gateway: Box<dyn Gateway>,
+        abort_on_fault: bool,
+    ) -> Self {
+        let mut sim = Simulation::new(spec, scheme);
         let n = spec.nodes.len();
         sim.world.externally_driven = spec.nodes.iter().map(|n| n.external).collect();
         sim.cosim = Some(Box::new(Cosim {

@@ -7,22 +7,27 @@
 //! whatever occupancies have become final. Nothing here does I/O; the caller
 //! drives the run with [`Simulation::run_until`] and reads the [`Report`].
 
+pub mod access;
 pub mod chars;
+pub mod delays;
 pub mod external;
+mod frames;
+pub mod mailbox;
+pub mod outages;
 pub mod queue;
 pub mod rng;
 mod world;
 
+pub use access::{AccessScheme, SchemeReport, SchemeValue};
 pub use world::{Dest, FrameOut, TxTimes, World};
 
 use crate::bus::trace::{BusEvent, BusEventKind, Trace};
-use crate::report::Report;
-use crate::scheme::{self, AccessScheme};
 use crate::spec::{NodeId, Spec};
 use crate::stats::utilization::Piece;
 use crate::stats::Cause;
 use crate::traffic::{self, Message, Source};
 use crate::units::Picos;
+use frames::FrameRec;
 
 /// What a frame is for.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -115,16 +120,43 @@ pub const STALL_EVENTS: u64 = 1_000_000;
 /// counts as stalled (each is a network round trip, so the limit is lower).
 pub const STALL_EXCHANGES: u64 = 10_000;
 
+/// A run that has ended, handed over whole: everything it accumulated, for
+/// the report to be built from (`Report::from_run`). The engine builds no
+/// report itself.
+#[derive(Debug)]
+pub struct Finished {
+    /// The run's state and tallies at its end.
+    pub world: World,
+    /// The scheme's own figures.
+    pub scheme: SchemeReport,
+    /// The instant simulated time stopped advancing, if it did.
+    pub stalled: Option<Picos>,
+    /// Co-simulation: when the run was aborted, the exchanges with external
+    /// nodes, and the faults of their clients.
+    pub cosim: Option<CosimOutcome>,
+    /// Bus events recorded while closing the run (frames followed past the end).
+    pub events: Vec<BusEvent>,
+}
+
+/// What a co-simulation adds to a finished run.
+#[derive(Debug)]
+pub struct CosimOutcome {
+    pub aborted: Option<Picos>,
+    pub exchanges: u64,
+    pub faults: Vec<external::Fault>,
+}
+
 impl Simulation {
-    pub fn new(spec: &Spec) -> Self {
-        Self::with_trace(spec, None)
+    /// A run of `spec` under `scheme` (built by the caller, usually with
+    /// `crate::scheme::build`).
+    pub fn new(spec: &Spec, scheme: Box<dyn AccessScheme>) -> Self {
+        Self::with_trace(spec, scheme, None)
     }
 
     /// A run that records bus events whose time lies in `window` (ps, inclusive).
-    pub fn with_trace(spec: &Spec, window: Option<(Picos, Picos)>) -> Self {
+    pub fn with_trace(spec: &Spec, scheme: Box<dyn AccessScheme>, window: Option<(Picos, Picos)>) -> Self {
         let trace = Trace::new(window.map(|(a, b)| (a.0, b.0)));
         let world = World::new(spec.clone(), trace);
-        let scheme = scheme::build(spec);
         let sources = traffic::sources(spec);
         Simulation { world, scheme, sources, started: false, stalled: None, cosim: None, cut: None }
     }
@@ -233,23 +265,19 @@ impl Simulation {
         }
     }
 
-    /// Run to the end and produce the report. `wall_s` is measured by the caller.
-    pub fn run(mut self) -> Report {
+    /// Run to the end and hand the run over.
+    pub fn run(mut self) -> Finished {
         self.run_until(self.world.spec.duration);
         self.finish()
     }
 
-    /// End the run at the scenario duration and build the report.
-    pub fn finish(self) -> Report {
-        self.finish_with_trace().0
-    }
-
-    /// End the run and also return the bus events recorded while closing it.
+    /// End the run at the scenario duration and hand it over, with the bus
+    /// events recorded while closing it.
     ///
     /// Frames still in flight at the end are followed to their delivery (no
     /// new traffic, timers or scheme decisions happen after the end), so the
     /// utilization of the last instants is classified by their real fate.
-    pub fn finish_with_trace(mut self) -> (Report, Vec<BusEvent>) {
+    pub fn finish(mut self) -> Finished {
         let mut end = self.world.spec.duration;
         if self.world.now < end && self.stalled.is_none() {
             self.run_until(end);
@@ -263,7 +291,7 @@ impl Simulation {
         let w = &mut self.world;
         while let Some((t, ev)) = w.queue.pop() {
             if let Event::Deliver { frame, to } = ev {
-                let f = &w.frames[frame as usize];
+                let f = w.frames.get(frame);
                 if let (FrameKind::Data, Some(m), false) = (f.kind, f.message, f.aborted) {
                     if !self.scheme.holds(&m) {
                         // Neither delivered nor given up in the run, and not
@@ -278,24 +306,9 @@ impl Simulation {
         let close = w.now.max(end);
         w.bus.finish(&w.line, close.0, end.0, &mut w.trace);
         let scheme = self.scheme.report(&self.world);
-        let mut report = Report::build(&self.world, scheme);
-        report.take_latency(&mut self.world);
-        if let Some(t) = self.stalled {
-            report.stalled_at_s = Some(t.as_secs_f64());
-        }
-        if let Some(c) = &self.cosim {
-            report.aborted_at_s = c.aborted.map(|t| t.as_secs_f64());
-            report.run.cosim_exchanges = Some(c.exchanges);
-            for f in &c.faults {
-                report.warnings.push(crate::report::Warning {
-                    code: "cosim-client-fault",
-                    node: Some(self.world.spec.nodes[f.node].name.clone()),
-                    message: format!("at {} (virtual time): {}", f.at, f.message),
-                });
-            }
-        }
         let events = std::mem::take(&mut self.world.trace.events);
-        (report, events)
+        let cosim = self.cosim.map(|c| CosimOutcome { aborted: c.aborted, exchanges: c.exchanges, faults: c.faults });
+        Finished { world: self.world, scheme, stalled: self.stalled, cosim, events }
     }
 
     /// End the run at the current instant: the report then covers the time up
@@ -326,13 +339,12 @@ impl Simulation {
         if counted {
             w.stats.frames.arrived += 1;
         }
-        if w.queues[node].len() + w.holding[node] >= w.queue_limit[node] {
+        if !w.mail.offer(msg) {
             if counted {
                 w.stats.frames.dropped += 1;
             }
             return;
         }
-        w.queues[node].push_back(msg);
         if self.is_external(node) {
             let to = msg.dest;
             self.notify(node, external::Notice::Message { payload_bits: msg.payload_bits, to });
@@ -347,7 +359,7 @@ impl Simulation {
         let corrupted = cause.corrupted();
         let now = w.now;
         // Nobody listens at a down node: its frames are lost there (unheard).
-        let down = w.down[to];
+        let down = w.health.is_down(to);
         if w.in_window(now) {
             if f.kind == FrameKind::Data {
                 // The frame's time on the wire inside the measured window.
@@ -399,7 +411,7 @@ impl Simulation {
             return;
         }
         if self.is_external(to) {
-            let done = self.world.frames[idx as usize].remaining == 0;
+            let done = self.world.frames.get(idx).remaining == 0;
             let notice = external::Notice::Frame {
                 from: f.src,
                 kind: f.kind,
@@ -423,8 +435,8 @@ impl Simulation {
 /// The physics of one delivery, shared by the run and by closing it: is the
 /// frame corrupted at `to`; trace it; and once its last delivery is done,
 /// classify its line time, release its occupancy and free its record.
-fn resolve_delivery(w: &mut World, idx: u32, to: NodeId) -> (world::FrameRec, Cause) {
-    let f = w.frames[idx as usize];
+fn resolve_delivery(w: &mut World, idx: u32, to: NodeId) -> (FrameRec, Cause) {
+    let f = *w.frames.get(idx);
     // A receiver reacting at the stop bit's sample point has taken the frame
     // by then: what the line does after it no longer matters to it.
     let heard_until = f.e.saturating_sub(w.fw[to].react).max(f.s);
@@ -452,17 +464,17 @@ fn resolve_delivery(w: &mut World, idx: u32, to: NodeId) -> (world::FrameRec, Ca
         node: f.src,
         kind: BusEventKind::FrameEnd { frame: f.kind.name(), to, corrupted },
     });
-    let rec = &mut w.frames[idx as usize];
+    let rec = w.frames.get_mut(idx);
     rec.remaining -= 1;
     rec.corrupted_any |= corrupted;
     if rec.remaining == 0 {
         let any = rec.corrupted_any;
-        if f.flags & world::FrameRec::CUT != 0 && w.in_window(w.now) {
+        if f.flags & FrameRec::CUT != 0 && w.in_window(w.now) {
             w.stats.uart.cut_frames += 1;
         }
         add_frame_pieces(w, &f, any);
         w.bus.frame_resolved(f.occupancy);
-        w.free_frames.push(idx);
+        w.frames.release(idx);
     }
     (f, cause)
 }
@@ -474,8 +486,8 @@ fn resolve_delivery(w: &mut World, idx: u32, to: NodeId) -> (world::FrameRec, Ca
 /// (the floating line). Each broken rule is counted (per delivery; cut
 /// frames once per frame); the cause returned is the floating line if it
 /// applies, else framing.
-fn framing_faults(w: &mut World, f: &world::FrameRec, to: NodeId) -> Cause {
-    use world::FrameRec as F;
+fn framing_faults(w: &mut World, f: &FrameRec, to: NodeId) -> Cause {
+    use FrameRec as F;
     let counted = w.in_window(w.now);
     let mut bad = f.flags & F::CUT != 0;
     let u = &mut w.stats.uart;
@@ -509,7 +521,7 @@ fn framing_faults(w: &mut World, f: &world::FrameRec, to: NodeId) -> Cause {
 }
 
 /// Utilization pieces of a resolved frame.
-fn add_frame_pieces(w: &mut World, f: &world::FrameRec, corrupted: bool) {
+fn add_frame_pieces(w: &mut World, f: &FrameRec, corrupted: bool) {
     if corrupted {
         w.bus.util.add(Piece::Wasted, f.s, f.e);
         return;
@@ -545,7 +557,7 @@ mod tests {
             n.transceiver.enable_time = Picos::ZERO;
             n.transceiver.disable_time = Picos::ZERO;
         }
-        let mut sim = Simulation::new(&spec);
+        let mut sim = Simulation::new(&spec, crate::scheme::build(&spec));
         sim.run_until(Picos::from_ms(1));
         assert_eq!(sim.stalled(), Some(Picos::ZERO));
     }
@@ -556,13 +568,13 @@ mod tests {
             std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/scenarios/fruit-grader.toml")).unwrap();
         let mut spec = crate::scenario::parse_str(&text, "fruit-grader.toml").unwrap();
         spec.duration = Picos::from_ms(6);
-        let strip = |r: Report| {
-            let mut v = serde_json::to_value(r).unwrap();
+        let strip = |r: Finished| {
+            let mut v = serde_json::to_value(crate::report::Report::of(r)).unwrap();
             v.as_object_mut().unwrap().remove("run");
             serde_json::to_string(&v).unwrap()
         };
-        let whole = strip(Simulation::new(&spec).run());
-        let mut sim = Simulation::new(&spec);
+        let whole = strip(Simulation::new(&spec, crate::scheme::build(&spec)).run());
+        let mut sim = Simulation::new(&spec, crate::scheme::build(&spec));
         for k in 1..=37u64 {
             sim.run_until(Picos(spec.duration.0 * k / 37));
         }

@@ -1,6 +1,8 @@
 //! The world a scheme acts on: clock, queues, transmissions, timers, streams.
 
-use std::collections::VecDeque;
+use super::frames::{FrameRec, FrameTable};
+use super::mailbox::Mailboxes;
+use super::outages::Health;
 
 use super::queue::EventQueue;
 use super::rng::Stream;
@@ -67,35 +69,6 @@ pub struct TxTimes {
     pub occupancy: u64,
 }
 
-/// A frame in flight.
-#[derive(Clone, Copy, Debug)]
-pub(crate) struct FrameRec {
-    pub occupancy: u64,
-    pub src: NodeId,
-    pub kind: FrameKind,
-    /// First and last bit at the driver (ps).
-    pub s: u64,
-    pub e: u64,
-    pub data_bits: u64,
-    pub message: Option<Message>,
-    /// Deliveries still to happen.
-    pub remaining: u32,
-    pub corrupted_any: bool,
-    /// Cut short by its sender (collision detected): never delivered intact.
-    pub aborted: bool,
-    /// [`FrameRec::CUT`], [`FrameRec::GAP_TIMEOUT`], [`FrameRec::AUTO`].
-    pub flags: u8,
-}
-
-impl FrameRec {
-    /// Its first or last bit was cut by half a bit or more by the enable.
-    pub const CUT: u8 = 1;
-    /// A gap between two of its characters exceeds `frame.char_timeout`.
-    pub const GAP_TIMEOUT: u8 = 2;
-    /// Sent by an auto-direction transceiver (its recessive bits come from the bias).
-    pub const AUTO: u8 = 4;
-}
-
 /// A node's firmware and transceiver timing, resolved once (ps).
 #[derive(Clone, Copy, Debug)]
 pub(crate) struct Firmware {
@@ -146,18 +119,6 @@ impl NoiseRun {
     }
 }
 
-/// One period during which a node was down, and what the scheme made of it.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub struct Outage {
-    pub node: NodeId,
-    pub down_at: Picos,
-    /// When the scheme first treated the node as silent (polling: skipped it).
-    pub found_silent_at: Option<Picos>,
-    pub up_at: Option<Picos>,
-    /// When the node, back up, first answered.
-    pub answered_at: Option<Picos>,
-}
-
 /// A transmission being assembled.
 #[derive(Clone, Copy, Debug)]
 struct TxBuild {
@@ -178,14 +139,10 @@ pub struct World {
     pub(crate) now: Picos,
     pub(crate) queue: EventQueue<Event>,
     pub(crate) bus: Bus,
-    pub(crate) queues: Vec<VecDeque<Message>>,
-    pub(crate) queue_limit: Vec<usize>,
-    /// Messages a scheme has taken from a queue but still holds (in flight,
-    /// awaiting an outcome or a retry); they count against `queue_limit`.
-    pub(crate) holding: Vec<usize>,
+    /// Every node's waiting and held messages.
+    pub(crate) mail: Mailboxes,
     pub(crate) access_rng: Vec<Stream>,
-    pub(crate) frames: Vec<FrameRec>,
-    pub(crate) free_frames: Vec<u32>,
+    pub(crate) frames: FrameTable,
     pub(crate) stats: Stats,
     pub(crate) trace: Trace,
     pub(crate) events: u64,
@@ -206,10 +163,8 @@ pub struct World {
     pub(crate) externally_driven: Vec<bool>,
     pub(crate) fw: Vec<Firmware>,
     pub(crate) uart: Option<Box<UartRun>>,
-    /// Per node: down (a fault) now.
-    pub(crate) down: Vec<bool>,
-    /// Every down period so far, in the order they began.
-    pub(crate) outages: Vec<Outage>,
+    /// Which nodes are down, and every down period.
+    pub(crate) health: Health,
     /// Bit errors, when the scenario models noise.
     pub(crate) noise: Option<Box<NoiseRun>>,
     /// Half a bit time: a cut this long or longer corrupts a frame.
@@ -276,8 +231,6 @@ impl World {
         let half_bit = spec.frame.time_of_halves(1).0;
         let n = spec.nodes.len();
         let access_rng = spec.nodes.iter().map(|node| super::rng::stream(spec.seed, &node.name, "access")).collect();
-        let queue_limit =
-            spec.nodes.iter().map(|n| n.queue_limit.unwrap_or(crate::spec::DEFAULT_QUEUE_LIMIT)).collect();
         // A data frame has at least its overhead bits (and one bit).
         let shortest = spec.frame.base_time(spec.frame.overhead_bits.max(1)).0;
         let shapes = crate::stats::LatencyShape::for_run(shortest, spec.duration.0, n);
@@ -303,12 +256,9 @@ impl World {
             bus,
             now: Picos::ZERO,
             queue: EventQueue::with_capacity(256),
-            queues: (0..n).map(|_| VecDeque::with_capacity(16)).collect(),
-            queue_limit,
-            holding: vec![0; n],
+            mail: Mailboxes::new(&spec),
             access_rng,
-            frames: Vec::with_capacity(64),
-            free_frames: Vec::with_capacity(64),
+            frames: FrameTable::with_capacity(64),
             stats,
             trace,
             events: 0,
@@ -320,8 +270,7 @@ impl World {
             fw,
             uart,
             noise,
-            down: vec![false; n],
-            outages: Vec::new(),
+            health: Health::new(n),
             half_bit,
             tx_frames: Vec::with_capacity(16),
             frame_times: [(u64::MAX, 0); 2],
@@ -347,87 +296,59 @@ impl World {
     }
 
     pub fn queue_len(&self, node: NodeId) -> usize {
-        self.queues[node].len()
+        self.mail.len(node)
     }
 
     /// Take the oldest message queued at `node`.
     pub fn pop_message(&mut self, node: NodeId) -> Option<Message> {
-        self.queues[node].pop_front()
+        self.mail.pop(node)
     }
 
     /// Tell the engine how many messages the scheme holds for `node` outside
     /// its queue; they count against the node's `queue_limit`.
     pub fn set_holding(&mut self, node: NodeId, messages: usize) {
-        self.holding[node] = messages;
+        self.mail.set_holding(node, messages);
     }
 
     /// Take the queued message of `node` with the smallest `key` (the oldest
     /// among equals), e.g. the highest-priority identifier.
     pub fn pop_message_min_by_key<K: Ord>(&mut self, node: NodeId, key: impl Fn(&Message) -> K) -> Option<Message> {
-        let q = &mut self.queues[node];
-        let best = (0..q.len()).min_by_key(|&i| (key(&q[i]), i))?;
-        q.remove(best)
+        self.mail.pop_min_by_key(node, key)
     }
 
     /// The smallest `key` among `node`'s queued messages.
     pub fn queue_min_key<K: Ord>(&self, node: NodeId, key: impl Fn(&Message) -> K) -> Option<K> {
-        self.queues[node].iter().map(key).min()
+        self.mail.min_key(node, key)
     }
 
     /// Put a message back at the head of its queue (for retransmission).
     pub fn push_front(&mut self, node: NodeId, msg: Message) {
-        self.queues[node].push_front(msg);
+        self.mail.push_front(node, msg);
     }
 
     /// Is `node` down (a fault) now?
     pub fn is_down(&self, node: NodeId) -> bool {
-        self.down[node]
+        self.health.is_down(node)
     }
 
     /// A node goes down or comes back up now.
     pub(crate) fn set_down(&mut self, node: NodeId, down: bool) {
-        self.down[node] = down;
-        if down {
-            self.outages.push(Outage {
-                node,
-                down_at: self.now,
-                found_silent_at: None,
-                up_at: None,
-                answered_at: None,
-            });
-        } else if let Some(o) = self.outages.iter_mut().rev().find(|o| o.node == node) {
-            o.up_at = Some(self.now);
-        }
-    }
-
-    /// The node's latest down period, if it has had one.
-    fn latest_outage(&mut self, node: NodeId) -> Option<&mut Outage> {
-        self.outages.iter_mut().rev().find(|o| o.node == node)
+        self.health.set_down(node, down, self.now);
     }
 
     /// Has `node` come back up from a down period and not answered since?
     pub fn is_node_back(&self, node: NodeId) -> bool {
-        self.outages.iter().rev().find(|o| o.node == node).is_some_and(|o| o.up_at.is_some() && o.answered_at.is_none())
+        self.health.is_back(node)
     }
 
     /// The scheme treats `node` as silent from now on (it noticed a failure).
     pub fn node_found_silent(&mut self, node: NodeId) {
-        let now = self.now;
-        if let Some(o) = self.latest_outage(node) {
-            if o.up_at.is_none() && o.found_silent_at.is_none() {
-                o.found_silent_at = Some(now);
-            }
-        }
+        self.health.found_silent(node, self.now);
     }
 
     /// `node` answered the scheme now (the first answer after coming back counts).
     pub fn node_answered(&mut self, node: NodeId) {
-        let now = self.now;
-        if let Some(o) = self.latest_outage(node) {
-            if o.up_at.is_some() && o.answered_at.is_none() {
-                o.answered_at = Some(now);
-            }
-        }
+        self.health.answered(node, self.now);
     }
 
     /// Count a message the scheme gives up on (its last allowed attempt failed).
@@ -487,14 +408,12 @@ impl World {
         let jam = self.spec.frame.duration(jam_bits).0;
         let release = now.max(self.bus.occupancies().find(|o| o.id == occupancy).map_or(now, |o| o.a + lead)) + jam;
         let off = release + self.spec.nodes[node].transceiver.disable_time.0;
-        for i in 0..self.frames.len() {
-            let f = self.frames[i];
-            if f.occupancy != occupancy || f.remaining == 0 || f.e <= now {
+        for rec in self.frames.slots_mut() {
+            if rec.occupancy != occupancy || rec.remaining == 0 || rec.e <= now {
                 continue;
             }
             // Cut: the frame's bits end now; it is delivered (as corrupted) when its
             // delivery event comes due.
-            let rec = &mut self.frames[i];
             rec.e = rec.s.max(now);
             rec.aborted = true;
         }
@@ -620,16 +539,7 @@ impl World {
             aborted: false,
             flags,
         };
-        let idx = match self.free_frames.pop() {
-            Some(i) => {
-                self.frames[i as usize] = rec;
-                i
-            }
-            None => {
-                self.frames.push(rec);
-                (self.frames.len() - 1) as u32
-            }
-        };
+        let idx = self.frames.insert(rec);
         if tx.track {
             self.tx_frames.push(idx);
         }
@@ -709,7 +619,7 @@ impl World {
         if tx.track {
             // The enable released half a bit or more before a frame's end cuts it.
             for &i in &self.tx_frames {
-                let f = &mut self.frames[i as usize];
+                let f = self.frames.get_mut(i);
                 if f.e >= release + self.half_bit {
                     f.flags |= FrameRec::CUT;
                 }

@@ -14,10 +14,10 @@ use std::collections::BTreeMap;
 
 use serde::Serialize;
 
-use crate::engine::World;
+use crate::bus::trace::BusEvent;
+use crate::engine::{Finished, SchemeReport, World};
 pub use crate::line::figures::LineFigures;
 use crate::line::IdleState;
-use crate::scheme::SchemeReport;
 use crate::stats::LatencySummary;
 use crate::units::Picos;
 
@@ -318,7 +318,8 @@ impl Report {
             scheme,
             uart,
             outages: w
-                .outages
+                .health
+                .outages()
                 .iter()
                 .map(|o| OutageFigures {
                     node: spec.nodes[o.node].name.clone(),
@@ -338,14 +339,36 @@ impl Report {
             aborted_at_s: None,
             run: RunInfo { events: w.events, ..RunInfo::default() },
             counters: t,
-            // Moved in by the engine once the report is built.
+            // Moved in by `from_run` once the report is built.
             latency_set: tallies::LatencySet::default(),
         }
     }
 
-    /// Move the run's latency accumulators into the report (the world is done with them).
-    pub(crate) fn take_latency(&mut self, w: &mut World) {
-        self.latency_set = tallies::LatencySet::take(w);
+    /// The report of a finished run, and the bus events recorded while
+    /// closing it.
+    pub fn from_run(run: Finished) -> (Report, Vec<BusEvent>) {
+        let Finished { mut world, scheme, stalled, cosim, events } = run;
+        let mut report = Report::build(&world, scheme);
+        // The world is done with its latency accumulators: moved, not copied.
+        report.latency_set = tallies::LatencySet::take(&mut world);
+        report.stalled_at_s = stalled.map(Picos::as_secs_f64);
+        if let Some(c) = cosim {
+            report.aborted_at_s = c.aborted.map(|t| t.as_secs_f64());
+            report.run.cosim_exchanges = Some(c.exchanges);
+            for f in c.faults {
+                report.warnings.push(Warning {
+                    code: "cosim-client-fault",
+                    node: Some(world.spec.nodes[f.node].name.clone()),
+                    message: format!("at {} (virtual time): {}", f.at, f.message),
+                });
+            }
+        }
+        (report, events)
+    }
+
+    /// The report of a finished run.
+    pub fn of(run: Finished) -> Report {
+        Self::from_run(run).0
     }
 
     /// The exact counters behind the figures, with the latency histograms

@@ -87,7 +87,7 @@ impl OutageTally {
             return None;
         }
         let mut t = OutageTally::default();
-        for o in &w.outages {
+        for o in w.health.outages() {
             t.count += 1;
             match o.found_silent_at {
                 Some(f) => t.found_silent_after_max_ps = t.found_silent_after_max_ps.max(Some((f - o.down_at).0)),
@@ -196,9 +196,7 @@ impl Tallies {
             control: st.frames.control_frames,
             control_corrupted: st.frames.control_corrupted,
             corrupted_by: st.frames.corrupted_by,
-            queued_at_end: w.queues.iter().map(|q| q.len() as u64).sum::<u64>()
-                + w.holding.iter().map(|&h| h as u64).sum::<u64>()
-                + st.frames.in_flight_at_end,
+            queued_at_end: w.mail.total() + st.frames.in_flight_at_end,
             unheard: st.frames.unheard,
             access_attempts: st.frames.access_attempts,
             contention_events: c.events,

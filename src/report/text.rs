@@ -334,7 +334,7 @@ pub fn render_titled(r: &Report, title: &str, color: bool) -> String {
 
 /// The scheme's figures in words with units, without those that do not apply.
 fn scheme_rows(r: &Report) -> Vec<(String, String)> {
-    use crate::scheme::SchemeValue as V;
+    use crate::engine::SchemeValue as V;
     let field = |name: &str| r.scheme.fields.iter().find(|(k, _)| *k == name).map(|(_, v)| *v);
     let slotted = field("slotted") != Some(V::Flag(false));
     let mut out = Vec::new();

@@ -71,7 +71,7 @@ pub const WORKER_FAILED: &str = "a sweep worker failed";
 pub fn simulate_run(plan: &Plan, run: RunId, abandon: &AtomicBool) -> Result<Option<Row>, String> {
     let spec = plan.run_spec(run).map_err(|e| e.to_string())?;
     let started = Instant::now();
-    let mut sim = Simulation::new(&spec);
+    let mut sim = Simulation::new(&spec, crate::scheme::build(&spec));
     // Slices of simulated time, so that an abandon request is seen promptly.
     const SLICES: u64 = 64;
     let step = Picos((spec.duration.0 / SLICES).max(1));
@@ -90,7 +90,7 @@ pub fn simulate_run(plan: &Plan, run: RunId, abandon: &AtomicBool) -> Result<Opt
             ));
         }
     }
-    let mut report = sim.finish();
+    let mut report = crate::report::Report::of(sim.finish());
     report.set_wall_time(started.elapsed().as_secs_f64());
     Ok(Some(Row::from_run(plan, run, &spec, &report)))
 }

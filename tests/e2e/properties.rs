@@ -148,9 +148,10 @@ proptest! {
         spec.duration = spec.duration.min(halfwire::units::Picos::from_ms(30));
         spec.warmup = halfwire::units::Picos::ZERO;
         let gap = spec.frame.interframe_gap.0;
-        let mut sim = halfwire::engine::Simulation::with_trace(&spec, Some((halfwire::units::Picos::ZERO, halfwire::units::Picos::MAX)));
+        let window = Some((halfwire::units::Picos::ZERO, halfwire::units::Picos::MAX));
+        let mut sim = halfwire::engine::Simulation::with_trace(&spec, halfwire::scheme::build(&spec), window);
         sim.run_until(spec.duration);
-        let (_, mut events) = sim.finish_with_trace();
+        let mut events = sim.finish().events;
         events.sort_by_key(|e| e.t);
         // Per node: (off of the previous occupancy, was it dominant).
         let mut last: Vec<Option<(u64, bool)>> = vec![None; spec.nodes.len()];

@@ -270,4 +270,25 @@ fn reports_validate_against_the_versioned_schema() {
     assert!(validator.is_valid(&report));
     report["utilization"]["idle"] = 1.5.into();
     assert!(!validator.is_valid(&report));
+    // A bus of more than 256 nodes: per-node percentiles to 2 digits, said
+    // in the JSON (valid against the schema) and in the text.
+    let big = [
+        "run",
+        "benches/reference-polling.toml",
+        "--set",
+        "nodes.count=300",
+        "--set",
+        "line.length=\"31 m\"",
+        "--set",
+        "nodes.traffic.rate=\"20/s\"",
+        "--duration",
+        "5 ms",
+    ];
+    let out = halfwire(&[&big[..], &["--format", "json"]].concat());
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let report: Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(report["latency_s"]["per_source_digits"], 2);
+    assert!(validator.is_valid(&report));
+    let text = String::from_utf8(halfwire(&big).stdout).unwrap();
+    assert!(text.contains("per-node percentiles to 2 significant digits on a bus of more than 256 nodes"), "{text}");
 }
