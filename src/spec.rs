@@ -362,6 +362,14 @@ pub enum Payload {
 }
 
 impl Payload {
+    /// The smallest payload this source can draw.
+    pub fn min_bits(&self) -> u64 {
+        match *self {
+            Payload::Fixed { bits } => bits,
+            Payload::Uniform { min_bits, .. } => min_bits,
+        }
+    }
+
     /// The largest payload this source can draw.
     pub fn max_bits(&self) -> u64 {
         match *self {

@@ -155,6 +155,7 @@ impl Simulation {
 
     /// A run that records bus events whose time lies in `window` (ps, inclusive).
     pub fn with_trace(spec: &Spec, scheme: Box<dyn AccessScheme>, window: Option<(Picos, Picos)>) -> Self {
+        assert_eq!(scheme.name(), spec.access.name(), "the scheme handed in is not the one the spec asks for");
         let trace = Trace::new(window.map(|(a, b)| (a.0, b.0)));
         let world = World::new(spec.clone(), trace);
         let sources = traffic::sources(spec);

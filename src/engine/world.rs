@@ -176,6 +176,20 @@ pub struct World {
     frame_times: [(u64, u64); 2],
 }
 
+/// No message's latency is shorter than this (ps): its data frame's bits
+/// on the wire (overhead and the smallest payload any source draws, with
+/// no gaps between characters), less the largest reaction offset (a
+/// receiver reacting before the frame's end). An external node's frames are
+/// sized by its client, so with one the bound is 1 ps.
+fn shortest_latency(spec: &Spec, fw: &[Firmware]) -> u64 {
+    if spec.nodes.iter().any(|n| n.external) {
+        return 1;
+    }
+    let payload = spec.nodes.iter().flat_map(|n| &n.traffic).map(|t| t.payload.min_bits()).min().unwrap_or(0);
+    let react = fw.iter().map(|f| f.react).max().unwrap_or(0);
+    spec.frame.base_time(spec.frame.overhead_bits + payload).0.saturating_sub(react).max(1)
+}
+
 impl World {
     pub(crate) fn new(mut spec: Spec, trace: Trace) -> Self {
         if spec.timing == crate::spec::Timing::Random {
@@ -192,7 +206,7 @@ impl World {
         }
         let line = LineModel::new(&spec);
         let bus = Bus::new(&spec, &line);
-        let fw = spec
+        let fw: Vec<Firmware> = spec
             .nodes
             .iter()
             .map(|node| {
@@ -231,8 +245,7 @@ impl World {
         let half_bit = spec.frame.time_of_halves(1).0;
         let n = spec.nodes.len();
         let access_rng = spec.nodes.iter().map(|node| super::rng::stream(spec.seed, &node.name, "access")).collect();
-        // A data frame has at least its overhead bits (and one bit).
-        let shortest = spec.frame.base_time(spec.frame.overhead_bits.max(1)).0;
+        let shortest = shortest_latency(&spec, &fw);
         let shapes = crate::stats::LatencyShape::for_run(shortest, spec.duration.0, n);
         let mut stats = Stats::new(n, shapes);
         let id_index = spec
@@ -727,5 +740,29 @@ impl World {
             self.add_frame(*f);
         }
         self.finish_tx()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn spec(edit: impl Fn(&str) -> String) -> Spec {
+        let text =
+            std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/scenarios/fruit-grader.toml")).unwrap();
+        crate::scenario::parse_str(&edit(&text), "fruit-grader.toml").unwrap()
+    }
+
+    #[test]
+    fn the_shortest_latency_counts_the_smallest_payload_and_falls_to_1_ps_for_an_empty_frame() {
+        // fruit-grader: 48 overhead bits and 64-byte payloads.
+        let s = spec(|t| t.to_string());
+        let fw = |s: &Spec| -> Vec<Firmware> { World::new(s.clone(), Trace::new(None)).fw };
+        assert_eq!(shortest_latency(&s, &fw(&s)), s.frame.base_time(48 + 512).0);
+        // No overhead and an empty payload: a frame of no bits, latency down to the wire delays.
+        let empty = spec(|t| t.replace("overhead_bits = 48", "overhead_bits = 0").replace("\"64 B\"", "\"0 B\""));
+        assert_eq!(shortest_latency(&empty, &fw(&empty)), 1);
+        let shape = crate::stats::LatencyShape::new(1, empty.duration.0, 3);
+        assert_eq!(shape.lowest_ps, 1);
     }
 }

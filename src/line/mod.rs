@@ -23,7 +23,7 @@ use crate::units::Picos;
 use amplitude::Ends;
 use sections::Sections;
 
-/// Line figures and the node-to-node delay matrix for one scenario.
+/// Line figures and the node-to-node wire delays for one scenario.
 #[derive(Clone, Debug)]
 pub struct LineModel {
     /// The classic figure with every load averaged over the whole line.
@@ -70,7 +70,7 @@ pub fn node_times(spec_line: &crate::spec::LineSpec, nodes: &[crate::spec::NodeS
 }
 
 /// The smallest receiver margin when only `drivers` drive: the line's
-/// sections, ends and settled network in full, but no delay matrix and a
+/// sections, ends and settled network in full, but no wire delays and a
 /// few drivers only (the budget's node-count search).
 pub fn worst_margin_of_drivers(spec: &Spec, drivers: &[usize]) -> f64 {
     let (sections, _) = node_times(&spec.line, &spec.nodes);
@@ -91,6 +91,20 @@ pub fn worst_margin_of_drivers(spec: &Spec, drivers: &[usize]) -> f64 {
         .fold(f64::INFINITY, f64::min)
 }
 
+/// Signal times (s) rounded to the picosecond: the engine's wire delay
+/// between two nodes is the difference of theirs. Below 10 s (the loaded
+/// delay is bounded; DEVELOPERS.md), so far inside u64.
+pub fn times_ps(times_s: &[f64]) -> Vec<u64> {
+    times_s.iter().map(|t| (t * 1e12).round() as u64).collect()
+}
+
+/// The largest wire delay between two nodes, from their rounded times: the
+/// one figure validation, the budget and the engine all use.
+pub fn max_wire_ps(times_ps: &[u64]) -> u64 {
+    let earliest = times_ps.iter().copied().min().unwrap_or(0);
+    times_ps.iter().copied().max().unwrap_or(0) - earliest
+}
+
 impl LineModel {
     pub fn new(spec: &Spec) -> Self {
         let total_load: f64 = spec.nodes.iter().map(|n| n.transceiver.load_f).sum();
@@ -99,10 +113,8 @@ impl LineModel {
         let first = sections.list.first().expect("a line has a section").line.impedance_ohm;
         let last = sections.list.last().expect("a line has a section").line.impedance_ohm;
         let ends = Ends::resolve(&spec.line.termination, first, last);
-        // Below 10 s (the loaded delay is bounded; DEVELOPERS.md), so far inside u64.
-        let times_ps: Vec<u64> = times.iter().map(|t| (t * 1e12).round() as u64).collect();
-        let earliest = times_ps.iter().copied().min().unwrap_or(0);
-        let max = times_ps.iter().copied().max().unwrap_or(0) - earliest;
+        let times_ps = times_ps(&times);
+        let max = max_wire_ps(&times_ps);
         let drive_load_ohm: Vec<f64> = spec
             .nodes
             .iter()

@@ -48,13 +48,14 @@ pub const PER_NODE_FULL_PRECISION_MAX: usize = 256;
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub struct LatencyShape {
     /// Lowest discernible value (ps): a power of two no larger than the
-    /// shortest possible latency (a data frame's overhead bits on the wire)
-    /// divided by the histogram's sub-bucket count, so every latency falls
-    /// in exactly the bucket it would with 1 ps resolution.
+    /// shortest possible latency (the engine's `shortest_latency`) divided
+    /// by the histogram's sub-bucket count. HdrHistogram puts every value of
+    /// at least half the sub-bucket count times this in the same bucket as a
+    /// 1 ps histogram would, so every latency does, with a factor 2 to spare.
     pub lowest_ps: u64,
     /// Highest value the histogram holds without growing (ps): the run's
-    /// duration. A latency past it (a frame followed past the end) still
-    /// records exactly; only then does the histogram grow.
+    /// duration. Latencies are recorded only before the duration, so a run's
+    /// histograms never grow; if one did, it would keep its buckets.
     pub highest_ps: u64,
     /// Significant decimal digits (2 or 3).
     pub digits: u8,
@@ -111,7 +112,7 @@ impl LatencyStats {
     #[inline]
     pub fn record(&mut self, ps: u64) {
         if ps > self.hist.high() {
-            self.hist = grown(&self.hist, ps, 3);
+            self.hist = grown(&self.hist, ps, self.hist.sigfig());
         }
         self.hist.record(ps.max(1)).expect("an auto-resizing histogram accepts any u64");
         self.count += 1;
@@ -171,8 +172,9 @@ pub(crate) fn grown<T: hdrhistogram::Counter>(h: &Histogram<T>, value: u64, sigf
     /// Headroom: 2^6, six more powers of two (measured: fewer instructions than 2^4,
     /// less memory than 2^8 on 512 nodes).
     const GROWTH: u64 = 64;
-    let high = value.saturating_mul(GROWTH).clamp(2, u64::MAX >> 1);
-    let mut bigger = Histogram::new_with_bounds(1, high, sigfig).expect("valid bounds");
+    let low = h.low();
+    let high = value.saturating_mul(GROWTH).clamp(2 * low, u64::MAX >> 1);
+    let mut bigger = Histogram::new_with_bounds(low, high, sigfig).expect("valid bounds");
     bigger.auto(true);
     bigger.add(h).expect("the new bounds cover the old");
     bigger
@@ -294,25 +296,36 @@ mod tests {
 
     #[test]
     fn a_fixed_shape_gives_the_quantiles_of_1_ps_resolution_above_its_floor() {
-        // Reference: the default histogram (1 ps resolution, growing), fed
+        // Reference: a histogram of 1 ps resolution and the same digits, fed
         // the same latencies, all at least the shape's shortest latency.
-        for (shortest, duration) in [(480_000u64, 3_000_000_000_000u64), (1_000, 10_000_000), (77_777_777, 1 << 50)] {
-            let shape = LatencyShape::new(shortest, duration, 3);
-            assert!(shape.lowest_ps.is_power_of_two() && shape.lowest_ps * 2048 <= shortest.max(2048));
-            let (mut fixed, mut reference) = (LatencyStats::with_shape(shape), LatencyStats::new());
-            for i in 0..20_000u64 {
-                let v = shortest + (i * 2_654_435_761) % (duration / 3) + (i % 7) * 13;
-                fixed.record(v);
-                reference.record(v);
+        for digits in [3u8, 2] {
+            for (shortest, duration) in [(480_000u64, 3_000_000_000_000u64), (1_000, 10_000_000), (77_777_777, 1 << 50)]
+            {
+                let shape = LatencyShape::new(shortest, duration, digits);
+                assert!(shape.lowest_ps.is_power_of_two());
+                let mut fixed = LatencyStats::with_shape(shape);
+                let mut reference = LatencyStats::with_shape(LatencyShape { lowest_ps: 1, ..shape });
+                let mut record = |v: u64| {
+                    fixed.record(v);
+                    reference.record(v);
+                };
+                record(shortest);
+                for i in 0..20_000u64 {
+                    record(shortest + (i * 2_654_435_761) % (duration - shortest) + (i % 7) * 13);
+                }
+                let high = fixed.hist.high();
+                assert_eq!(fixed.summary(), reference.summary(), "digits {digits}, shortest {shortest}");
+                for q in [0.0, 0.0001, 0.3, 0.77, 0.999_99] {
+                    assert_eq!(fixed.quantile_ps(q), reference.quantile_ps(q));
+                }
+                assert_eq!(fixed.tally(), reference.tally(), "the same canonical encoding");
+                // Past the range: it grows, keeping its buckets and digits.
+                fixed.record(duration * 3 + 5);
+                reference.record(duration * 3 + 5);
+                assert!(fixed.hist.high() > high);
+                assert_eq!((fixed.digits(), fixed.hist.low()), (digits, shape.lowest_ps));
+                assert_eq!(fixed.summary(), reference.summary());
             }
-            // Past the duration too: recorded exactly (the histogram grows).
-            fixed.record(duration * 3 + 5);
-            reference.record(duration * 3 + 5);
-            assert_eq!(fixed.summary(), reference.summary(), "shortest {shortest}");
-            for q in [0.0001, 0.3, 0.77, 0.999_99] {
-                assert_eq!(fixed.quantile_ps(q), reference.quantile_ps(q));
-            }
-            assert_eq!(fixed.tally(), reference.tally(), "the same canonical encoding");
         }
     }
 

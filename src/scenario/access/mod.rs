@@ -253,8 +253,7 @@ impl<'a> Access<'a> {
     /// The largest wire delay between two nodes, on the loaded line (section by section).
     pub fn max_wire(&self) -> Picos {
         let (_, times) = crate::line::node_times(self.line, self.nodes);
-        let (lo, hi) = times.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &t| (lo.min(t), hi.max(t)));
-        Picos(((hi - lo) * 1e12).round() as u64)
+        Picos(crate::line::max_wire_ps(&crate::line::times_ps(&times)))
     }
 
     /// `access.slot_time` if given (> 0), else `default`.
