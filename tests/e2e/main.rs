@@ -13,6 +13,7 @@ mod cli_run;
 mod cosim;
 mod csma;
 mod electrical;
+mod engine;
 mod faults;
 mod line_figures;
 mod mutation;
