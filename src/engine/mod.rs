@@ -10,6 +10,7 @@
 pub mod access;
 pub mod chars;
 pub mod delays;
+mod drivers;
 pub mod external;
 mod frames;
 pub mod mailbox;

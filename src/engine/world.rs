@@ -1,5 +1,6 @@
 //! The world a scheme acts on: clock, queues, transmissions, timers, streams.
 
+use super::drivers::Drivers;
 use super::frames::{FrameRec, FrameTable};
 use super::mailbox::Mailboxes;
 use super::outages::Health;
@@ -149,13 +150,8 @@ pub struct World {
     /// Per node and traffic source: index into `stats.latency_id`.
     pub(crate) id_index: Vec<Vec<Option<u32>>>,
     tx: Option<TxBuild>,
-    /// Per node: when its latest transmission releases the enable. A
-    /// transceiver has one driver, so a new transmission may not start earlier.
-    last_release: Vec<u64>,
-    /// Per node: the earliest instant its driver may be enabled for a new
-    /// transmission: the previous occupancy's output-off plus the interframe
-    /// gap (0 before its first). [`World::begin_tx`] never enables earlier.
-    next_enable: Vec<u64>,
+    /// Each driver's latest release and earliest next enable.
+    drivers: Drivers,
     /// Nodes that asked to hear line busy/idle changes (co-simulation);
     /// empty in every other run, so transmissions pay nothing for it.
     pub(crate) line_watchers: Vec<NodeId>,
@@ -276,8 +272,7 @@ impl World {
             trace,
             events: 0,
             tx: None,
-            last_release: vec![0; n],
-            next_enable: vec![0; n],
+            drivers: Drivers::new(n, spec.frame.interframe_gap.0),
             line_watchers: Vec::new(),
             externally_driven: vec![false; n],
             fw,
@@ -461,7 +456,7 @@ impl World {
     /// Start the frame that continues a node's own arbitration field (one
     /// frame with it, so no interframe gap): not before its last release.
     pub fn begin_tx_continuing(&mut self, node: NodeId, at: Picos) {
-        assert!(at.0 >= self.last_release[node], "scheme error: a frame before the driver's previous release");
+        assert!(at.0 >= self.drivers.last_release(node), "scheme error: a frame before the driver's previous release");
         self.open_tx(node, at);
     }
 
@@ -469,13 +464,12 @@ impl World {
     /// transmission: its previous occupancy's output-off plus the interframe
     /// gap, and not before now.
     pub fn earliest_enable(&self, node: NodeId) -> Picos {
-        Picos(self.next_enable[node]).max(self.now)
+        Picos(self.drivers.next_enable(node)).max(self.now)
     }
 
     /// Record that `node`'s latest occupancy releases at `release` and is off at `off`.
     fn released(&mut self, node: NodeId, release: u64, off: u64) {
-        self.last_release[node] = release;
-        self.next_enable[node] = off + self.spec.frame.interframe_gap.0;
+        self.drivers.released(node, release, off);
     }
 
     fn open_tx(&mut self, node: NodeId, at: Picos) {
@@ -671,14 +665,14 @@ impl World {
 
     /// When `node`'s latest transmission releases its enable (its driver is free after that).
     pub fn driver_free_at(&self, node: NodeId) -> Picos {
-        Picos(self.last_release[node])
+        Picos(self.drivers.last_release(node))
     }
 
     /// Drive the dominant state (bitwise arbitration): enable at `enable`
     /// (not in the past), release at `release`. Returns the occupancy id.
     pub fn drive_dominant(&mut self, node: NodeId, enable: Picos, release: Picos) -> u64 {
         let a = enable.max(self.now).0;
-        assert!(a >= self.last_release[node], "scheme error: dominant drive before the previous release");
+        assert!(a >= self.drivers.last_release(node), "scheme error: dominant drive before the previous release");
         let release = release.0.max(a);
         let off = release + self.spec.nodes[node].transceiver.disable_time.0;
         let id = self.bus.reserve_id();
@@ -706,7 +700,7 @@ impl World {
     /// The driver stays on from a dominant drive straight into a frame: the
     /// drive ends at its release with no disable tail.
     pub fn continue_from_dominant(&mut self, node: NodeId, occupancy: u64) {
-        let release = self.last_release[node];
+        let release = self.drivers.last_release(node);
         self.bus.cut_short(occupancy, release, release);
         self.released(node, release, release);
     }

@@ -1,0 +1,40 @@
+//! Each node's driver between transmissions: when its latest occupancy
+//! releases the enable, and the earliest instant it may enable again.
+
+use crate::spec::NodeId;
+
+/// The drivers' hand-back times (ps).
+#[derive(Debug)]
+pub struct Drivers {
+    /// Per node: when its latest transmission releases the enable. A
+    /// transceiver has one driver, so a new transmission may not start earlier.
+    last_release: Vec<u64>,
+    /// Per node: the earliest instant its driver may be enabled for a new
+    /// transmission: the previous occupancy's output-off plus the interframe
+    /// gap (0 before its first). `World::begin_tx` never enables earlier.
+    next_enable: Vec<u64>,
+    /// The interframe gap every node keeps after its output is off.
+    gap: u64,
+}
+
+impl Drivers {
+    pub fn new(nodes: usize, interframe_gap: u64) -> Self {
+        Drivers { last_release: vec![0; nodes], next_enable: vec![0; nodes], gap: interframe_gap }
+    }
+
+    /// When `node`'s latest occupancy releases its enable.
+    pub fn last_release(&self, node: NodeId) -> u64 {
+        self.last_release[node]
+    }
+
+    /// The earliest enable of `node`'s next transmission (before "now" is applied).
+    pub fn next_enable(&self, node: NodeId) -> u64 {
+        self.next_enable[node]
+    }
+
+    /// `node`'s latest occupancy releases at `release` and is off at `off`.
+    pub fn released(&mut self, node: NodeId, release: u64, off: u64) {
+        self.last_release[node] = release;
+        self.next_enable[node] = off + self.gap;
+    }
+}
