@@ -9,7 +9,7 @@ use serde::{Deserialize, Serialize};
 
 use super::{Frames, Utilization};
 use crate::engine::World;
-use crate::stats::latency::{LatencyShape, LatencyStats, LatencyTally};
+use crate::stats::latency::{LatencyStats, LatencyTally};
 use crate::units::Picos;
 
 /// Counters of one run or of several merged. Every field is an integer
@@ -157,7 +157,7 @@ impl LatencySet {
             .filter(|(_, n)| !n.traffic.is_empty())
             .map(|(l, n)| (n.name.clone(), l))
             .collect();
-        LatencySet { all: std::mem::replace(&mut st.latency_all, LatencyStats::with_shape(LatencyShape::EMPTY)), nodes }
+        LatencySet { all: std::mem::take(&mut st.latency_all), nodes }
     }
 
     /// Encode into `t`'s latency tallies.

@@ -62,10 +62,6 @@ pub struct LatencyShape {
 }
 
 impl LatencyShape {
-    /// The smallest shape (a placeholder left behind when a run's
-    /// accumulators are moved out).
-    pub const EMPTY: LatencyShape = LatencyShape { lowest_ps: 1, highest_ps: 2, digits: 1 };
-
     /// `shortest_ps`: no latency is shorter (a frame's overhead bits on the
     /// wire); `duration_ps`: the run's length.
     pub fn new(shortest_ps: u64, duration_ps: u64, digits: u8) -> Self {
@@ -99,7 +95,7 @@ impl LatencyStats {
     /// An empty accumulator of a run's fixed shape.
     pub fn with_shape(shape: LatencyShape) -> Self {
         let mut hist = Histogram::new_with_bounds(shape.lowest_ps, shape.highest_ps, shape.digits)
-            .expect("a shape has lowest ≥ 1, highest ≥ 2·lowest and 1 to 3 digits");
+            .expect("a shape has lowest ≥ 1, highest ≥ 2·lowest and 2 or 3 digits");
         hist.auto(true);
         LatencyStats { hist, count: 0, sum_ps: 0, max_ps: 0 }
     }
@@ -112,7 +108,7 @@ impl LatencyStats {
     #[inline]
     pub fn record(&mut self, ps: u64) {
         if ps > self.hist.high() {
-            self.hist = grown(&self.hist, ps, self.hist.sigfig());
+            self.hist = grown(&self.hist, ps);
         }
         self.hist.record(ps.max(1)).expect("an auto-resizing histogram accepts any u64");
         self.count += 1;
@@ -165,16 +161,17 @@ impl LatencyStats {
 
 /// `h` in a histogram that reaches `GROWTH` times past `value`: one
 /// allocation for the next several orders of magnitude, instead of the
-/// auto-resize's one per power of two. The buckets (and so every quantile and
-/// the canonical encoding) do not depend on the highest trackable value.
+/// auto-resize's one per power of two. It keeps `h`'s lowest value and
+/// digits, so its buckets (and every quantile and the canonical encoding) do
+/// not depend on the highest trackable value.
 #[cold]
-pub(crate) fn grown<T: hdrhistogram::Counter>(h: &Histogram<T>, value: u64, sigfig: u8) -> Histogram<T> {
+pub(crate) fn grown<T: hdrhistogram::Counter>(h: &Histogram<T>, value: u64) -> Histogram<T> {
     /// Headroom: 2^6, six more powers of two (measured: fewer instructions than 2^4,
     /// less memory than 2^8 on 512 nodes).
     const GROWTH: u64 = 64;
     let low = h.low();
     let high = value.saturating_mul(GROWTH).clamp(2 * low, u64::MAX >> 1);
-    let mut bigger = Histogram::new_with_bounds(low, high, sigfig).expect("valid bounds");
+    let mut bigger = Histogram::new_with_bounds(low, high, h.sigfig()).expect("valid bounds");
     bigger.auto(true);
     bigger.add(h).expect("the new bounds cover the old");
     bigger

@@ -140,7 +140,7 @@ impl SlackStats {
         let high = self.high;
         let h = slot.get_or_insert_with(|| histogram(high));
         if magnitude > h.high() {
-            *h = crate::stats::latency::grown(h, magnitude, 2);
+            *h = crate::stats::latency::grown(h, magnitude);
         }
         h.record_n(magnitude, n).expect("auto-resizing");
     }
