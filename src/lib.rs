@@ -15,6 +15,7 @@ pub mod check;
 pub mod cosim;
 pub mod engine;
 pub mod line;
+pub mod periodic;
 pub mod plot;
 pub mod report;
 pub mod robustness;

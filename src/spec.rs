@@ -33,6 +33,10 @@ pub struct Spec {
     pub access: AccessSpec,
     /// Requirements on the report (`[[expect]]`), checked by `halfwire check`.
     pub expect: Vec<Expectation>,
+    /// Periods of cyclic schemes that are known to repeat may be done in
+    /// closed form (`engine::shortcut`; same results). Not a scenario key:
+    /// `--no-shortcuts` turns it off.
+    pub shortcuts: bool,
 }
 
 /// A comparison of an expectation.

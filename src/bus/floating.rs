@@ -95,6 +95,27 @@ impl FloatingSweep {
         }
     }
 
+    /// The sweep's state and totals, for a closed-form stretch (the pair
+    /// profiles are a cache; the longest window does not change when a
+    /// period repeats).
+    pub fn visit(&mut self, v: &mut dyn crate::periodic::Visit) {
+        match &mut self.dominant {
+            Some((p, b)) => {
+                v.same(1);
+                v.same(*p as u64);
+                v.time(b);
+            }
+            None => {
+                v.same(0);
+                for &i in &self.hazard_ids {
+                    v.time(&mut self.driven_until[i]);
+                }
+            }
+        }
+        v.tally(&mut self.totals.windows);
+        v.tally_wide(&mut self.totals.total_ps);
+    }
+
     /// Turn the fast path off (for tests that compare the two paths).
     pub fn without_fast_path(mut self) -> Self {
         self.fast_path = false;

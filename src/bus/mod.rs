@@ -95,6 +95,10 @@ pub struct Bus {
     prev: Option<(u64, NodeId, u64)>,
     /// Keep processed occupancies this much longer (the silence rule looks back at them).
     keep: u64,
+    /// Hand-overs recorded since a closed-form stretch's mark (from, to,
+    /// slack, contended), while one is marked (`journal_on`).
+    journal: Vec<(u32, u32, i64, bool)>,
+    journal_on: bool,
 }
 
 impl Bus {
@@ -126,6 +130,8 @@ impl Bus {
             handover: HandoverStats::new(spec.nodes.len(), spec.duration.0),
             prev: None,
             keep: spec.frame.silence.map_or(0, |t| t.0),
+            journal: Vec::new(),
+            journal_on: false,
         }
     }
 
@@ -144,6 +150,53 @@ impl Bus {
     pub fn reserve_id(&mut self) -> u64 {
         self.next_id += 1;
         self.next_id - 1
+    }
+
+    /// The id the next occupancy will get.
+    pub fn next_id(&self) -> u64 {
+        self.next_id
+    }
+
+    /// Start journalling hand-overs afresh (`on`), or stop (closed-form stretches).
+    pub fn journal_handovers(&mut self, on: bool) {
+        self.journal.clear();
+        self.journal_on = on;
+    }
+
+    /// Record every journalled hand-over `k` more times.
+    pub fn replay_handovers(&mut self, k: u64) {
+        for &(from, to, slack, contended) in &self.journal {
+            self.handover.record_n(from as usize, to as usize, slack, contended, k);
+        }
+    }
+
+    /// The bus's state and tallies, for a closed-form stretch
+    /// (`crate::engine::shortcut`). Hand-overs are journalled instead.
+    pub fn visit(&mut self, v: &mut dyn crate::periodic::Visit) {
+        use crate::periodic::VisitExt;
+        v.same(self.log.len() as u64);
+        v.same(self.processed as u64);
+        for o in self.log.iter_mut() {
+            v.id(&mut o.id);
+            v.same(o.node as u64);
+            v.time(&mut o.a);
+            v.time(&mut o.last_bit);
+            v.time(&mut o.release);
+            v.time(&mut o.b);
+            v.same(u64::from(o.pending));
+            v.flag(o.dominant);
+        }
+        v.id(&mut self.next_id);
+        v.flag(self.prev.is_some());
+        if let Some((id, node, b)) = &mut self.prev {
+            v.id(id);
+            v.same(*node as u64);
+            v.time(b);
+        }
+        // Contention in the period would repeat with its listed events: none may come.
+        v.same(self.contention.events);
+        self.util.visit(v);
+        self.floating.visit(v);
     }
 
     /// A frame of occupancy `id` has been delivered.
@@ -312,6 +365,9 @@ impl Bus {
                 // overlap with the previous driver was found above, if there
                 // is one: an entry dropped from the log can no longer overlap.
                 self.handover.record(node, k.node, slack as i64, contended);
+                if self.journal_on {
+                    self.journal.push((node as u32, k.node as u32, slack as i64, contended));
+                }
             }
         }
         if !k.dominant {

@@ -55,6 +55,11 @@ impl Trace {
         Trace { window, events: Vec::new() }
     }
 
+    /// The window recorded (ps, inclusive), if any.
+    pub fn window(&self) -> Option<(u64, u64)> {
+        self.window
+    }
+
     pub fn enabled(&self) -> bool {
         self.window.is_some()
     }

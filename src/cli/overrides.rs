@@ -20,12 +20,23 @@ pub struct ScenarioOverrides {
     /// `--set 'transceiver.release_after_stop="-0.5 bit"'`
     #[arg(long = "set", value_name = "KEY=VALUE", value_parser = halfwire::scenario::parse_assignment)]
     pub set: Vec<(String, halfwire::scenario::edit::Literal)>,
+    /// Run every period of polling on the event path, without closed-form
+    /// stretches (same results, slower; for checking). The environment
+    /// variable HALFWIRE_NO_SHORTCUTS=1 does the same.
+    #[arg(long)]
+    pub no_shortcuts: bool,
 }
 
 impl ScenarioOverrides {
     /// The overrides, for the library (which validates them with the scenario).
     pub fn get(&self) -> Overrides {
-        Overrides { seed: self.seed, duration: self.duration.clone(), set: self.set.clone() }
+        let env = std::env::var_os("HALFWIRE_NO_SHORTCUTS").is_some_and(|v| !v.is_empty() && v != "0");
+        Overrides {
+            seed: self.seed,
+            duration: self.duration.clone(),
+            set: self.set.clone(),
+            no_shortcuts: self.no_shortcuts || env,
+        }
     }
 
     /// Read a scenario file and validate it with these overrides written into it.

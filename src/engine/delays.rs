@@ -18,6 +18,12 @@ pub fn capped_delay(ps: u128) -> Picos {
     Picos(ps.min(u128::from(MAX_DELAY.0)) as u64)
 }
 
+/// Does a latency draw from its stream? (A fixed one, or a normal one of
+/// zero spread, does not: periods with it can repeat exactly.)
+pub fn draws(latency: &Latency) -> bool {
+    !matches!(*latency, Latency::Fixed(_) | Latency::Normal { sd: Picos(0), .. })
+}
+
 /// Draw a firmware latency. Normal draws are truncated at zero, and every
 /// draw is capped at [`MAX_DELAY`].
 pub fn sample_latency(latency: &Latency, rng: &mut Stream) -> Picos {

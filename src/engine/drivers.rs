@@ -37,4 +37,14 @@ impl Drivers {
         self.last_release[node] = release;
         self.next_enable[node] = off + self.gap;
     }
+
+    /// Every driver's times, for a closed-form stretch. They only bound
+    /// enables at or after now from below (`World::earliest_enable`, the
+    /// asserts of `begin_tx`; arbitration reads a release directly, but it
+    /// has no closed form), so a time already past is as good as never.
+    pub fn visit(&mut self, v: &mut dyn crate::periodic::Visit) {
+        for t in self.last_release.iter_mut().chain(self.next_enable.iter_mut()) {
+            v.bound(t);
+        }
+    }
 }

@@ -61,6 +61,11 @@ impl FrameTable {
         }
     }
 
+    /// Frames in flight.
+    pub fn live(&self) -> usize {
+        self.slots.len() - self.free.len()
+    }
+
     /// The frame's last delivery is done: its slot can be reused.
     pub fn release(&mut self, idx: u32) {
         self.free.push(idx);

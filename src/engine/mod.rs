@@ -17,6 +17,7 @@ pub mod mailbox;
 pub mod outages;
 pub mod queue;
 pub mod rng;
+pub mod shortcut;
 mod world;
 
 pub use access::{AccessScheme, SchemeReport, SchemeValue};
@@ -212,6 +213,7 @@ impl Simulation {
             self.start();
         }
         let until = until.min(self.world.spec.duration);
+        self.world.until = until.0;
         let mut same_instant = 0u64;
         let mut exchanges_here = 0u64;
         loop {
@@ -249,18 +251,30 @@ impl Simulation {
             self.world.now = t;
             self.world.events += 1;
             match ev {
-                Event::Arrival { source } => self.on_arrival(source as usize),
                 Event::Timer { node, tag } => self.scheme.on_timer(&mut self.world, node as usize, tag),
                 Event::Deliver { frame, to } => self.on_deliver(frame, to as usize),
-                Event::External { node, tag } => self.notify(node as usize, external::Notice::Timer { tag }),
-                Event::LineEdge { node, busy } => self.on_line_edge(node as usize, busy),
+                // Events from outside the scheme (closed-form stretches count them).
+                Event::Arrival { source } => {
+                    self.world.outside_events += 1;
+                    self.on_arrival(source as usize);
+                }
+                Event::External { node, tag } => {
+                    self.world.outside_events += 1;
+                    self.notify(node as usize, external::Notice::Timer { tag });
+                }
+                Event::LineEdge { node, busy } => {
+                    self.world.outside_events += 1;
+                    self.on_line_edge(node as usize, busy);
+                }
                 Event::NodeFault { node, down } => {
+                    self.world.outside_events += 1;
                     self.world.set_down(node as usize, down);
                     self.scheme.on_node_fault(&mut self.world, node as usize, down);
                 }
             }
+            // `now` is past `t` when the scheme did periods in closed form.
             let w = &mut self.world;
-            w.bus.process(&w.line, t.0, false, &mut w.trace);
+            w.bus.process(&w.line, w.now.0, false, &mut w.trace);
         }
         if until > self.world.now {
             self.world.now = until;

@@ -74,4 +74,12 @@ impl Health {
             }
         }
     }
+
+    /// What a closed-form stretch needs to see unchanged: the down periods
+    /// and which nodes are down or back without an answer yet.
+    pub fn visit(&mut self, v: &mut dyn crate::periodic::Visit) {
+        v.same(self.outages.len() as u64);
+        v.same(self.down.iter().filter(|&&d| d).count() as u64);
+        v.same(self.outages.iter().filter(|o| o.up_at.is_none() || o.answered_at.is_none()).count() as u64);
+    }
 }

@@ -170,6 +170,16 @@ pub struct World {
     /// The last two frame sizes and their times on the wire (data bits, ps):
     /// a bus sends few sizes, and the float conversion is not free.
     frame_times: [(u64, u64); 2],
+    /// Closed-form stretches may run (`engine::shortcut`): asked for, and
+    /// nothing in the scenario draws or decides outside the fingerprint.
+    shortcuts: bool,
+    /// Events handled so far that did not come from the scheme (arrivals,
+    /// faults, external nodes, line edges).
+    pub(crate) outside_events: u64,
+    /// Periods done in closed form so far (for the report's `run` block).
+    pub(crate) closed_form_periods: u64,
+    /// Where the caller stops the current stretch of the run (exclusive).
+    pub(crate) until: u64,
 }
 
 /// No message's latency is shorter than this (ps): its data frame's bits
@@ -259,6 +269,10 @@ impl World {
                     .collect()
             })
             .collect();
+        // Character gaps drawn per frame, bit errors and node faults are not
+        // in a closed-form period's fingerprint: no stretches with them.
+        let random_gaps = uart.is_some() && matches!(spec.frame.char_gap, crate::spec::CharGap::Random { .. });
+        let shortcuts = spec.shortcuts && !random_gaps && noise.is_none() && spec.access.node_faults().is_empty();
         World {
             id_index,
             line,
@@ -282,6 +296,10 @@ impl World {
             half_bit,
             tx_frames: Vec::with_capacity(16),
             frame_times: [(u64::MAX, 0); 2],
+            shortcuts,
+            outside_events: 0,
+            closed_form_periods: 0,
+            until: 0,
             spec,
         }
     }
@@ -296,6 +314,49 @@ impl World {
 
     pub fn line(&self) -> &LineModel {
         &self.line
+    }
+
+    /// May a closed-form stretch run now (see `engine::shortcut`)?
+    pub(crate) fn shortcuts_allowed(&self) -> bool {
+        self.shortcuts && self.line_watchers.is_empty() && !self.externally_driven.iter().any(|&x| x)
+    }
+
+    /// The run's state outside the scheme, for a closed-form stretch.
+    pub(crate) fn visit_state(&mut self, v: &mut dyn crate::periodic::Visit) {
+        if self.tx.is_some() || !self.tx_frames.is_empty() || self.frames.live() > 0 || self.mail.total() > 0 {
+            // Frames or messages in the state: not fingerprinted, so no stretch.
+            v.refuse();
+        }
+        self.drivers.visit(v);
+        self.health.visit(v);
+        self.bus.visit(v);
+        self.stats.visit(v);
+    }
+
+    /// How many periods of `period` ps, starting now (`now`, the previous
+    /// period having started at `prev`), a stretch may skip: the whole
+    /// previous period and one more after the skipped ones lie in the
+    /// measured window, the skipped ones end before anything else happens,
+    /// and none comes near the trace window. `None` when not one.
+    pub(crate) fn periods_that_fit(&self, now: u64, period: u64, prev: u64) -> Option<u64> {
+        let (warmup, duration) = (self.spec.warmup.0, self.spec.duration.0);
+        if prev < warmup.checked_add(period)? {
+            return None;
+        }
+        // The skipped periods end strictly before the horizon, and two
+        // periods (the processing that lags the clock) before the end.
+        let horizon = self.queue.peek_time().map_or(self.until, |t| t.0.min(self.until));
+        let mut limit = horizon.min(duration.checked_sub(2 * period)?.saturating_add(1));
+        if let Some((a, b)) = self.trace.window() {
+            if b.saturating_add(period) >= now {
+                if a <= now.saturating_add(period) {
+                    return None;
+                }
+                limit = limit.min(a - period);
+            }
+        }
+        let k = limit.checked_sub(now + 1)? / period;
+        (k > 0).then_some(k)
     }
 
     /// Is `t` inside the measured window?

@@ -229,6 +229,9 @@ pub struct RunInfo {
     pub wall_s: f64,
     pub events: u64,
     pub events_per_s: f64,
+    /// Periods (polling cycles) done in closed form instead of event by
+    /// event (`engine::shortcut`); 0 under `--no-shortcuts`.
+    pub closed_form_periods: u64,
     /// Co-simulation: batches exchanged with external nodes.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub cosim_exchanges: Option<u64>,
@@ -337,7 +340,7 @@ impl Report {
             warnings,
             stalled_at_s: None,
             aborted_at_s: None,
-            run: RunInfo { events: w.events, ..RunInfo::default() },
+            run: RunInfo { events: w.events, closed_form_periods: w.closed_form_periods, ..RunInfo::default() },
             counters: t,
             // Moved in by `from_run` once the report is built.
             latency_set: tallies::LatencySet::default(),

@@ -324,9 +324,13 @@ pub fn render_titled(r: &Report, title: &str, color: bool) -> String {
         o,
         "{}",
         st.dim.apply_to(format!(
-            "{} in {} wall{rate}",
+            "{} in {} wall{rate}{}",
             crate::units::count(r.run.events, "event"),
-            format_seconds(r.run.wall_s)
+            format_seconds(r.run.wall_s),
+            match r.run.closed_form_periods {
+                0 => String::new(),
+                n => format!("; {} in closed form", crate::units::count(n, "cycle")),
+            }
         ))
     );
     o

@@ -95,6 +95,8 @@ pub struct Overrides {
     pub duration: Option<String>,
     /// Any key of the scenario, set to a value (`--set key=value`), in order.
     pub set: Vec<(String, edit::Literal)>,
+    /// Run every period on the event path (`--no-shortcuts`; see `Spec::shortcuts`).
+    pub no_shortcuts: bool,
 }
 
 impl Overrides {
@@ -128,6 +130,12 @@ pub fn parse_assignment(arg: &str) -> Result<(String, edit::Literal), String> {
 
 /// Parse and validate scenario text with command-line overrides applied.
 pub fn parse_with(text: &str, file: &str, o: &Overrides) -> Result<Spec, ScenarioError> {
+    let mut spec = parse_edited(text, file, o)?;
+    spec.shortcuts &= !o.no_shortcuts;
+    Ok(spec)
+}
+
+fn parse_edited(text: &str, file: &str, o: &Overrides) -> Result<Spec, ScenarioError> {
     if o.is_empty() {
         return parse_str(text, file);
     }

@@ -73,7 +73,7 @@ pub fn validate(raw: &RawScenario, file: &str, src: &str) -> R<Spec> {
     check_arrival_count(&v, raw, &nodes, duration)?;
     let access = super::access::validate(&v, raw.access.get_ref(), raw.access.span(), &nodes, &line, &frame)?;
     let expect = validate_expectations(&v, raw)?;
-    let spec = Spec { expect, name, seed, duration, warmup, timing, line, frame, nodes, access };
+    let spec = Spec { expect, name, seed, duration, warmup, timing, line, frame, nodes, access, shortcuts: true };
     check_recessive(&v, raw, &spec)?;
     check_external(&v, raw, &spec)?;
     check_firmware_timing(&v, raw, &spec)?;

@@ -40,7 +40,9 @@
 use tracing::debug;
 
 use super::{sample_latency, AccessScheme, DurationStat, SchemeReport, SchemeValue};
+use crate::engine::shortcut::Shortcuts;
 use crate::engine::{Dest, FrameKind, FrameOut, Reception, TxTimes, World};
+use crate::periodic::{Periodic, Visit, VisitExt};
 use crate::spec::{NodeId, PollingSpec};
 use crate::traffic::Message;
 use crate::units::Picos;
@@ -106,6 +108,8 @@ pub struct Polling {
     takeovers: u64,
     /// From the last poll of the failed master to the first poll of the backup.
     unpolled: DurationStat,
+    /// Whole cycles done in closed form.
+    shortcuts: Shortcuts,
 }
 
 impl Polling {
@@ -144,17 +148,25 @@ impl Polling {
             taking_over: false,
             takeovers: 0,
             unpolled: DurationStat::default(),
+            shortcuts: Shortcuts::default(),
         }
     }
 
     fn poll(&mut self, w: &mut World) {
-        let now = w.now();
         let master = self.master;
         if w.is_down(master) {
             // A down master polls nobody; it resumes if it comes back.
             self.halted = true;
             return;
         }
+        if self.idx == 0 && self.attempt == 0 {
+            // A cycle begins: the cycles that repeat the last one exactly
+            // may be done in closed form (moving `now` on).
+            let mut shortcuts = std::mem::take(&mut self.shortcuts);
+            shortcuts.at_period_start(w, self, None);
+            self.shortcuts = shortcuts;
+        }
+        let now = w.now();
         if std::mem::take(&mut self.taking_over) {
             if let Some(last) = self.last_poll {
                 if w.in_window(now) {
@@ -406,6 +418,59 @@ impl Polling {
             let master_wait = self.spec.turnaround[master] + sample_latency(&self.spec.response_latency, w.rng(master));
             let next = w.reacts_at(slave, master, tx.last_bit) + master_wait;
             w.set_timer(master, next, NEXT_POLL);
+        }
+    }
+}
+
+impl Periodic for Polling {
+    /// Every field, for closed-form cycles (`engine::shortcut`). Draws,
+    /// a backup master, external slaves, held messages and skipped slaves
+    /// refuse them.
+    fn visit(&mut self, v: &mut dyn Visit) {
+        use crate::engine::delays::draws;
+        if draws(&self.spec.response_latency)
+            || self.spec.backup_master.is_some()
+            || self.awaiting_external
+            || self.taking_over
+            || self.halted
+            || self.timeout_armed
+            || self.held.iter().any(|h| !h.is_empty())
+            || self.skipped_since.iter().any(|s| s.is_some())
+        {
+            v.refuse();
+        }
+        v.same(self.idx as u64);
+        v.same(u64::from(self.attempt));
+        v.same(self.master as u64);
+        v.flag(self.reply_bad);
+        v.picos(&mut self.deadline);
+        v.id(&mut self.current_poll);
+        v.id(&mut self.reply_occ);
+        for t in &mut self.busy_until {
+            v.picos(t);
+        }
+        v.opt_picos(&mut self.cycle_start);
+        v.opt_picos(&mut self.last_poll);
+        for &n in &self.silent_in_row {
+            v.same(u64::from(n));
+        }
+        v.same(self.takeovers);
+        v.same(self.unpolled.count);
+        v.same(self.watch_gen);
+        v.tally(&mut self.cycles.count);
+        v.tally_wide(&mut self.cycles.sum_ps);
+        for x in [
+            &mut self.poll_seq,
+            &mut self.cycle_no,
+            &mut self.polls,
+            &mut self.timeouts,
+            &mut self.empty_replies,
+            &mut self.data_replies,
+            &mut self.ignored,
+            &mut self.retries,
+            &mut self.skipped_polls,
+        ] {
+            v.tally(x);
         }
     }
 }

@@ -33,7 +33,9 @@ use rand::Rng;
 use tracing::debug;
 
 use super::{AccessScheme, SchemeReport, SchemeValue};
+use crate::engine::shortcut::Shortcuts;
 use crate::engine::{Dest, FrameKind, FrameOut, Reception, World};
+use crate::periodic::{Periodic, Visit, VisitExt};
 use crate::spec::{Drift, NodeId, TdmaSpec};
 use crate::units::Picos;
 
@@ -71,6 +73,8 @@ pub struct Tdma {
     held_over: Vec<u32>,
     free_running: u64,
     expired: u64,
+    /// Whole cycles done in closed form.
+    shortcuts: Shortcuts,
 }
 
 impl Tdma {
@@ -98,6 +102,7 @@ impl Tdma {
             held_over: Vec::new(),
             free_running: 0,
             expired: 0,
+            shortcuts: Shortcuts::default(),
         }
     }
 
@@ -201,6 +206,36 @@ impl Tdma {
     }
 }
 
+impl Periodic for Tdma {
+    /// Every field, for closed-form cycles (`engine::shortcut`); the
+    /// timekeeper's clock is exact (see the beacon timer).
+    fn visit(&mut self, v: &mut dyn Visit) {
+        // Beacons come at whole cycles: a period of another length would
+        // not stay on the timekeeper's schedule.
+        v.same(self.cycle_local.0);
+        v.picos(&mut self.beacon_release);
+        for t in self.slot_end.iter_mut().chain(self.reference.iter_mut()) {
+            v.picos(t);
+        }
+        for &h in &self.held_over {
+            v.same(u64::from(h));
+        }
+        for g in &mut self.generation {
+            v.tally(g);
+        }
+        for x in [
+            &mut self.beacons,
+            &mut self.missed,
+            &mut self.used,
+            &mut self.overruns,
+            &mut self.free_running,
+            &mut self.expired,
+        ] {
+            v.tally(x);
+        }
+    }
+}
+
 impl AccessScheme for Tdma {
     fn name(&self) -> &'static str {
         "tdma"
@@ -242,7 +277,17 @@ impl AccessScheme for Tdma {
                 self.schedule_beacon(w, (tag >> 8) + 1);
             }
             BEACON => {
-                let n = tag >> 8;
+                let mut n = tag >> 8;
+                // A cycle begins on time on an exact clock: the cycles that
+                // repeat the last one may be done in closed form.
+                if self.eps[node] == 0.0 && w.now().0 == n * self.cycle_local.0 + self.spec.guard.0 {
+                    let mut shortcuts = std::mem::take(&mut self.shortcuts);
+                    let cycle = self.cycle_local.0;
+                    if let Some(s) = shortcuts.at_period_start(w, self, Some(cycle)) {
+                        n += s.periods;
+                    }
+                    self.shortcuts = shortcuts;
+                }
                 let beacon = FrameOut::control(FrameKind::Beacon, Dest::All, self.spec.beacon_bits);
                 let tx = w.transmit(node, w.now(), &[beacon]);
                 self.beacon_release = tx.last_bit;

@@ -35,7 +35,9 @@
 use tracing::debug;
 
 use super::{first_other_node, sample_latency, AccessScheme, DurationStat, SchemeReport, SchemeValue};
+use crate::engine::shortcut::Shortcuts;
 use crate::engine::{Dest, FrameKind, FrameOut, Reception, TxTimes, World};
+use crate::periodic::{Periodic, Visit, VisitExt};
 use crate::spec::{NodeId, TokenSpec};
 use crate::units::Picos;
 
@@ -78,6 +80,8 @@ pub struct Token {
     solicit_cursor: usize,
     repairs: u64,
     readmissions: u64,
+    /// Whole rotations done in closed form.
+    shortcuts: Shortcuts,
 }
 
 impl Token {
@@ -115,6 +119,7 @@ impl Token {
             solicit_cursor: 0,
             repairs: 0,
             readmissions: 0,
+            shortcuts: Shortcuts::default(),
         }
     }
 
@@ -292,6 +297,49 @@ impl Token {
     }
 }
 
+impl Periodic for Token {
+    /// Every field, for closed-form rotations (`engine::shortcut`). Draws,
+    /// a lost or pending lost token, ring repair and a solicitation refuse
+    /// them (their timers, like the watchdog's, also stop a stretch).
+    fn visit(&mut self, v: &mut dyn Visit) {
+        use crate::engine::delays::draws;
+        if draws(&self.spec.response_latency)
+            || self.lost.is_some()
+            || self.lost_at.is_some()
+            || self.next_fault < self.spec.lose_token_at.len()
+            || self.spec.successor_timeout.is_some()
+            || self.awaiting.is_some()
+            || self.soliciting.is_some()
+        {
+            v.refuse();
+        }
+        for &n in &self.next_of {
+            v.same(n as u64);
+        }
+        for &r in &self.in_ring {
+            v.flag(r);
+        }
+        v.picos(&mut self.deadline);
+        v.opt_picos(&mut self.last_head_visit);
+        v.flag(self.last_pass.is_some());
+        if let Some((to, at)) = &mut self.last_pass {
+            v.same(*to as u64);
+            v.picos(at);
+        }
+        v.same(self.solicit_cursor as u64);
+        v.same(self.recoveries.count);
+        for x in [self.lost_tokens, self.repairs, self.readmissions] {
+            v.same(x);
+        }
+        v.tally(&mut self.rotations.count);
+        v.tally_wide(&mut self.rotations.sum_ps);
+        for x in [&mut self.spurious, &mut self.generation, &mut self.passes, &mut self.succ_gen, &mut self.head_visits]
+        {
+            v.tally(x);
+        }
+    }
+}
+
 impl AccessScheme for Token {
     fn name(&self) -> &'static str {
         "token"
@@ -353,6 +401,13 @@ impl AccessScheme for Token {
             return; // the lost token: nobody accepts it
         }
         let node = rx.at;
+        if node == self.spec.order[0] {
+            // A rotation begins: the rotations that repeat the last one
+            // exactly may be done in closed form (moving `now` on).
+            let mut shortcuts = std::mem::take(&mut self.shortcuts);
+            shortcuts.at_period_start(w, self, None);
+            self.shortcuts = shortcuts;
+        }
         let wait = self.spec.turnaround[node] + sample_latency(&self.spec.response_latency, w.rng(node));
         let enable = w.now() + wait;
         self.hold(w, node, enable);

@@ -123,6 +123,41 @@ pub struct Stats {
 }
 
 impl Stats {
+    /// The tallies, for a closed-form stretch; latencies may not change
+    /// over a period that is skipped (no message is delivered in it).
+    pub fn visit(&mut self, v: &mut dyn crate::periodic::Visit) {
+        let f = &mut self.frames;
+        let c = &mut f.corrupted_by;
+        for x in [
+            &mut f.attempts,
+            &mut f.delivered,
+            &mut f.corrupted,
+            &mut f.dropped,
+            &mut f.given_up,
+            &mut f.arrived,
+            &mut f.access_attempts,
+            &mut f.control_frames,
+            &mut f.control_corrupted,
+            &mut f.in_flight_at_end,
+            &mut f.unheard,
+            &mut c.contention,
+            &mut c.floating,
+            &mut c.framing,
+            &mut c.noise,
+        ] {
+            v.tally(x);
+        }
+        let u = &mut self.uart;
+        for x in [&mut u.cut_frames, &mut u.char_timeouts, &mut u.silence_violations, &mut u.unsettled_frames] {
+            v.tally(x);
+        }
+        v.tally_wide(&mut self.payload_bits);
+        v.tally_wide(&mut self.carried_ps);
+        v.tally_wide(&mut self.data_wire_ps);
+        v.tally(&mut self.data_frames_sent);
+        v.same(self.latency_all.count());
+    }
+
     /// Empty accumulators; `latency` gives the shapes of the all-nodes and
     /// the per-node histograms (see [`latency::LatencyShape::for_run`]).
     pub fn new(nodes: usize, latency: (LatencyShape, LatencyShape)) -> Self {

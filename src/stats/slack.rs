@@ -92,6 +92,29 @@ impl SlackStats {
         self.start_run(slack);
     }
 
+    /// Record `n` hand-overs of slack `slack`, exactly as `n` calls of
+    /// [`SlackStats::record`] in a row would (closed-form stretches).
+    pub fn record_n(&mut self, slack: i64, contended: bool, n: u64) {
+        if n == 0 {
+            return;
+        }
+        self.record(slack, contended);
+        let mut rest = n - 1;
+        self.count += rest;
+        self.contended += rest * u64::from(contended);
+        while rest > 0 {
+            let (_, run) = self.run.as_mut().expect("record leaves a run of this value");
+            let take = rest.min(u64::from(u32::MAX - *run));
+            *run += take as u32;
+            rest -= take;
+            if rest > 0 {
+                // A full run: the next record starts another.
+                self.start_run(slack);
+                rest -= 1;
+            }
+        }
+    }
+
     #[cold]
     fn start_run(&mut self, slack: i64) {
         self.min = Some(self.min.map_or(slack, |m| m.min(slack)));
@@ -253,6 +276,12 @@ impl HandoverStats {
 
     #[inline]
     pub fn record(&mut self, from: usize, to: usize, slack: i64, contended: bool) {
+        self.record_n(from, to, slack, contended, 1);
+    }
+
+    /// Record `n` hand-overs of one pair and slack (as `n` calls of `record`).
+    #[inline]
+    pub fn record_n(&mut self, from: usize, to: usize, slack: i64, contended: bool, n: u64) {
         let key = (from as u32, to as u32);
         let found = match &mut self.index {
             Index::Dense { nodes, slot } => {
@@ -274,9 +303,14 @@ impl HandoverStats {
                 }
                 i
             }
-            None => return self.rest.record(slack, contended),
+            None if n == 1 => return self.rest.record(slack, contended),
+            None => return self.rest.record_n(slack, contended, n),
         };
-        self.pairs[i].1.record(slack, contended);
+        if n == 1 {
+            self.pairs[i].1.record(slack, contended);
+        } else {
+            self.pairs[i].1.record_n(slack, contended, n);
+        }
     }
 
     /// Every hand-over together.
@@ -292,6 +326,29 @@ impl HandoverStats {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn recording_n_at_once_is_recording_n_times() {
+        // Closed-form stretches record a period's hand-overs k times at once.
+        let mut one = HandoverStats::new(4, 1_000_000);
+        let mut many = HandoverStats::new(4, 1_000_000);
+        for (from, to, slack, n) in [(0, 1, 40, 3u64), (1, 0, -7, 5), (0, 1, 40, 1), (2, 3, 9, 0), (0, 1, 12, 2)] {
+            for _ in 0..n {
+                one.record(from, to, slack, slack < 0);
+            }
+            many.record_n(from, to, slack, slack < 0, n);
+        }
+        let (a, b) = (one.all(), many.all());
+        assert_eq!((a.count, a.min, a.contended), (b.count, b.min, b.contended));
+        for q in [0.0, 0.1, 0.5, 0.9, 1.0] {
+            assert_eq!(a.quantile(q), b.quantile(q), "quantile {q}");
+        }
+        // A run longer than a run counter holds splits as separate records would.
+        let mut s = SlackStats::default();
+        s.record_n(5, false, u64::from(u32::MAX) + 3);
+        assert_eq!(s.count, u64::from(u32::MAX) + 3);
+        assert_eq!(s.quantile(0.5), Some(5));
+    }
 
     #[test]
     fn quantiles_by_rank_across_the_sign() {

@@ -147,6 +147,25 @@ impl UtilizationSweep {
         self.account(frontier);
     }
 
+    /// The sweep's state and totals, for a closed-form stretch.
+    pub fn visit(&mut self, v: &mut dyn crate::periodic::Visit) {
+        v.same((self.edges.len() - self.head) as u64);
+        for e in &mut self.edges[self.head..] {
+            v.time(&mut e.0);
+            v.same(u64::from(e.1));
+        }
+        v.time(&mut self.last);
+        v.same(u64::from(self.drivers));
+        v.same(u64::from(self.dominant));
+        for l in self.labels {
+            v.same(u64::from(l));
+        }
+        let t = &mut self.totals;
+        for x in [&mut t.payload, &mut t.overhead, &mut t.gaps, &mut t.idle, &mut t.wasted] {
+            v.tally(x);
+        }
+    }
+
     /// Move the end of the window earlier (never before its start).
     pub fn end_window_at(&mut self, end: u64) {
         self.window.1 = self.window.1.min(end).max(self.window.0);

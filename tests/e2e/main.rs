@@ -22,6 +22,7 @@ mod polling_queueing;
 mod polling_timing;
 mod properties;
 mod regression;
+mod shortcuts;
 mod sweep;
 mod tdma;
 mod token;
