@@ -20,9 +20,9 @@ pub struct ScenarioOverrides {
     /// `--set 'transceiver.release_after_stop="-0.5 bit"'`
     #[arg(long = "set", value_name = "KEY=VALUE", value_parser = halfwire::scenario::parse_assignment)]
     pub set: Vec<(String, halfwire::scenario::edit::Literal)>,
-    /// Run every period of polling on the event path, without closed-form
-    /// stretches (same results, slower; for checking). The environment
-    /// variable HALFWIRE_NO_SHORTCUTS=1 does the same.
+    /// Simulate every polling cycle, token rotation and TDMA cycle event by
+    /// event, with no cycles done in closed form (same results, slower; for
+    /// checking). HALFWIRE_NO_SHORTCUTS=1 in the environment does the same.
     #[arg(long)]
     pub no_shortcuts: bool,
 }

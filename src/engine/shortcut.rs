@@ -65,15 +65,9 @@ impl Shortcuts {
         if !w.shortcuts_allowed() {
             return None;
         }
-        if w.outside_events != self.outside_at_mark {
-            // Something came from outside in the last period: it does not
-            // repeat, and neither does the state it left (a message's
-            // reply shifts the rest of its cycle). Mark the next period start.
-            self.outside_at_mark = w.outside_events;
-            self.marked = false;
-            w.bus.journal_handovers(false);
-            return None;
-        }
+        // Something came from outside in the last period: it does not
+        // repeat, so this period start can only be a mark for the next.
+        let fresh = w.outside_events != self.outside_at_mark;
         let now = w.now.0;
         if now == self.mark.now {
             // A period that takes no time (a stalled run): nothing to skip,
@@ -83,8 +77,10 @@ impl Shortcuts {
         let next_id = w.bus.next_id();
         self.scratch.clear(now, next_id);
         w.visit_state(&mut self.scratch);
-        own.visit(&mut self.scratch);
-        let skipped = self.try_skip(w, own, period);
+        if !self.scratch.refused {
+            own.visit(&mut self.scratch);
+        }
+        let skipped = if fresh { None } else { self.try_skip(w, own, period) };
         // This period start (moved on, if periods were skipped) is the mark for the next.
         std::mem::swap(&mut self.mark, &mut self.scratch);
         if skipped.is_some() {

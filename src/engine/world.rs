@@ -326,6 +326,7 @@ impl World {
         if self.tx.is_some() || !self.tx_frames.is_empty() || self.frames.live() > 0 || self.mail.total() > 0 {
             // Frames or messages in the state: not fingerprinted, so no stretch.
             v.refuse();
+            return;
         }
         self.drivers.visit(v);
         self.health.visit(v);

@@ -110,12 +110,15 @@ pub struct Polling {
     unpolled: DurationStat,
     /// Whole cycles done in closed form.
     shortcuts: Shortcuts,
+    /// Cycles can repeat exactly: no latency drawn per exchange, no backup master.
+    may_repeat: bool,
 }
 
 impl Polling {
     pub fn new(spec: PollingSpec) -> Self {
         let nodes = spec.turnaround.len();
         let spec_master = spec.master;
+        let may_repeat = !crate::engine::delays::draws(&spec.response_latency) && spec.backup_master.is_none();
         Polling {
             spec,
             idx: 0,
@@ -149,6 +152,7 @@ impl Polling {
             takeovers: 0,
             unpolled: DurationStat::default(),
             shortcuts: Shortcuts::default(),
+            may_repeat,
         }
     }
 
@@ -159,14 +163,7 @@ impl Polling {
             self.halted = true;
             return;
         }
-        if self.idx == 0 && self.attempt == 0 {
-            // A cycle begins: the cycles that repeat the last one exactly
-            // may be done in closed form (moving `now` on).
-            let mut shortcuts = std::mem::take(&mut self.shortcuts);
-            shortcuts.at_period_start(w, self, None);
-            self.shortcuts = shortcuts;
-        }
-        let now = w.now();
+        let mut now = w.now();
         if std::mem::take(&mut self.taking_over) {
             if let Some(last) = self.last_poll {
                 if w.in_window(now) {
@@ -182,6 +179,14 @@ impl Polling {
                 }
             }
             self.cycle_start = Some(now);
+            if self.attempt == 0 && self.may_repeat {
+                // A cycle begins: the cycles that repeat the last one
+                // exactly may be done in closed form (moving `now` on).
+                let mut shortcuts = std::mem::take(&mut self.shortcuts);
+                shortcuts.at_period_start(w, self, None);
+                self.shortcuts = shortcuts;
+                now = w.now();
+            }
         }
         if w.in_window(now) {
             self.polls += 1;
@@ -438,6 +443,7 @@ impl Periodic for Polling {
             || self.skipped_since.iter().any(|s| s.is_some())
         {
             v.refuse();
+            return;
         }
         v.same(self.idx as u64);
         v.same(u64::from(self.attempt));
@@ -447,7 +453,8 @@ impl Periodic for Polling {
         v.id(&mut self.current_poll);
         v.id(&mut self.reply_occ);
         for t in &mut self.busy_until {
-            v.picos(t);
+            // Only compared with the instant a poll is seen: past is never.
+            v.bound(&mut t.0);
         }
         v.opt_picos(&mut self.cycle_start);
         v.opt_picos(&mut self.last_poll);

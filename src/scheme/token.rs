@@ -401,7 +401,7 @@ impl AccessScheme for Token {
             return; // the lost token: nobody accepts it
         }
         let node = rx.at;
-        if node == self.spec.order[0] {
+        if node == self.spec.order[0] && !crate::engine::delays::draws(&self.spec.response_latency) {
             // A rotation begins: the rotations that repeat the last one
             // exactly may be done in closed form (moving `now` on).
             let mut shortcuts = std::mem::take(&mut self.shortcuts);

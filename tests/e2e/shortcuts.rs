@@ -140,3 +140,67 @@ fn closed_form_periods_change_nothing_on_the_demos() {
         assert!(fast == plain && fast_events == plain_events, "{demo}");
     }
 }
+
+/// Through the binary: the `--events` log and the VCD of a window are
+/// byte-identical with and without `--no-shortcuts` (and so is the JSON
+/// report, less `run`), on demos made periodic (fixed firmware latency, exact
+/// clocks, light load). With `--events` the periods outside the window are
+/// done in closed form; waveforms (`--vcd`) trace the run from its start, so
+/// they take the event path throughout and must agree trivially.
+#[test]
+fn event_logs_and_vcds_of_a_window_are_the_same_without_shortcuts() {
+    let dir = std::env::temp_dir().join(format!("halfwire-shortcut-files-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    for (demo, window) in
+        [("fruit-grader", "40ms..40.3ms"), ("railcar-doors", "100ms..102ms"), ("lighting-truss-tdma", "200ms..201ms")]
+    {
+        let text = std::fs::read_to_string(format!("scenarios/{demo}.toml")).unwrap();
+        let mut doc: toml_edit::DocumentMut = text.parse().unwrap();
+        let access = doc["access"].as_table_mut().unwrap();
+        if access.contains_key("response_latency") {
+            access["response_latency"] = toml_edit::value("500 ns");
+        }
+        if access.contains_key("drift_ppm") {
+            access["drift_ppm"] = toml_edit::value(0);
+        }
+        // A token watchdog's timer is always pending, which ends a stretch.
+        for key in ["token_timeout", "recovery_node", "faults"] {
+            access.remove(key);
+        }
+        let light = doc.to_string().lines().map(|l| scale_traffic(l, 0.05)).collect::<Vec<_>>().join("\n");
+        let scenario = dir.join(format!("{demo}.toml"));
+        std::fs::write(&scenario, light).unwrap();
+        for (flag, ext, skips) in [("--events", "jsonl", true), ("--vcd", "vcd", false)] {
+            let mut outputs = Vec::new();
+            for extra in [None, Some("--no-shortcuts")] {
+                let file = dir.join(format!("{demo}-{}.{ext}", extra.is_some()));
+                let mut args = vec![
+                    "run",
+                    scenario.to_str().unwrap(),
+                    "--format",
+                    "json",
+                    "--window",
+                    window,
+                    flag,
+                    file.to_str().unwrap(),
+                ];
+                args.extend(extra);
+                let out = crate::common::halfwire(&args);
+                assert!(out.status.success(), "{demo}: {}", String::from_utf8_lossy(&out.stderr));
+                let mut report: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+                let periods = report["run"]["closed_form_periods"].as_u64().unwrap();
+                report.as_object_mut().unwrap().remove("run");
+                outputs.push((report, std::fs::read(&file).unwrap(), periods));
+            }
+            let (fast, plain) = (&outputs[0], &outputs[1]);
+            if skips {
+                assert!(fast.2 > 10, "{demo}: only {} periods in closed form", fast.2);
+            }
+            assert_eq!(plain.2, 0, "{demo}");
+            assert!(fast.1.len() > 100, "{demo}: the window holds events");
+            assert_eq!(fast.0, plain.0, "{demo} {flag}: report");
+            assert!(fast.1 == plain.1, "{demo}: {flag} output");
+        }
+    }
+    std::fs::remove_dir_all(&dir).ok();
+}
