@@ -329,7 +329,10 @@ pub fn render_titled(r: &Report, title: &str, color: bool) -> String {
             format_seconds(r.run.wall_s),
             match r.run.closed_form_periods {
                 0 => String::new(),
-                n => format!("; {} in closed form", crate::units::count(n, "cycle")),
+                n => format!(
+                    "; {} in closed form",
+                    crate::units::count(n, if r.scheme.name == "token" { "rotation" } else { "cycle" })
+                ),
             }
         ))
     );
